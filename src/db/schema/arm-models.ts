@@ -1,0 +1,40 @@
+import { integer, jsonb, pgTable, text, unique, uuid } from 'drizzle-orm/pg-core';
+import type { ArmGeometry } from '../../lib/engine/types';
+import { createdAt, id } from './columns';
+import { users } from './users';
+
+/** Drift tolerances per parameter group (mm for lengths/base/tool position, deg for angles). */
+export interface GroupTolerances {
+  lengths: number;
+  twists: number;
+  offsets: number;
+  beta: number;
+  base: number;
+  tool: number;
+}
+
+/** A model type (for example a 6-axis articulated arm); its geometry lives in revisions. */
+export const armModels = pgTable('arm_models', {
+  id: id(),
+  name: text().notNull().unique(),
+  manufacturer: text().notNull().default(''),
+  description: text().notNull().default(''),
+  tolerances: jsonb().$type<GroupTolerances>(),
+  createdBy: uuid().references(() => users.id),
+  createdAt: createdAt(),
+});
+
+/** Nominal geometry revision r1, r2, …; a revision a unit uses is never changed: edits make a new one. */
+export const armModelRevisions = pgTable(
+  'arm_model_revisions',
+  {
+    id: id(),
+    modelId: uuid().notNull().references(() => armModels.id, { onDelete: 'restrict' }),
+    revision: integer().notNull(),
+    geometry: jsonb().$type<ArmGeometry>().notNull(),
+    note: text().notNull().default(''),
+    createdBy: uuid().references(() => users.id),
+    createdAt: createdAt(),
+  },
+  (t) => [unique().on(t.modelId, t.revision)],
+);

@@ -1,0 +1,45 @@
+import { index, integer, jsonb, pgTable, text, timestamp, uuid } from 'drizzle-orm/pg-core';
+import type { ArmGeometry } from '../../lib/engine/types';
+import { createdAt, id } from './columns';
+import { sessions } from './sessions';
+import { units } from './units';
+import { users } from './users';
+
+export const FIT_STATES = ['queued', 'running', 'fitted', 'failed'] as const;
+export type FitState = (typeof FIT_STATES)[number];
+export const REVIEW_STATES = ['awaiting_review', 'approved', 'returned'] as const;
+export type ReviewState = (typeof REVIEW_STATES)[number];
+
+/** One identification run over a session with its settings; a job with a page. */
+export const fits = pgTable(
+  'fits',
+  {
+    id: id(),
+    sessionId: uuid().notNull().references(() => sessions.id, { onDelete: 'restrict' }),
+    unitId: uuid().notNull().references(() => units.id, { onDelete: 'restrict' }),
+    /** The fit this one was re-run from (e.g. with outliers excluded); the old one is kept. */
+    parentFitId: uuid(),
+    state: text().$type<FitState>().notNull().default('queued'),
+    settings: jsonb().$type<Record<string, unknown>>().notNull(),
+    engineVersion: text(),
+    /** SHA-256 of the session file and of the nominal geometry, so a fit can be reproduced. */
+    inputChecksums: jsonb().$type<{ sessionFile: string; nominalGeometry: string }>(),
+    progress: jsonb().$type<{ iteration: number; rmsMm: number; cost: number } | null>(),
+    report: jsonb().$type<Record<string, unknown>>(),
+    calibrated: jsonb().$type<ArmGeometry>(),
+    error: text(),
+    durationMs: integer(),
+    attempts: integer().notNull().default(0),
+    reviewState: text().$type<ReviewState>(),
+    submittedBy: uuid().references(() => users.id),
+    submittedAt: timestamp({ withTimezone: true }),
+    decidedBy: uuid().references(() => users.id),
+    decidedAt: timestamp({ withTimezone: true }),
+    decisionComment: text(),
+    createdBy: uuid().references(() => users.id),
+    createdAt: createdAt(),
+    startedAt: timestamp({ withTimezone: true }),
+    finishedAt: timestamp({ withTimezone: true }),
+  },
+  (t) => [index().on(t.unitId, t.createdAt), index().on(t.sessionId), index().on(t.reviewState)],
+);

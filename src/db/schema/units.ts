@@ -1,0 +1,19 @@
+import { boolean, date, pgTable, text, uuid } from 'drizzle-orm/pg-core';
+import { armModelRevisions } from './arm-models';
+import { createdAt, id } from './columns';
+import { users } from './users';
+
+/** One physical arm, by serial number. */
+export const units = pgTable('units', {
+  id: id(),
+  serial: text().notNull().unique(),
+  modelRevisionId: uuid().notNull().references(() => armModelRevisions.id, { onDelete: 'restrict' }),
+  site: text().notNull().default(''),
+  cell: text().notNull().default(''),
+  commissionedOn: date(),
+  notes: text().notNull().default(''),
+  /** Set by a drift alert until someone acknowledges it. */
+  needsAttention: boolean().notNull().default(false),
+  createdBy: uuid().references(() => users.id),
+  createdAt: createdAt(),
+});
