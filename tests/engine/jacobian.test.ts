@@ -1,0 +1,72 @@
+import { describe, expect, it } from 'vitest';
+import type { ArmGeometry, JointSpec } from '../../src/lib/engine/types';
+import { compileArm, createArmData, forwardKinematics, jointsToInternal, setParameters } from '../../src/lib/engine/kinematics';
+import { pointJacobian } from '../../src/lib/engine/jacobian';
+import { fourAxisParallel, rng, sixAxisDh, sixAxisMdh } from './helpers';
+
+/**
+ * Analytic Jacobian against central finite differences, (f(v + h e_j) − f(v − h e_j)) / 2h, for every
+ * parameter. Truncation error is O(h²·|f'''|): with h = 1e-4 (mm or rad) on arms of about 1–2 m that is
+ * below 1e-5 mm per unit, and rounding error ~1e-16·2000 mm / 1e-4 ≈ 2e-9; we allow 2e-5 · max(1, |col|).
+ */
+function checkArm(g: ArmGeometry, seed: number) {
+  const model = compileArm(g);
+  const data = createArmData(model);
+  const r = rng(seed);
+  const cols = Array.from({ length: model.size }, (_, j) => j);
+  const J = new Float64Array(3 * model.size);
+  const q = new Float64Array(model.n);
+  const h = 1e-4;
+  for (let trial = 0; trial < 10; trial++) {
+    jointsToInternal(model, g.joints.map((j) => (j.type === 'prismatic' ? -150 * r() : 340 * r() - 170)), q);
+    setParameters(model, data, model.nominal);
+    forwardKinematics(model, data, q, 0, true);
+    pointJacobian(model, data, cols, J);
+    const v = Float64Array.from(model.nominal);
+    for (let j = 0; j < model.size; j++) {
+      const save = v[j];
+      v[j] = save + h;
+      setParameters(model, data, v);
+      forwardKinematics(model, data, q);
+      const plus = Array.from(data.point);
+      v[j] = save - h;
+      setParameters(model, data, v);
+      forwardKinematics(model, data, q);
+      const minus = Array.from(data.point);
+      v[j] = save;
+      for (let c = 0; c < 3; c++) {
+        const fd = (plus[c] - minus[c]) / (2 * h);
+        const an = J[3 * j + c];
+        expect(Math.abs(fd - an), `${model.layout.params[j].key}[${c}]`).toBeLessThan(2e-5 * Math.max(1, Math.abs(an)));
+      }
+    }
+  }
+}
+
+function withFrames(g: ArmGeometry): ArmGeometry {
+  // Non-trivial base and tool rotations so every base/tool column is exercised.
+  return {
+    ...g,
+    base: { x: 1200, y: -300, z: 80, rx: 12, ry: -25, rz: 140 },
+    tool: { x: 25, y: -14, z: 150, rx: 20, ry: 35, rz: -60 },
+    joints: g.joints.map((j, i): JointSpec => ({ ...j, beta: 0.7 * (i + 1) })),
+  };
+}
+
+describe('analytic Jacobian against central finite differences', () => {
+  it('six-axis arm, DH', () => checkArm(withFrames(sixAxisDh()), 21));
+  it('six-axis arm, modified DH', () => checkArm(withFrames(sixAxisMdh()), 22));
+  it('four-axis arm with a prismatic axis, DH and MDH', () => {
+    checkArm(withFrames(fourAxisParallel()), 23);
+    checkArm(withFrames({ ...fourAxisParallel(), convention: 'mdh' }), 24);
+  });
+  it('tool rotation columns are zero (the point does not depend on them)', () => {
+    const g = withFrames(sixAxisDh());
+    const model = compileArm(g);
+    const data = createArmData(model);
+    forwardKinematics(model, data, new Float64Array([0.1, 0.2, 0.3, 0.4, 0.5, 0.6]), 0, true);
+    const J = new Float64Array(9);
+    pointJacobian(model, data, [model.layout.toolOffset + 3, model.layout.toolOffset + 4, model.layout.toolOffset + 5], J);
+    expect(Array.from(J)).toEqual(new Array(9).fill(0));
+  });
+});
