@@ -1,0 +1,52 @@
+import Credentials from '@auth/core/providers/credentials';
+import { CredentialsSignin } from '@auth/core/errors';
+import { defineConfig } from 'auth-astro';
+import { authenticate } from './src/lib/server/users';
+
+class RateLimited extends CredentialsSignin {
+  code = 'rate_limited';
+}
+
+const clientAddress = (request: Request) =>
+  request.headers.get('x-forwarded-for')?.split(',')[0]?.trim() || request.headers.get('x-real-ip') || 'direct';
+
+// AUTH_SECRET is read from the runtime environment, never from the build-time .env, so it is not baked
+// into dist/ (see stack-notes).
+export default defineConfig({
+  secret: process.env.AUTH_SECRET,
+  trustHost: true,
+  useSecureCookies: process.env.OFFSETRY_MODE === 'production' && process.env.OFFSETRY_INSECURE_COOKIES !== 'true',
+  session: { strategy: 'jwt', maxAge: 10 * 60 * 60 },
+  pages: { signIn: '/signin', error: '/signin' },
+  providers: [
+    Credentials({
+      credentials: { email: { label: 'E-mail', type: 'email' }, password: { label: 'Password', type: 'password' } },
+      async authorize(credentials, request) {
+        const email = typeof credentials?.email === 'string' ? credentials.email : '';
+        const password = typeof credentials?.password === 'string' ? credentials.password : '';
+        if (!email || !password || email.length > 200 || password.length > 200) return null;
+        const result = await authenticate(email, password, clientAddress(request));
+        if (!result.ok) {
+          if (result.reason === 'rate-limited') throw new RateLimited();
+          return null;
+        }
+        return { id: result.user.id, email: result.user.email, name: result.user.name, roles: result.user.roles };
+      },
+    }),
+  ],
+  callbacks: {
+    jwt({ token, user }) {
+      if (user) {
+        token.uid = user.id;
+        token.roles = (user as { roles?: string[] }).roles ?? [];
+      }
+      return token;
+    },
+    session({ session, token }) {
+      const u = session.user as unknown as Record<string, unknown>;
+      u.id = token.uid;
+      u.roles = token.roles;
+      return session;
+    },
+  },
+});

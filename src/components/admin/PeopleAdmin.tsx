@@ -1,0 +1,98 @@
+import { useState } from 'react';
+import { api } from '../../lib/shared/api-client';
+import { ROLE_LABELS, ROLES, type Role } from '../../lib/shared/roles';
+
+interface Person { id: string; email: string; name: string; roles: Role[]; active: boolean; isDemo: boolean; hasPassword: boolean }
+
+export default function PeopleAdmin({ initial, selfId }: { initial: Person[]; selfId: string }) {
+  const [people, setPeople] = useState(initial);
+  const [message, setMessage] = useState<{ kind: 'ok' | 'error'; text: string } | null>(null);
+  const [inviteRoles, setInviteRoles] = useState<Role[]>(['technician']);
+
+  async function refresh() {
+    const r = await api<{ users: Person[] }>('/api/admin/users');
+    if (r.data) setPeople(r.data.users);
+  }
+
+  async function invite(e: React.FormEvent<HTMLFormElement>) {
+    e.preventDefault();
+    const f = new FormData(e.currentTarget);
+    const form = e.currentTarget;
+    const r = await api<{ user: Person }>('/api/admin/users', { method: 'POST', json: { email: f.get('email'), name: f.get('name'), roles: inviteRoles } });
+    if (r.error) {
+      setMessage({ kind: 'error', text: [r.error.error, ...r.error.errors.map((x) => `${x.field ?? ''}: ${x.message}`)].join(' ') });
+      return;
+    }
+    form.reset();
+    setMessage({ kind: 'ok', text: `Invitation sent to ${r.data.user.email}.` });
+    await refresh();
+  }
+
+  async function patch(p: Person, change: Partial<Pick<Person, 'roles' | 'active'>>) {
+    const r = await api<{ user: Person }>(`/api/admin/users/${p.id}`, { method: 'PATCH', json: change });
+    if (r.error) setMessage({ kind: 'error', text: r.error.error });
+    else {
+      setMessage({ kind: 'ok', text: `Saved ${p.email}.` });
+      await refresh();
+    }
+  }
+
+  const toggle = (list: Role[], role: Role) => (list.includes(role) ? list.filter((r) => r !== role) : [...list, role]);
+
+  return (
+    <div className="flex flex-col gap-6">
+      <form onSubmit={invite} className="card flex flex-col gap-3" aria-label="Invite a person">
+        <h2>Invite a person</h2>
+        <div className="grid gap-3 sm:grid-cols-2">
+          <label className="field"><span>E-mail</span><input className="input" name="email" type="email" required /></label>
+          <label className="field"><span>Name</span><input className="input" name="name" required /></label>
+        </div>
+        <fieldset className="flex flex-wrap gap-4">
+          <legend className="mb-1 text-sm font-semibold text-ink-soft">Roles</legend>
+          {ROLES.map((role) => (
+            <label key={role} className="flex min-h-10 items-center gap-2">
+              <input type="checkbox" name={`invite-${role}`} checked={inviteRoles.includes(role)} onChange={() => setInviteRoles(toggle(inviteRoles, role))} />
+              {ROLE_LABELS[role]}
+            </label>
+          ))}
+        </fieldset>
+        <button className="btn self-start" type="submit">Send invitation</button>
+      </form>
+      {message && <p role="status" className={message.kind === 'ok' ? 'notice' : 'notice notice-error'}>{message.text}</p>}
+      <div className="card overflow-x-auto">
+        <table className="data-table">
+          <thead>
+            <tr><th>Person</th>{ROLES.map((r) => <th key={r}>{ROLE_LABELS[r]}</th>)}<th>Status</th><th /></tr>
+          </thead>
+          <tbody>
+            {people.map((p) => (
+              <tr key={p.id} data-person={p.email}>
+                <td><div className="font-semibold">{p.name}</div><div className="text-sm text-ink-soft">{p.email}{p.isDemo ? ' · demo' : ''}</div></td>
+                {ROLES.map((role) => (
+                  <td key={role}>
+                    <input
+                      type="checkbox"
+                      aria-label={`${ROLE_LABELS[role]} for ${p.email}`}
+                      checked={p.roles.includes(role)}
+                      disabled={p.id === selfId && role === 'admin'}
+                      onChange={() => patch(p, { roles: toggle(p.roles, role) })}
+                      className="h-5 w-5"
+                    />
+                  </td>
+                ))}
+                <td>{p.active ? (p.hasPassword ? '● Active' : '◌ Invited') : '✕ Deactivated'}</td>
+                <td>
+                  {p.id !== selfId && (
+                    <button className="btn btn-quiet" type="button" onClick={() => patch(p, { active: !p.active })}>
+                      {p.active ? 'Deactivate' : 'Reactivate'}
+                    </button>
+                  )}
+                </td>
+              </tr>
+            ))}
+          </tbody>
+        </table>
+      </div>
+    </div>
+  );
+}

@@ -1,0 +1,64 @@
+import { useState, type FormEvent } from 'react';
+
+/** Posts credentials to Auth.js (with its CSRF token) and goes to `next` on success. */
+export default function SignInForm({ next, initialError }: { next: string; initialError?: string }) {
+  const [error, setError] = useState(initialError ?? '');
+  const [busy, setBusy] = useState(false);
+
+  async function submit(e: FormEvent<HTMLFormElement>) {
+    e.preventDefault();
+    setBusy(true);
+    setError('');
+    const form = new FormData(e.currentTarget);
+    try {
+      const { csrfToken } = await (await fetch('/api/auth/csrf')).json();
+      const res = await fetch('/api/auth/callback/credentials', {
+        method: 'POST',
+        headers: { 'content-type': 'application/x-www-form-urlencoded', 'x-auth-return-redirect': '1' },
+        body: new URLSearchParams({
+          csrfToken,
+          email: String(form.get('email') ?? ''),
+          password: String(form.get('password') ?? ''),
+          callbackUrl: next,
+        }),
+      });
+      const body = (await res.json().catch(() => ({}))) as { url?: string };
+      const url = new URL(body.url ?? '/signin?error=unknown', location.origin);
+      const code = url.searchParams.get('code');
+      if (url.searchParams.get('error') || !res.ok) {
+        setError(
+          code === 'rate_limited'
+            ? 'Too many failed sign-ins for this address. Wait 15 minutes, or ask an administrator.'
+            : 'E-mail or password is not right, or the account is not active.',
+        );
+        setBusy(false);
+        return;
+      }
+      location.href = next;
+    } catch {
+      setError('The server could not be reached. Check the connection and try again.');
+      setBusy(false);
+    }
+  }
+
+  return (
+    <form onSubmit={submit} className="flex flex-col gap-4" noValidate>
+      <label className="field">
+        <span>E-mail</span>
+        <input className="input" name="email" type="email" autoComplete="username" required />
+      </label>
+      <label className="field">
+        <span>Password</span>
+        <input className="input" name="password" type="password" autoComplete="current-password" required />
+      </label>
+      {error && (
+        <p role="alert" className="notice notice-error">
+          {error}
+        </p>
+      )}
+      <button className="btn" type="submit" disabled={busy}>
+        {busy ? 'Signing in…' : 'Sign in'}
+      </button>
+    </form>
+  );
+}

@@ -1,0 +1,219 @@
+/**
+ * Levenberg–Marquardt for least squares problems that provide their own normal equations.
+ *
+ * The problem accumulates A = JᵀWJ and g = JᵀW r directly (for the arm, pose by pose into flat
+ * buffers, never forming J), so memory and time stay linear in the number of residuals.
+ *
+ * Method (Moré 1978 scaling, Nielsen 1999 damping update, as described in Madsen, Nielsen & Tingleff,
+ * "Methods for non-linear least squares problems", 2004):
+ *   - column scaling D_j = max over iterations of sqrt(A_jj) (MINPACK's rule), so mm and rad columns are
+ *     comparable; the step solves (D⁻¹AD⁻¹ + λI)·(Dδ) = −D⁻¹g by Cholesky (ml-matrix), never an inverse;
+ *   - gain ratio ρ = actual / predicted reduction; accepted steps scale λ by max(1/3, 1 − (2ρ − 1)³),
+ *     rejected ones multiply it by ν (ν doubling);
+ *   - stop when the scaled gradient ‖D⁻¹g‖∞ / ‖r‖ ≤ gradientTolerance (MINPACK's gtol: cosine between the
+ *     residual and every column), the relative cost reduction ≤ costTolerance, the scaled step
+ *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance), no step lowers the cost, or maxIterations;
+ *   - robust losses by iteratively reweighted least squares: the problem's `reweight(x)` recomputes the
+ *     weights once per accepted iteration (Holland & Welsch 1977).
+ */
+import { CholeskyDecomposition, Matrix } from 'ml-matrix';
+
+export interface LeastSquaresProblem {
+  /** Number of parameters p. */
+  readonly size: number;
+  /** Cost ½ Σ w_i r_i² at x. */
+  cost(x: Float64Array): number;
+  /** Fill A (p×p row-major; at least the upper triangle) = JᵀWJ and g = JᵀW r at x; return the cost at x. */
+  normalEquations(x: Float64Array, A: Float64Array, g: Float64Array): number;
+  /** Optional IRLS step: recompute the robust weights at x. */
+  reweight?(x: Float64Array): void;
+}
+
+export interface LmIteration {
+  iteration: number;
+  cost: number;
+  rmsMm: number;
+  lambda: number;
+  stepNorm: number;
+}
+
+export interface LmOptions {
+  /** Maximum accepted-or-not outer iterations. Default 50. */
+  maxIterations?: number;
+  /** Default 1e-10. */
+  gradientTolerance?: number;
+  /** Relative cost reduction that counts as no progress. Default 1e-10. */
+  costTolerance?: number;
+  /** Relative scaled step. Default 1e-10. */
+  stepTolerance?: number;
+  /** Initial λ relative to the unit-diagonal scaled normal matrix. Default 1e-3. */
+  initialDamping?: number;
+  /** Maps a cost to the RMS shown in progress reports. Default sqrt(2·cost). */
+  rmsOf?: (cost: number) => number;
+  /** Called with iteration 0 (the start) and after every accepted step. */
+  onIteration?: (it: LmIteration) => void;
+}
+
+export type LmStop = 'gradient' | 'cost' | 'step' | 'no-decrease' | 'iterations';
+
+export interface LmResult {
+  x: Float64Array;
+  cost: number;
+  iterations: LmIteration[];
+  stop: LmStop;
+  stopReason: string;
+  converged: boolean;
+  evaluations: { cost: number; normal: number };
+}
+
+const REASONS: Record<LmStop, string> = {
+  gradient: 'converged: the gradient is zero within tolerance (residuals orthogonal to every parameter direction)',
+  cost: 'converged: the last step lowered the cost by less than the relative tolerance',
+  step: 'converged: the last step was smaller than the relative tolerance',
+  'no-decrease': 'converged: no step lowers the cost any further (floating-point limit)',
+  iterations: 'stopped: the iteration limit was reached before convergence',
+};
+
+export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<number>, options: LmOptions = {}): LmResult {
+  const maxIterations = options.maxIterations ?? 50;
+  const gtol = options.gradientTolerance ?? 1e-10;
+  const ftol = options.costTolerance ?? 1e-10;
+  const xtol = options.stepTolerance ?? 1e-10;
+  const rmsOf = options.rmsOf ?? ((c: number) => Math.sqrt(2 * c));
+  const p = problem.size;
+  const x = Float64Array.from(x0);
+  const xn = new Float64Array(p);
+  const A = new Float64Array(p * p);
+  const g = new Float64Array(p);
+  const D = new Float64Array(p);
+  const M = new Matrix(p, p);
+  const b = new Matrix(p, 1);
+  const evaluations = { cost: 0, normal: 0 };
+  const iterations: LmIteration[] = [];
+  const report = (it: LmIteration) => {
+    iterations.push(it);
+    options.onIteration?.(it);
+  };
+
+  problem.reweight?.(x);
+  let cost = problem.normalEquations(x, A, g);
+  evaluations.normal++;
+  let lambda = options.initialDamping ?? 1e-3;
+  let nu = 2;
+  report({ iteration: 0, cost, rmsMm: rmsOf(cost), lambda, stepNorm: 0 });
+  let stop: LmStop = 'iterations';
+
+  outer: for (let iter = 1; iter <= maxIterations; iter++) {
+    for (let i = 0; i < p; i++) {
+      const dj = Math.sqrt(Math.max(A[i * p + i], 0));
+      if (dj > D[i]) D[i] = dj;
+    }
+    let gmax = 0;
+    const rnorm = Math.sqrt(2 * cost);
+    for (let i = 0; i < p; i++) if (D[i] > 0) gmax = Math.max(gmax, Math.abs(g[i]) / D[i]);
+    if (rnorm === 0 || gmax <= gtol * rnorm) {
+      stop = 'gradient';
+      break;
+    }
+    // Inner loop: raise λ until a step lowers the cost.
+    for (;;) {
+      for (let i = 0; i < p; i++) {
+        const di = D[i] > 0 ? D[i] : 1;
+        for (let j = i; j < p; j++) {
+          const dj = D[j] > 0 ? D[j] : 1;
+          const val = A[i * p + j] / (di * dj);
+          M.set(i, j, val);
+          M.set(j, i, val);
+        }
+        M.set(i, i, M.get(i, i) + lambda);
+        b.set(i, 0, -g[i] / di);
+      }
+      const chol = new CholeskyDecomposition(M);
+      if (!chol.isPositiveDefinite()) {
+        lambda *= nu;
+        nu *= 2;
+        if (lambda > 1e16) { stop = 'no-decrease'; break outer; }
+        continue;
+      }
+      const ds = chol.solve(b);
+      let stepScaled2 = 0, xScaled2 = 0, predicted = 0;
+      for (let i = 0; i < p; i++) {
+        const di = D[i] > 0 ? D[i] : 1;
+        const s = ds.get(i, 0);
+        xn[i] = x[i] + s / di;
+        stepScaled2 += s * s;
+        xScaled2 += (di * x[i]) ** 2;
+        predicted += b.get(i, 0) * s + lambda * s * s;
+      }
+      predicted *= 0.5;
+      const stepNorm = Math.sqrt(stepScaled2);
+      const costN = problem.cost(xn);
+      evaluations.cost++;
+      const rho = predicted > 0 ? (cost - costN) / predicted : -1;
+      if (rho > 0 && costN < cost) {
+        lambda *= Math.max(1 / 3, 1 - (2 * rho - 1) ** 3);
+        nu = 2;
+        const reduction = cost - costN;
+        const costBefore = cost;
+        x.set(xn);
+        problem.reweight?.(x);
+        cost = problem.normalEquations(x, A, g);
+        evaluations.normal++;
+        report({ iteration: iter, cost, rmsMm: rmsOf(cost), lambda, stepNorm });
+        if (reduction <= ftol * costBefore) { stop = 'cost'; break outer; }
+        if (stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'step'; break outer; }
+        break;
+      }
+      lambda *= nu;
+      nu *= 2;
+      if (lambda > 1e16 || stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'no-decrease'; break outer; }
+    }
+  }
+  return { x, cost, iterations, stop, stopReason: REASONS[stop], converged: stop !== 'iterations', evaluations };
+}
+
+/** IRLS weight of a residual of size e for a robust loss with scale k (Huber 1964; Cauchy / Lorentzian). */
+export function robustWeight(kind: 'none' | 'huber' | 'cauchy', e: number, k: number): number {
+  if (kind === 'huber') return e <= k ? 1 : k / e;
+  if (kind === 'cauchy') return 1 / (1 + (e / k) ** 2);
+  return 1;
+}
+
+/**
+ * Adapter for small dense problems (tests, curve fits): residuals r(x) (length m) and Jacobian J(x)
+ * (m×p row-major), optional per-residual weights.
+ */
+export function denseProblem(
+  size: number,
+  residuals: (x: Float64Array) => ArrayLike<number>,
+  jacobian: (x: Float64Array) => ArrayLike<number>,
+  weights?: ArrayLike<number>,
+): LeastSquaresProblem {
+  const cost = (x: Float64Array) => {
+    const r = residuals(x);
+    let c = 0;
+    for (let i = 0; i < r.length; i++) c += (weights ? weights[i] : 1) * r[i] * r[i];
+    return 0.5 * c;
+  };
+  return {
+    size,
+    cost,
+    normalEquations(x, A, g) {
+      const r = residuals(x);
+      const J = jacobian(x);
+      A.fill(0);
+      g.fill(0);
+      let c = 0;
+      for (let i = 0; i < r.length; i++) {
+        const w = weights ? weights[i] : 1;
+        c += w * r[i] * r[i];
+        for (let a = 0; a < size; a++) {
+          const ja = w * J[i * size + a];
+          g[a] += ja * r[i];
+          for (let bb = a; bb < size; bb++) A[a * size + bb] += ja * J[i * size + bb];
+        }
+      }
+      return 0.5 * c;
+    },
+  };
+}

@@ -1,0 +1,107 @@
+import { ROLES, type Role } from './roles';
+
+/**
+ * The access table: every API route and page prefix with the roles allowed per method. src/middleware.ts
+ * enforces it before any endpoint runs; tests/integration/route-roles.test.ts enumerates src/pages/api and
+ * fails for any endpoint file missing here, then checks anonymous → 401 and every other role → 403.
+ * 'public' = no sign-in; 'signed-in' = any active user.
+ */
+export type Access = 'public' | 'signed-in' | readonly Role[];
+export type Method = 'GET' | 'POST' | 'PUT' | 'PATCH' | 'DELETE';
+
+export interface RouteRule {
+  /** Path pattern in the file-route form of src/pages/api: /api/units/[serial] */
+  pattern: string;
+  methods: Partial<Record<Method, Access>>;
+}
+
+const ALL = ROLES;
+const ENGINEERING: readonly Role[] = ['technician', 'engineer', 'quality', 'admin'];
+const FIT_RUNNERS: readonly Role[] = ['technician', 'engineer', 'admin'];
+const REVIEWERS: readonly Role[] = ['engineer', 'admin'];
+const MODEL_EDITORS: readonly Role[] = ['engineer', 'admin'];
+const EXPORTERS: readonly Role[] = ['service', 'admin'];
+const FLEET_VIEWERS: readonly Role[] = ['quality', 'engineer', 'admin'];
+
+export const API_ROUTES: readonly RouteRule[] = [
+  { pattern: '/api/health', methods: { GET: 'public' } },
+  { pattern: '/api/me', methods: { GET: 'signed-in' } },
+  { pattern: '/api/invitations/[token]', methods: { GET: 'public', POST: 'public' } },
+  { pattern: '/api/tokens', methods: { GET: 'signed-in', POST: 'signed-in' } },
+  { pattern: '/api/tokens/[id]', methods: { DELETE: 'signed-in' } },
+  { pattern: '/api/admin/users', methods: { GET: ['admin'], POST: ['admin'] } },
+  { pattern: '/api/admin/users/[id]', methods: { PATCH: ['admin'] } },
+  { pattern: '/api/admin/mail', methods: { GET: ['admin'] } },
+  // Arm models, units, sessions (issue 4)
+  { pattern: '/api/arm-models', methods: { GET: ENGINEERING, POST: MODEL_EDITORS } },
+  { pattern: '/api/arm-models/[id]', methods: { GET: [...ENGINEERING, 'service'], PUT: MODEL_EDITORS } },
+  { pattern: '/api/arm-models/[id]/geometry', methods: { GET: ENGINEERING } },
+  { pattern: '/api/units', methods: { GET: ALL, POST: ['technician', 'engineer', 'admin'] } },
+  { pattern: '/api/units/[serial]', methods: { GET: ALL } },
+  { pattern: '/api/units/[serial]/pose-plan', methods: { GET: FIT_RUNNERS, POST: FIT_RUNNERS } },
+  { pattern: '/api/sessions', methods: { GET: ENGINEERING, POST: ['technician', 'engineer', 'admin'] } },
+  { pattern: '/api/sessions/uploads', methods: { POST: ['technician', 'engineer', 'admin'] } },
+  { pattern: '/api/sessions/[id]', methods: { GET: ENGINEERING } },
+  { pattern: '/api/sessions/[id]/file', methods: { GET: ENGINEERING } },
+  { pattern: '/api/sessions/[id]/poses', methods: { GET: ENGINEERING } },
+  { pattern: '/api/sessions/[id]/check', methods: { GET: ENGINEERING } },
+  // Fits and reviews (issue 5)
+  { pattern: '/api/sessions/[id]/fits', methods: { GET: ENGINEERING, POST: FIT_RUNNERS } },
+  { pattern: '/api/fits', methods: { GET: ENGINEERING } },
+  { pattern: '/api/fits/[id]', methods: { GET: ENGINEERING } },
+  { pattern: '/api/fits/[id]/submit', methods: { POST: FIT_RUNNERS } },
+  { pattern: '/api/fits/[id]/approve', methods: { POST: REVIEWERS } },
+  { pattern: '/api/fits/[id]/reject', methods: { POST: REVIEWERS } },
+  { pattern: '/api/fits/[id]/refit', methods: { POST: FIT_RUNNERS } },
+  { pattern: '/api/units/[serial]/parameter-sets', methods: { GET: ALL } },
+  { pattern: '/api/units/[serial]/compare', methods: { GET: ENGINEERING } },
+  { pattern: '/api/units/[serial]/history', methods: { GET: ALL } },
+  // Fleet, drift and exports (issue 6)
+  { pattern: '/api/arm-models/[id]/fleet', methods: { GET: FLEET_VIEWERS } },
+  { pattern: '/api/arm-models/[id]/tolerances', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
+  { pattern: '/api/units/[serial]/drift', methods: { GET: FLEET_VIEWERS } },
+  { pattern: '/api/alerts', methods: { GET: FLEET_VIEWERS } },
+  { pattern: '/api/alerts/[id]/acknowledge', methods: { POST: FLEET_VIEWERS } },
+  { pattern: '/api/parameter-sets/[id]/export', methods: { GET: EXPORTERS } },
+  { pattern: '/api/exports', methods: { GET: ['service', 'quality', 'admin'], POST: EXPORTERS } },
+];
+
+/** Page prefixes that need more than a signed-in user; the longest matching prefix wins. */
+export const PAGE_RULES: readonly { prefix: string; roles: Access }[] = [
+  { prefix: '/signin', roles: 'public' },
+  { prefix: '/invite/', roles: 'public' },
+  { prefix: '/admin', roles: ['admin'] },
+  { prefix: '/sessions', roles: ENGINEERING },
+  { prefix: '/fits', roles: ENGINEERING },
+  { prefix: '/reviews', roles: REVIEWERS },
+  { prefix: '/fleet', roles: FLEET_VIEWERS },
+  { prefix: '/exports', roles: ['service', 'quality', 'admin'] },
+  { prefix: '/arm-models', roles: ENGINEERING },
+  { prefix: '/units', roles: ALL },
+  { prefix: '/account', roles: 'signed-in' },
+];
+
+const compiled = API_ROUTES.map((r) => ({
+  rule: r,
+  regex: new RegExp('^' + r.pattern.replace(/\[\.\.\.[^\]]+\]/g, '.+').replace(/\[[^\]]+\]/g, '[^/]+') + '/?$'),
+  // Static segments win over parameters: /api/sessions/uploads before /api/sessions/[id].
+  score: r.pattern.split('/').filter((s) => !s.startsWith('[')).length,
+})).sort((a, b) => b.score - a.score);
+
+export function matchApiRoute(pathname: string): RouteRule | undefined {
+  return compiled.find((c) => c.regex.test(pathname))?.rule;
+}
+
+export function pageAccess(pathname: string): Access {
+  let best: { prefix: string; roles: Access } | undefined;
+  for (const rule of PAGE_RULES) {
+    const hit = pathname === rule.prefix || pathname.startsWith(rule.prefix.endsWith('/') ? rule.prefix : rule.prefix + '/') || (rule.prefix.endsWith('/') && pathname.startsWith(rule.prefix));
+    if (hit && (!best || rule.prefix.length > best.prefix.length)) best = rule;
+  }
+  return best?.roles ?? 'signed-in';
+}
+
+export function allows(access: Access, roles: readonly string[]): boolean {
+  if (access === 'public' || access === 'signed-in') return true;
+  return roles.some((r) => (access as readonly string[]).includes(r));
+}

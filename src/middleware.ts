@@ -1,0 +1,110 @@
+import { defineMiddleware, sequence } from 'astro:middleware';
+import { getSession } from 'auth-astro/server';
+import { randomUUID } from 'node:crypto';
+import { allows, matchApiRoute, pageAccess, type Method } from './lib/shared/routes';
+import { config } from './lib/server/config';
+import { isServiceUnavailable, json } from './lib/server/http';
+import { log } from './lib/server/log';
+import { activeUserById, userByBearer } from './lib/server/users';
+import { startBackground } from './lib/server/background';
+
+const isApi = (path: string) => path === '/api' || path.startsWith('/api/');
+const isAuthRoute = (path: string) => path.startsWith('/api/auth/');
+const UNSAFE = new Set(['POST', 'PUT', 'PATCH', 'DELETE']);
+
+/** Request id, structured access log, and a clean 503 when PostgreSQL (or S3) is away. */
+const observe = defineMiddleware(async (context, next) => {
+  startBackground();
+  const started = performance.now();
+  const incoming = context.request.headers.get('x-request-id');
+  context.locals.requestId = incoming && /^[\w.-]{1,100}$/.test(incoming) ? incoming : randomUUID();
+  let response: Response;
+  try {
+    response = await next();
+  } catch (err) {
+    if (isServiceUnavailable(err)) {
+      log('warn', 'service unavailable', { requestId: context.locals.requestId, path: context.url.pathname, error: String(err) });
+      response = json({ error: 'A backing service is unavailable; try again shortly.' }, 503, { 'retry-after': '5' });
+    } else {
+      log('error', 'unhandled error', { requestId: context.locals.requestId, path: context.url.pathname, error: String((err as Error)?.stack ?? err) });
+      response = isApi(context.url.pathname)
+        ? json({ error: 'Internal error.', requestId: context.locals.requestId }, 500)
+        : new Response('Internal error. Request id: ' + context.locals.requestId, { status: 500 });
+    }
+  }
+  try {
+    response.headers.set('x-request-id', context.locals.requestId);
+  } catch {
+    // Some responses (redirects from Response.redirect) have immutable headers.
+  }
+  log('info', 'request', {
+    requestId: context.locals.requestId,
+    method: context.request.method,
+    path: context.url.pathname,
+    status: response.status,
+    ms: Math.round(performance.now() - started),
+    user: context.locals.user?.id,
+  });
+  return response;
+});
+
+/**
+ * Refuse cross-site state changes made with the session cookie: the Origin (or Sec-Fetch-Site) must be this
+ * app's. Bearer-token calls carry no ambient credential and are exempt.
+ */
+const sameOrigin = defineMiddleware(async (context, next) => {
+  const req = context.request;
+  if (!UNSAFE.has(req.method) || req.headers.get('authorization')?.startsWith('Bearer ')) return next();
+  const origin = req.headers.get('origin');
+  const allowed = new Set([new URL(config().PUBLIC_BASE_URL).origin, context.url.origin]);
+  const fetchSite = req.headers.get('sec-fetch-site');
+  const ok = origin ? allowed.has(origin) : fetchSite === 'same-origin';
+  if (ok) return next();
+  return json({ error: 'Cross-site request refused: state-changing requests must come from this application (Origin header).' }, 403);
+});
+
+/** Resolve the user once: bearer token first, else the Auth.js session cookie. */
+const resolveUser = defineMiddleware(async (context, next) => {
+  if (isAuthRoute(context.url.pathname)) return next();
+  const authz = context.request.headers.get('authorization');
+  if (authz?.startsWith('Bearer ')) {
+    context.locals.user = await userByBearer(authz.slice(7).trim());
+    if (!context.locals.user) return json({ error: 'The bearer token is unknown, revoked, or its user is deactivated.' }, 401);
+    return next();
+  }
+  const session = await getSession(context.request);
+  const id = (session?.user as { id?: string } | undefined)?.id;
+  if (id) context.locals.user = await activeUserById(id);
+  return next();
+});
+
+/** Enforce the access table for every API route and page. */
+const guard = defineMiddleware(async (context, next) => {
+  const path = context.url.pathname;
+  if (isAuthRoute(path)) return next();
+  const user = context.locals.user;
+  if (isApi(path)) {
+    const rule = matchApiRoute(path);
+    if (!rule) return json({ error: `No API route ${path}.` }, 404);
+    const access = rule.methods[context.request.method as Method];
+    if (!access) {
+      return json({ error: `Method ${context.request.method} is not allowed on ${path}.` }, 405, { allow: Object.keys(rule.methods).join(', ') });
+    }
+    if (access === 'public') return next();
+    if (!user) return json({ error: 'Sign in or send an API token (Authorization: Bearer …).' }, 401);
+    if (!allows(access, user.roles)) {
+      return json({ error: `Your roles (${user.roles.join(', ')}) do not allow ${context.request.method} ${path}.`, allowedRoles: access }, 403);
+    }
+    return next();
+  }
+  const access = pageAccess(path);
+  if (access === 'public') return next();
+  if (!user) {
+    const nextUrl = path + context.url.search;
+    return context.redirect(`/signin?next=${encodeURIComponent(nextUrl)}`, 303);
+  }
+  if (!allows(access, user.roles)) return next('/forbidden');
+  return next();
+});
+
+export const onRequest = sequence(observe, sameOrigin, resolveUser, guard);
