@@ -1,0 +1,43 @@
+import { chromium, type Browser, type Page } from 'playwright-core';
+import { mkdtempSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { BASE_URL, DEMO_PASSWORD } from './http';
+
+/**
+ * Debian's chromium driven by playwright-core (never a downloaded browser). The flags keep Chromium from
+ * reaching for the network, which this machine does not have (stack-notes).
+ */
+export async function launchBrowser(): Promise<Browser> {
+  return chromium.launch({
+    executablePath: process.env.CHROMIUM_PATH ?? '/usr/bin/chromium',
+    headless: true,
+    args: [
+      '--no-sandbox',
+      '--disable-gpu',
+      '--disable-quic',
+      '--disable-background-networking',
+      '--disable-component-update',
+      '--disable-sync',
+      '--no-first-run',
+      `--user-data-dir=${mkdtempSync(join(tmpdir(), 'offsetry-chromium-'))}`,
+    ],
+  });
+}
+
+/** Record every request a page makes that leaves 127.0.0.1 (there must be none). */
+export function trackExternalRequests(page: Page): string[] {
+  const external: string[] = [];
+  page.on('request', (req) => {
+    const url = new URL(req.url());
+    if (!['127.0.0.1', 'localhost'].includes(url.hostname) && !['data:', 'blob:'].includes(url.protocol)) external.push(req.url());
+  });
+  return external;
+}
+
+export async function signInPage(page: Page, email: string, password = DEMO_PASSWORD) {
+  await page.goto(`${BASE_URL}/signin`);
+  await page.getByLabel('E-mail').fill(email);
+  await page.getByLabel('Password').fill(password);
+  await Promise.all([page.waitForURL((u) => !u.pathname.startsWith('/signin'), { timeout: 20_000 }), page.getByRole('button', { name: 'Sign in' }).click()]);
+}
