@@ -114,6 +114,7 @@ function readJson(text: string): Located {
       const c = text.charCodeAt(i);
       if (c === 10) { line++; i++; lineStart = i; }
       else if (c === 32 || c === 9 || c === 13) i++;
+      else if (c === 47 && (text[i + 1] === '/' || text[i + 1] === '*')) fail('comments are not allowed in JSON');
       else break;
     }
   };
@@ -206,7 +207,6 @@ function readJson(text: string): Located {
     if (text.startsWith('true', i)) { i += 4; return true; }
     if (text.startsWith('false', i)) { i += 5; return false; }
     if (text.startsWith('null', i)) { i += 4; return null; }
-    if (c === '/' ) fail('comments are not allowed in JSON');
     if (text.startsWith('NaN', i) || text.startsWith('Infinity', i) || text.startsWith('-Infinity', i)) fail('NaN and Infinity are not JSON numbers');
     if (c === "'") fail('strings must use double quotes');
     return num();
