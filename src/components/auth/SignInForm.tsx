@@ -1,9 +1,12 @@
-import { useState, type FormEvent } from 'react';
+import { useEffect, useState, type FormEvent } from 'react';
 
 /** Posts credentials to Auth.js (with its CSRF token) and goes to `next` on success. */
 export default function SignInForm({ next, initialError }: { next: string; initialError?: string }) {
   const [error, setError] = useState(initialError ?? '');
   const [busy, setBusy] = useState(false);
+  // Until the island is hydrated the button stays disabled, so a native submit can never put the password in a URL.
+  const [ready, setReady] = useState(false);
+  useEffect(() => setReady(true), []);
 
   async function submit(e: FormEvent<HTMLFormElement>) {
     e.preventDefault();
@@ -42,7 +45,7 @@ export default function SignInForm({ next, initialError }: { next: string; initi
   }
 
   return (
-    <form onSubmit={submit} className="flex flex-col gap-4" noValidate>
+    <form onSubmit={submit} method="post" className="flex flex-col gap-4" noValidate>
       <label className="field">
         <span>E-mail</span>
         <input className="input" name="email" type="email" autoComplete="username" required />
@@ -56,7 +59,7 @@ export default function SignInForm({ next, initialError }: { next: string; initi
           {error}
         </p>
       )}
-      <button className="btn" type="submit" disabled={busy}>
+      <button className="btn" type="submit" disabled={busy || !ready}>
         {busy ? 'Signing in…' : 'Sign in'}
       </button>
     </form>
