@@ -7,8 +7,9 @@ class RateLimited extends CredentialsSignin {
   code = 'rate_limited';
 }
 
-const clientAddress = (request: Request) =>
-  request.headers.get('x-forwarded-for')?.split(',')[0]?.trim() || request.headers.get('x-real-ip') || 'direct';
+// Set by src/middleware.ts from the socket (or, with TRUST_PROXY, the forwarded address); any value the
+// client sent under this name has been overwritten there.
+const clientAddress = (request: Request) => request.headers.get('x-offsetry-client-address') || 'unknown';
 
 // AUTH_SECRET is read from the runtime environment, never from the build-time .env, so it is not baked
 // into dist/ (see stack-notes).

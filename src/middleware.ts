@@ -11,6 +11,7 @@ import { startBackground } from './lib/server/background';
 const isApi = (path: string) => path === '/api' || path.startsWith('/api/');
 const isAuthRoute = (path: string) => path.startsWith('/api/auth/');
 const UNSAFE = new Set(['POST', 'PUT', 'PATCH', 'DELETE']);
+export const CLIENT_HEADER = 'x-offsetry-client-address';
 
 /** Request id, structured access log, and a clean 503 when PostgreSQL (or S3) is away. */
 const observe = defineMiddleware(async (context, next) => {
@@ -18,6 +19,19 @@ const observe = defineMiddleware(async (context, next) => {
   const started = performance.now();
   const incoming = context.request.headers.get('x-request-id');
   context.locals.requestId = incoming && /^[\w.-]{1,100}$/.test(incoming) ? incoming : randomUUID();
+  // The client's address for sign-in rate limits; the forwarded address is trusted only behind our own proxy.
+  const forwarded = config().TRUST_PROXY ? context.request.headers.get('x-forwarded-for')?.split(',')[0]?.trim() : undefined;
+  let address = forwarded || 'unknown';
+  try {
+    address = forwarded || context.clientAddress;
+  } catch {
+    // clientAddress is unavailable in some contexts (prerendering); keep 'unknown'.
+  }
+  try {
+    context.request.headers.set(CLIENT_HEADER, address);
+  } catch {
+    // Immutable headers: the auth route then falls back to 'unknown'.
+  }
   let response: Response;
   try {
     response = await next();

@@ -31,6 +31,8 @@ const schema = z.object({
   MAX_UPLOAD_BYTES: z.coerce.number().int().positive().default(50 * 1024 * 1024),
   /** Four-eyes rule: the person who ran a fit cannot approve it (admins excepted). */
   FOUR_EYES: bool.default(true),
+  /** Behind our own load balancer: trust its X-Forwarded-For for the client address. */
+  TRUST_PROXY: bool.default(false),
   /** Run the fit job worker inside the app process (true) or only in separate worker processes. */
   RUN_WORKER: bool.default(true),
 });
