@@ -1,0 +1,22 @@
+#!/usr/bin/env node
+// npm run bench: prints figures; never fails on a target (targets are printed beside the figures).
+//   engine — fit time at 60 / 500 / 5 000 / 20 000 poses, beside ml-levenberg-marquardt and SciPy
+//   load   — HTTP load against a seeded app (scripts/bench-load.mjs), when present
+// Pass a name to run one: npm run bench -- engine
+import { spawnSync } from 'node:child_process';
+import { existsSync } from 'node:fs';
+
+const only = process.argv[2];
+const parts = [
+  { name: 'engine', cmd: ['npx', 'tsx', 'scripts/bench-engine.ts'] },
+  { name: 'load', cmd: ['node', 'scripts/bench-load.mjs'], file: 'scripts/bench-load.mjs' },
+];
+let status = 0;
+for (const p of parts) {
+  if (only && p.name !== only) continue;
+  if (p.file && !existsSync(p.file)) continue;
+  console.log(`\n=== bench: ${p.name} ===`);
+  const r = spawnSync(p.cmd[0], p.cmd.slice(1), { stdio: 'inherit' });
+  if (r.status !== 0) status = r.status ?? 1;
+}
+process.exit(status);
