@@ -40,7 +40,8 @@ const MAX_MESSAGE_BYTES = 25 * 1024 * 1024;
 fs.mkdirSync(dir, { recursive: true });
 
 /**
- * @typedef {{ id: string, from: string, to: string[], subject: string, date: string, size: number }} IndexEntry
+ * to: the envelope recipients joined with ", " (Bcc included); recipients: the same as a list.
+ * @typedef {{ id: string, from: string, to: string, recipients: string[], subject: string, date: string, size: number }} IndexEntry
  * @typedef {IndexEntry & { text: string, html: string | null }} MessageView
  */
 
@@ -226,11 +227,13 @@ const smtp = new SMTPServer({
         const raw = Buffer.concat(chunks);
         const parsed = await parseMessage(raw);
         const envelopeFrom = session.envelope.mailFrom ? session.envelope.mailFrom.address : '';
+        const recipients = session.envelope.rcptTo.map((r) => r.address);
         /** @type {IndexEntry} */
         const entry = {
           id: `${Date.now().toString(36)}-${crypto.randomBytes(4).toString('hex')}`,
           from: parsed.from || envelopeFrom,
-          to: session.envelope.rcptTo.map((r) => r.address),
+          to: recipients.join(', '),
+          recipients,
           subject: parsed.subject,
           date: new Date().toISOString(),
           size: raw.length,
@@ -238,7 +241,7 @@ const smtp = new SMTPServer({
         fs.writeFileSync(emlPath(entry.id), raw);
         fs.appendFileSync(indexFile, `${JSON.stringify(entry)}\n`);
         index.push(entry);
-        console.log(`mail-fake: captured ${entry.id} to ${entry.to.join(', ')}: ${entry.subject}`);
+        console.log(`mail-fake: captured ${entry.id} to ${entry.to}: ${entry.subject}`);
         callback(null, `captured as ${entry.id}`);
       } catch (error) {
         callback(error instanceof Error ? error : new Error(String(error)));

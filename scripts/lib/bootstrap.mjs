@@ -34,6 +34,8 @@ export async function ensureDependencies(root, log = (line) => console.log(line)
 }
 
 let aptUpdated = false;
+// Wait for another apt/dpkg run to finish instead of failing on its lock.
+const APT_WAIT = ['-o', 'DPkg::Lock::Timeout=300'];
 
 /**
  * apt-get install Debian packages (root only; one `apt-get update` per process), printing what it does.
@@ -48,9 +50,9 @@ export async function aptInstall(packages, why, log = (line) => console.log(line
   const env = { ...process.env, DEBIAN_FRONTEND: 'noninteractive' };
   if (!aptUpdated) {
     log(`${why}: running apt-get update …`);
-    await run('apt-get', ['update'], { env, inherit: true });
+    await run('apt-get', [...APT_WAIT, 'update'], { env, inherit: true });
     aptUpdated = true;
   }
   log(`${why}: running apt-get install -y ${packages.join(' ')} …`);
-  await run('apt-get', ['install', '-y', ...packages], { env, inherit: true });
+  await run('apt-get', [...APT_WAIT, 'install', '-y', ...packages], { env, inherit: true });
 }
