@@ -98,7 +98,7 @@ export function fitSummary(r: FitCliReport, ctx: { modelPath: string; dataPath: 
   for (const p of fixed) lines.push(`  ${p.key}: ${p.reason ?? 'not determined by the data'}`);
   if (r.highCorrelations.length) lines.push(`Strongly correlated pairs (|r| > 0.95): ${r.highCorrelations.map((c) => `${c.a}/${c.b} ${c.r.toFixed(3)}`).join(', ')}`);
   if (r.outliers.length) lines.push(`Outliers (standardised residual above threshold): ${r.outliers.join(', ')}`);
-  lines.push(`Iterations: ${r.iterations.length}${r.converged ? "" : " (NOT converged)"}: ${r.stopReason}; condition number ${r.observability.conditionNumber.toExponential(2)}.`);
+  lines.push(`Iterations: ${r.iterations.length}${r.converged ? '' : ' (NOT converged)'}: ${r.stopReason}; condition number ${r.observability.conditionNumber.toExponential(2)}.`);
   if (r.iso9283 && r.iso9283.poses.length) {
     lines.push(`ISO 9283, ${r.iso9283.poses.length} repeated poses (calibrated model as commanded position): AP ${mm(r.iso9283.ap)} (${r.iso9283.apPose}), RP ${mm(r.iso9283.rp)} (${r.iso9283.rpPose}).`);
   }

@@ -1,0 +1,235 @@
+/**
+ * The command line as a user runs it: `node bin/offsetry.mjs …` in a child process, real files in a
+ * temporary folder. Checks exit codes, messages (file, line, field) and that nothing is written on failure.
+ */
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { execFile } from 'node:child_process';
+import { existsSync, mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { parseGeometry } from '../../src/lib/engine/geometry';
+import { parseSessionCsv } from '../../src/lib/engine/session-csv';
+import { BAD_FILES, ROOT } from './make-test-data';
+
+const PROJECT = resolve(__dirname, '..', '..');
+const BIN = join(PROJECT, 'bin', 'offsetry.mjs');
+const VX = join(ROOT, 'vx-620-nominal.json');
+const VX_SESSION = join(ROOT, 'vx-620-session.csv');
+const LZ = join(ROOT, 'lz-410-nominal.json');
+const LZ_SESSION = join(ROOT, 'lz-410-session.csv');
+
+interface Run { code: number; stdout: string; stderr: string }
+
+function offsetry(args: string[], cwd = PROJECT): Promise<Run> {
+  return new Promise((done) => {
+    execFile(process.execPath, [BIN, ...args], { cwd, timeout: 60_000 }, (err, stdout, stderr) => {
+      const code = err ? (typeof err.code === 'number' ? err.code : -1) : 0;
+      done({ code, stdout, stderr });
+    });
+  });
+}
+
+/** Runs jobs a few at a time (2-core machine). */
+async function pool<T, R>(items: T[], width: number, job: (t: T) => Promise<R>): Promise<R[]> {
+  const out: R[] = new Array(items.length);
+  let next = 0;
+  await Promise.all(Array.from({ length: width }, async () => {
+    while (next < items.length) {
+      const k = next++;
+      out[k] = await job(items[k]);
+    }
+  }));
+  return out;
+}
+
+let dir: string;
+beforeAll(() => {
+  dir = mkdtempSync(join(tmpdir(), 'offsetry-cli-'));
+});
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+const noTempFiles = () => expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
+
+describe('offsetry --help and usage errors', () => {
+  it('--help lists the three commands and exits 0', async () => {
+    const r = await offsetry(['--help']);
+    expect(r.code).toBe(0);
+    for (const c of ['offsetry fit --model NOMINAL.json --data SESSION.csv --out CALIBRATED.json', 'offsetry check --model', 'offsetry plan --model GEOMETRY.json --count 60 --out POSES.csv']) {
+      expect(r.stdout).toContain(c);
+    }
+  });
+
+  it('no command, an unknown command, an unknown flag or a missing flag exit 2', async () => {
+    const [none, unknown, flag, missing, holdout] = await Promise.all([
+      offsetry([]),
+      offsetry(['calibrate']),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'x.json'), '--fast']),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION]),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'x.json'), '--holdout', '1.5']),
+    ]);
+    expect(none.code).toBe(2);
+    expect(unknown).toMatchObject({ code: 2, stderr: expect.stringMatching(/unknown command "calibrate"/) });
+    expect(flag).toMatchObject({ code: 2, stderr: expect.stringMatching(/--fast/) });
+    expect(missing).toMatchObject({ code: 2, stderr: expect.stringMatching(/missing --out/) });
+    expect(holdout).toMatchObject({ code: 2, stderr: expect.stringMatching(/--holdout: "1.5" is not valid/) });
+    expect(existsSync(join(dir, 'x.json'))).toBe(false);
+  });
+});
+
+describe('offsetry fit', () => {
+  it('fits the VX-620 sample: writes a full-precision geometry and the report, prints a summary', async () => {
+    const out = join(dir, 'vx-cal.json');
+    const rep = join(dir, 'vx-report.json');
+    const r = await offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--report', rep]);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/fit RMS\s+\d+\.\d{3} mm\s+\d+\.\d{3} mm/);
+    expect(r.stdout).toMatch(/hold-out RMS \(17\)/);
+    expect(r.stdout).toMatch(/\d+ identified, \d+ fixed at nominal:\n  \S+: \S/);
+    expect(r.stdout).toMatch(/\n  J1\.d: redundant/); // J1.d and the base z cannot be told apart
+    expect(r.stdout).toMatch(/ISO 9283, 5 repeated poses/);
+    const calibrated = parseGeometry(readFileSync(out, 'utf8'), out);
+    expect(calibrated.base).toBeDefined();
+    expect(calibrated.tool).toBeDefined();
+    const report = JSON.parse(readFileSync(rep, 'utf8'));
+    expect(report.calibrated).toEqual(calibrated);
+    expect(report.timing.totalMs).toBeGreaterThan(0);
+    expect(typeof report.engineVersion).toBe('string');
+    // The session was made with 0.02 mm noise per coordinate (3-D RMS ≈ 0.035 mm) on a geometry about
+    // 1 mm off the nominal: the held-out error must drop by more than an order of magnitude.
+    expect(report.statistics.holdout.before.rms).toBeGreaterThan(0.5);
+    expect(report.statistics.holdout.after.rms).toBeLessThan(0.06);
+    expect(report.iso9283.poses).toHaveLength(5);
+    noTempFiles();
+  });
+
+  it('fits the LZ-410 sample with a random hold-out and reports the rank-deficient parameters', async () => {
+    const out = join(dir, 'lz-cal.json');
+    const r = await offsetry(['fit', '--model', LZ, '--data', LZ_SESSION, '--out', out, '--holdout', '0.25', '--seed', '7']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/held out at random \(0\.25\)/);
+    expect(r.stdout).toMatch(/fixed at nominal:/);
+    expect(parseGeometry(readFileSync(out, 'utf8'), out).name).toBe('LZ-410');
+  });
+
+  it('every bad session file exits 1 naming the file and line, and writes nothing', async () => {
+    const names = Object.keys(BAD_FILES);
+    const runs = await pool(names, 3, (name) =>
+      offsetry(['fit', '--model', VX, '--data', join(ROOT, 'bad', name), '--out', join(dir, `bad-${name}.json`), '--report', join(dir, `bad-${name}.report.json`)]),
+    );
+    names.forEach((name, k) => {
+      const r = runs[k];
+      const spec = BAD_FILES[name];
+      expect(r.code, `${name}: ${r.stderr}`).toBe(1);
+      expect(r.stdout).toBe('');
+      expect(r.stderr).toContain(`cannot read the session file ${join(ROOT, 'bad', name)}`);
+      expect(r.stderr).toMatch(spec.problem);
+      if (spec.line !== undefined) expect(r.stderr).toContain(`line ${spec.line}`);
+      if (spec.column !== undefined) expect(r.stderr).toContain(`field ${spec.column}`);
+      expect(existsSync(join(dir, `bad-${name}.json`))).toBe(false);
+      expect(existsSync(join(dir, `bad-${name}.report.json`))).toBe(false);
+    });
+    noTempFiles();
+  }, 240_000); // ~30 process starts; slow when the machine is busy
+
+  it('bad geometry files exit 1 with line and field', async () => {
+    const cases: [string, RegExp][] = [
+      ['geometry-malformed.json', /line \d+: malformed JSON at column \d+/],
+      ['geometry-unknown-convention.json', /line 4, field convention: unknown convention/],
+      ['geometry-duplicate-joint.json', /field joints\[4\]\.name: joint name "J4" is used twice/],
+      ['geometry-missing-type.json', /field joints\[3\]\.type/],
+    ];
+    const runs = await Promise.all(cases.map(([f]) => offsetry(['fit', '--model', join(ROOT, 'bad', f), '--data', VX_SESSION, '--out', join(dir, `g-${f}`)])));
+    cases.forEach(([f, re], k) => {
+      expect(runs[k].code).toBe(1);
+      expect(runs[k].stderr).toContain(`cannot read the geometry file ${join(ROOT, 'bad', f)}`);
+      expect(runs[k].stderr).toMatch(re);
+      expect(existsSync(join(dir, `g-${f}`))).toBe(false);
+    });
+  });
+
+  it('joints outside the limits: refused (existing output kept), accepted with --allow-outside-limits', async () => {
+    const text = readFileSync(VX_SESSION, 'utf8').split('\n');
+    const cells = text[10].split(','); // line 11: P10, visited once
+    expect(cells[0]).toBe('P10');
+    cells[1] = '171.25'; // J1 limit is ±165
+    text[10] = cells.join(',');
+    const session = join(dir, 'outside.csv');
+    writeFileSync(session, text.join('\n'));
+    const out = join(dir, 'outside-cal.json');
+    writeFileSync(out, 'previous content');
+    const refused = await offsetry(['fit', '--model', VX, '--data', session, '--out', out]);
+    expect(refused.code).toBe(1);
+    expect(refused.stderr).toMatch(/line 11, field q1: joint J1 reading 171\.25 deg is outside the model's limits/);
+    expect(refused.stderr).toMatch(/--allow-outside-limits/);
+    expect(readFileSync(out, 'utf8')).toBe('previous content');
+    const accepted = await offsetry(['fit', '--model', VX, '--data', session, '--out', out, '--allow-outside-limits']);
+    expect(accepted.code, accepted.stderr).toBe(0);
+    expect(accepted.stderr).toMatch(/warning: .*line 11, field q1/);
+    expect(parseGeometry(readFileSync(out, 'utf8'), out).format).toBe('offsetry-arm/1');
+  });
+
+  it('fewer poses than identifiable parameters exits 1 and writes nothing', async () => {
+    const session = join(dir, 'few.csv');
+    writeFileSync(session, readFileSync(VX_SESSION, 'utf8').split('\n').slice(0, 9).join('\n') + '\n');
+    const out = join(dir, 'few-cal.json');
+    const r = await offsetry(['fit', '--model', VX, '--data', session, '--out', out, '--holdout', '0']);
+    expect(r.code).toBe(1);
+    expect(r.stderr).toMatch(/cannot fit .* to .*few\.csv/);
+    expect(r.stderr).toContain('few.csv');
+    expect(existsSync(out)).toBe(false);
+    noTempFiles();
+  });
+
+  it('a missing input file or output folder exits 1 before any work', async () => {
+    const [noModel, noDir] = await Promise.all([
+      offsetry(['fit', '--model', join(dir, 'nope.json'), '--data', VX_SESSION, '--out', join(dir, 'n.json')]),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'no-such-folder', 'n.json')]),
+    ]);
+    expect(noModel).toMatchObject({ code: 1, stderr: expect.stringMatching(/nope\.json: geometry file not found/) });
+    expect(noDir).toMatchObject({ code: 1, stderr: expect.stringMatching(/the folder .*no-such-folder does not exist/) });
+  });
+});
+
+describe('offsetry check', () => {
+  it('prints the nominal error statistics after registering the tracker frame', async () => {
+    const r = await offsetry(['check', '--model', VX, '--data', VX_SESSION]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/85 poses, measurement frame registered/);
+    const m = /RMS\s+mean\s+p95\s+max\n\s+(\d+\.\d+) mm/.exec(r.stdout);
+    expect(m).not.toBeNull();
+    expect(Number(m![1])).toBeGreaterThan(0.5); // the invented unit is about 1 mm off its nominal
+  });
+
+  it('a bad session exits 1 with the located problem', async () => {
+    const r = await offsetry(['check', '--model', VX, '--data', join(ROOT, 'bad', 'nan-cell.csv')]);
+    expect(r.code).toBe(1);
+    expect(r.stderr).toMatch(/nan-cell\.csv, line 2, field x: NaN is not a measured value/);
+  });
+});
+
+describe('offsetry plan', () => {
+  it('writes a pose plan that reads back as a session header with joints inside the limits', async () => {
+    const out = join(dir, 'plan.csv');
+    const r = await offsetry(['plan', '--model', VX, '--count', '30', '--out', out, '--seed', '3']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/Planned 30 poses/);
+    const text = readFileSync(out, 'utf8');
+    const lines = text.trim().split('\n');
+    expect(lines[0]).toBe('pose,q1,q2,q3,q4,q5,q6');
+    expect(lines).toHaveLength(31);
+    // a plan plus measured columns is a session: check limits with the session parser
+    const asSession = lines.map((l, k) => (k === 0 ? `${l},x,y,z` : `${l},0,0,0`)).join('\n');
+    const geometry = parseGeometry(readFileSync(VX, 'utf8'), VX);
+    const parsed = await parseSessionCsv(asSession, { fileName: 'plan.csv', geometry });
+    expect(parsed.ok).toBe(true);
+  });
+
+  it('a bad count exits 2 and writes nothing', async () => {
+    const out = join(dir, 'plan-bad.csv');
+    const r = await offsetry(['plan', '--model', VX, '--count', 'many', '--out', out]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/--count: "many" is not valid/);
+    expect(existsSync(out)).toBe(false);
+  });
+});
