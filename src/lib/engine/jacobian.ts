@@ -78,39 +78,104 @@ export function predictPoints(model: ArmModel, data: ArmData, v: ArrayLike<numbe
   }
 }
 
+/** Poses per block of the normal-equation accumulation (3 rows each): keeps the block in L1 cache. */
+const BLOCK = 32;
+
+/** Work buffers of accumulateNormalEquations for p parameters; allocate once, reuse. */
+export interface NormalWork {
+  p: number;
+  /** Block Jacobian, column-major by parameter: Jb[a·R + r], R = 3·BLOCK rows (√w-scaled). */
+  Jb: Float64Array;
+  /** Block residuals (√w-scaled). */
+  rb: Float64Array;
+}
+
+export function normalWork(p: number): NormalWork {
+  return { p, Jb: new Float64Array(p * 3 * BLOCK), rb: new Float64Array(3 * BLOCK) };
+}
+
 /**
  * Normal equations of the point residuals r_i = predicted_i − measured_i over the parameters `active`
- * (indices into the full vector v): A += Σ w_i J_iᵀJ_i (upper triangle, p×p row-major), g += Σ w_i J_iᵀ r_i.
- * A and g are cleared first. Returns ½ Σ w_i |r_i|². One pass, no per-pose allocation.
+ * (indices into the full vector v): A = Σ w_i J_iᵀJ_i (upper triangle, p×p row-major), g = Σ w_i J_iᵀ r_i.
+ * Returns ½ Σ w_i |r_i|². One pass; Jacobian rows of BLOCK poses are gathered column-major so that each
+ * entry of A is one contiguous dot product per block (no per-pose allocation, no full Jacobian).
  */
 export function accumulateNormalEquations(
   model: ArmModel, data: ArmData, v: ArrayLike<number>, poses: PoseBuffers, active: Int32Array,
-  A: Float64Array, g: Float64Array, J: Float64Array,
+  A: Float64Array, g: Float64Array, work: NormalWork,
 ): number {
   setParameters(model, data, v);
   const p = active.length, n = model.n, pt = data.point, m = poses.measured, w = poses.weights;
+  const motion = model.motion, ax = data.axis, pv = data.pivot;
+  const R = 3 * BLOCK, Jb = work.Jb, rb = work.rb;
   A.fill(0);
   g.fill(0);
   let cost = 0;
+  let rows = 0;
   for (let i = 0; i < poses.count; i++) {
     const wi = w[i];
     if (wi === 0) continue;
     forwardKinematics(model, data, poses.q, i * n, true);
-    pointJacobian(model, data, active, J);
-    const r0 = pt[0] - m[3 * i], r1 = pt[1] - m[3 * i + 1], r2 = pt[2] - m[3 * i + 2];
+    const sw = wi === 1 ? 1 : Math.sqrt(wi);
+    const px = pt[0], py = pt[1], pz = pt[2];
+    const r0 = px - m[3 * i], r1 = py - m[3 * i + 1], r2 = pz - m[3 * i + 2];
     cost += wi * (r0 * r0 + r1 * r1 + r2 * r2);
-    for (let a = 0; a < p; a++) {
-      const j0 = wi * J[3 * a], j1 = wi * J[3 * a + 1], j2 = wi * J[3 * a + 2];
-      g[a] += j0 * r0 + j1 * r1 + j2 * r2;
-      const row = a * p;
-      for (let b = a, o = 3 * a; b < p; b++, o += 3) {
-        A[row + b] += j0 * J[o] + j1 * J[o + 1] + j2 * J[o + 2];
+    rb[rows] = sw * r0; rb[rows + 1] = sw * r1; rb[rows + 2] = sw * r2;
+    for (let k = 0; k < p; k++) {
+      const j = active[k];
+      const o = 3 * j;
+      const q = k * R + rows;
+      const kind = motion[j];
+      if (kind === MOTION_ROTATION) {
+        const ux = ax[o], uy = ax[o + 1], uz = ax[o + 2];
+        const dx = px - pv[o], dy = py - pv[o + 1], dz = pz - pv[o + 2];
+        Jb[q] = sw * (uy * dz - uz * dy);
+        Jb[q + 1] = sw * (uz * dx - ux * dz);
+        Jb[q + 2] = sw * (ux * dy - uy * dx);
+      } else if (kind === MOTION_TRANSLATION) {
+        Jb[q] = sw * ax[o]; Jb[q + 1] = sw * ax[o + 1]; Jb[q + 2] = sw * ax[o + 2];
+      } else {
+        Jb[q] = 0; Jb[q + 1] = 0; Jb[q + 2] = 0;
       }
     }
+    rows += 3;
+    if (rows === R) {
+      flushBlock(Jb, rb, rows, p, R, A, g);
+      rows = 0;
+    }
   }
+  if (rows > 0) flushBlock(Jb, rb, rows, p, R, A, g);
   return 0.5 * cost;
 }
 
+/**
+ * A += JbᵀJb (upper triangle) and g += Jbᵀrb over the first `rows` rows of a block, in 2×2 register
+ * tiles over (a, a+1) × (b, b+1): four products per four loads.
+ */
+function flushBlock(Jb: Float64Array, rb: Float64Array, rows: number, p: number, R: number, A: Float64Array, g: Float64Array): void {
+  for (let a = 0; a < p; a++) {
+    const oa = a * R;
+    let sg = 0;
+    for (let r = 0; r < rows; r++) sg += Jb[oa + r] * rb[r];
+    g[a] += sg;
+  }
+  for (let a = 0; a < p; a += 2) {
+    const a2 = a + 1 < p;
+    const oa = a * R, oa1 = a2 ? oa + R : oa;
+    for (let b = a; b < p; b += 2) {
+      const b2 = b + 1 < p;
+      const ob = b * R, ob1 = b2 ? ob + R : ob;
+      let s00 = 0, s01 = 0, s10 = 0, s11 = 0;
+      for (let r = 0; r < rows; r++) {
+        const x0 = Jb[oa + r], x1 = Jb[oa1 + r], y0 = Jb[ob + r], y1 = Jb[ob1 + r];
+        s00 += x0 * y0; s01 += x0 * y1; s10 += x1 * y0; s11 += x1 * y1;
+      }
+      A[a * p + b] += s00;
+      if (b2) A[a * p + b + 1] += s01;
+      if (a2) { if (b > a) A[(a + 1) * p + b] += s10; if (b2) A[(a + 1) * p + b + 1] += s11; }
+    }
+  }
+}
 /** Mirror the upper triangle of a p×p row-major matrix into the lower one. */
 export function symmetrize(A: Float64Array, p: number): void {
   for (let a = 0; a < p; a++) for (let b = a + 1; b < p; b++) A[b * p + a] = A[a * p + b];

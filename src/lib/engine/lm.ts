@@ -38,13 +38,13 @@ export interface LmIteration {
 }
 
 export interface LmOptions {
-  /** Maximum accepted-or-not outer iterations. Default 50. */
+  /** Maximum outer iterations (each ends with an accepted step). Default 50. */
   maxIterations?: number;
-  /** Default 1e-10. */
+  /** Default 1e-8 (as SciPy's least_squares gtol). */
   gradientTolerance?: number;
-  /** Relative cost reduction that counts as no progress. Default 1e-10. */
+  /** Relative cost reduction that counts as no progress. Default 1e-8 (SciPy's ftol). */
   costTolerance?: number;
-  /** Relative scaled step. Default 1e-10. */
+  /** Relative scaled step. Default 1e-8 (SciPy's xtol). */
   stepTolerance?: number;
   /** Initial λ relative to the unit-diagonal scaled normal matrix. Default 1e-3. */
   initialDamping?: number;
@@ -52,6 +52,8 @@ export interface LmOptions {
   rmsOf?: (cost: number) => number;
   /** Called with iteration 0 (the start) and after every accepted step. */
   onIteration?: (it: LmIteration) => void;
+  /** Normal equations already computed at x0 (saves one pass); ignored when the problem reweights. */
+  initial?: { A: Float64Array; g: Float64Array; cost: number };
 }
 
 export type LmStop = 'gradient' | 'cost' | 'step' | 'no-decrease' | 'iterations';
@@ -64,6 +66,9 @@ export interface LmResult {
   stopReason: string;
   converged: boolean;
   evaluations: { cost: number; normal: number };
+  /** Normal matrix JᵀWJ (p×p, full) and gradient JᵀWr at the returned x. */
+  A: Float64Array;
+  g: Float64Array;
 }
 
 const REASONS: Record<LmStop, string> = {
@@ -76,9 +81,9 @@ const REASONS: Record<LmStop, string> = {
 
 export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<number>, options: LmOptions = {}): LmResult {
   const maxIterations = options.maxIterations ?? 50;
-  const gtol = options.gradientTolerance ?? 1e-10;
-  const ftol = options.costTolerance ?? 1e-10;
-  const xtol = options.stepTolerance ?? 1e-10;
+  const gtol = options.gradientTolerance ?? 1e-8;
+  const ftol = options.costTolerance ?? 1e-8;
+  const xtol = options.stepTolerance ?? 1e-8;
   const rmsOf = options.rmsOf ?? ((c: number) => Math.sqrt(2 * c));
   const p = problem.size;
   const x = Float64Array.from(x0);
@@ -95,9 +100,16 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
     options.onIteration?.(it);
   };
 
-  problem.reweight?.(x);
-  let cost = problem.normalEquations(x, A, g);
-  evaluations.normal++;
+  let cost: number;
+  if (options.initial && !problem.reweight) {
+    A.set(options.initial.A);
+    g.set(options.initial.g);
+    cost = options.initial.cost;
+  } else {
+    problem.reweight?.(x);
+    cost = problem.normalEquations(x, A, g);
+    evaluations.normal++;
+  }
   let lambda = options.initialDamping ?? 1e-3;
   let nu = 2;
   report({ iteration: 0, cost, rmsMm: rmsOf(cost), lambda, stepNorm: 0 });
@@ -169,7 +181,7 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       if (lambda > 1e16 || stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'no-decrease'; break outer; }
     }
   }
-  return { x, cost, iterations, stop, stopReason: REASONS[stop], converged: stop !== 'iterations', evaluations };
+  return { x, cost, iterations, stop, stopReason: REASONS[stop], converged: stop !== 'iterations', evaluations, A, g };
 }
 
 /** IRLS weight of a residual of size e for a robust loss with scale k (Huber 1964; Cauchy / Lorentzian). */

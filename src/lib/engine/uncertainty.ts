@@ -1,0 +1,56 @@
+/**
+ * Uncertainty of the identified parameters from the final normal matrix and the residual variance
+ * (linearised least squares, e.g. Seber & Wild, "Nonlinear Regression", 1989, ch. 2):
+ *   σ² = SSR / (m − p) with m residual coordinates and p identified parameters,
+ *   Cov = σ² (JᵀWJ)⁻¹, standard error = √Cov_jj, correlation r_ij = Cov_ij / √(Cov_ii Cov_jj).
+ * (JᵀWJ)⁻¹ is formed column by column from its Cholesky factor (ml-matrix), the one place where the
+ * inverse itself is the wanted result.
+ */
+import { CholeskyDecomposition, Matrix } from 'ml-matrix';
+
+export const HIGH_CORRELATION = 0.95;
+
+export interface Uncertainty {
+  sigma: number;
+  /** Covariance p×p row-major, internal units (mm, rad); null when the normal matrix is singular. */
+  covariance: Float64Array | null;
+  standardErrors: (number | null)[];
+  correlation: number[][];
+  high: { a: number; b: number; r: number }[];
+}
+
+export function uncertainty(A: Float64Array, p: number, ssr: number, residualCount: number): Uncertainty {
+  const dof = residualCount - p;
+  const sigma = dof > 0 ? Math.sqrt(ssr / dof) : NaN;
+  if (p === 0) return { sigma, covariance: null, standardErrors: [], correlation: [], high: [] };
+  // Factor the unit-diagonal scaled matrix for accuracy, then undo the scaling.
+  const d = new Float64Array(p);
+  for (let j = 0; j < p; j++) d[j] = Math.sqrt(A[j * p + j]) || 1;
+  const M = new Matrix(p, p);
+  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) M.set(a, b, A[a * p + b] / (d[a] * d[b]));
+  const chol = new CholeskyDecomposition(M);
+  if (!chol.isPositiveDefinite() || !(dof > 0)) {
+    return { sigma, covariance: null, standardErrors: new Array(p).fill(null), correlation: identity(p), high: [] };
+  }
+  const inv = chol.solve(Matrix.eye(p, p));
+  const cov = new Float64Array(p * p);
+  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) cov[a * p + b] = (sigma * sigma * inv.get(a, b)) / (d[a] * d[b]);
+  const se = Array.from({ length: p }, (_, j) => Math.sqrt(cov[j * p + j]));
+  const correlation: number[][] = [];
+  const high: Uncertainty['high'] = [];
+  for (let a = 0; a < p; a++) {
+    const row: number[] = [];
+    for (let b = 0; b < p; b++) {
+      const r = a === b ? 1 : cov[a * p + b] / (se[a] * se[b]);
+      row.push(r);
+      if (b > a && Math.abs(r) > HIGH_CORRELATION) high.push({ a, b, r });
+    }
+    correlation.push(row);
+  }
+  high.sort((x, y) => Math.abs(y.r) - Math.abs(x.r));
+  return { sigma, covariance: cov, standardErrors: se, correlation, high };
+}
+
+function identity(p: number): number[][] {
+  return Array.from({ length: p }, (_, a) => Array.from({ length: p }, (_, b) => (a === b ? 1 : 0)));
+}

@@ -1,0 +1,125 @@
+/**
+ * Validation helpers: which poses fit and which are held out, k-fold partitions, standardised residuals.
+ *
+ * Roles. Excluded poses (by label — every visit of that label — or "line:N" for one row) take no part.
+ * Held out: with useSplitColumn, the poses whose split column says 'validate'; when no pose carries a
+ * split value, a seeded random fraction `holdout` of the pose labels (all visits of a label go to the
+ * same side, so repeat visits never leak between fit and hold-out).
+ *
+ * Standardised residual of a pose with 3-D residual e (mm), point Jacobian J_i (3×p) and
+ * C = (JᵀWJ)⁻¹: the leverage block H_i = J_i C J_iᵀ gives Var(e) = σ²(I − H_i) for a fit pose and
+ * σ²(I + H_i) for a pose not in the fit (Cook & Weisberg, "Residuals and Influence in Regression", 1982,
+ * internally studentised residuals and prediction errors). We report s = √(eᵀ(I ∓ H_i)⁻¹e / 3) / σ, the RMS
+ * of the three studentised coordinates, so s ≈ 1 for an ordinary pose.
+ */
+import type { SessionPose } from './types';
+import { EngineInputError } from './types';
+
+export type PoseRole = 'fit' | 'holdout' | 'excluded';
+
+/** Seeded uniform generator in [0, 1) (mulberry32). */
+export function seededRandom(seed: number): () => number {
+  let s = seed >>> 0;
+  return () => {
+    s = (s + 0x6d2b79f5) >>> 0;
+    let t = s;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+function shuffled<T>(items: T[], random: () => number): T[] {
+  const a = items.slice();
+  for (let i = a.length - 1; i > 0; i--) {
+    const j = Math.floor(random() * (i + 1));
+    [a[i], a[j]] = [a[j], a[i]];
+  }
+  return a;
+}
+
+export interface RoleOptions {
+  holdout: number;
+  seed: number;
+  useSplitColumn: boolean;
+  exclude: string[];
+}
+
+export function assignRoles(poses: SessionPose[], o: RoleOptions): PoseRole[] {
+  const roles: PoseRole[] = poses.map(() => 'fit');
+  const problems: { message: string; column?: string }[] = [];
+  for (const e of o.exclude) {
+    const m = /^line:(\d+)$/.exec(e);
+    let hit = false;
+    poses.forEach((p, i) => {
+      if (m ? p.line === Number(m[1]) : p.label === e) {
+        roles[i] = 'excluded';
+        hit = true;
+      }
+    });
+    if (!hit) problems.push({ column: 'exclude', message: m ? `no pose on line ${m[1]} to exclude` : `no pose labelled "${e}" to exclude` });
+  }
+  if (problems.length) throw new EngineInputError(problems);
+  const hasSplit = o.useSplitColumn && poses.some((p) => p.split !== undefined);
+  if (hasSplit) {
+    poses.forEach((p, i) => {
+      if (roles[i] === 'fit' && p.split === 'validate') roles[i] = 'holdout';
+    });
+    return roles;
+  }
+  if (o.holdout > 0) {
+    const labels = [...new Set(poses.filter((_, i) => roles[i] === 'fit').map((p) => p.label))];
+    if (labels.length >= 2) {
+      const take = Math.min(labels.length - 1, Math.max(1, Math.round(o.holdout * labels.length)));
+      const held = new Set(shuffled(labels, seededRandom(o.seed)).slice(0, take));
+      poses.forEach((p, i) => {
+        if (roles[i] === 'fit' && held.has(p.label)) roles[i] = 'holdout';
+      });
+    }
+  }
+  return roles;
+}
+
+/** Fold number (0..k−1) of each label, seeded; all visits of a label share a fold. */
+export function kFoldAssignment(labels: string[], k: number, seed: number): number[] {
+  const unique = shuffled([...new Set(labels)], seededRandom(seed ^ 0x5bd1e995));
+  const fold = new Map<string, number>();
+  unique.forEach((l, i) => fold.set(l, i % k));
+  return labels.map((l) => fold.get(l)!);
+}
+
+/**
+ * s = √(eᵀ(I + sign·H)⁻¹e / 3) / σ with H = J C Jᵀ (J interleaved by column: J[3k + r]).
+ * sign = −1 for a pose in the fit, +1 for a pose outside it. Returns null when I − H is singular
+ * (a pose with leverage 1, which alone determines some parameter).
+ */
+export function standardisedResidual(e: ArrayLike<number>, J: Float64Array, C: Float64Array, p: number, sigma: number, sign: 1 | -1, tmp: Float64Array): number | null {
+  // tmp (3p) = C Jᵀ, column r at tmp[3a + r].
+  for (let a = 0; a < p; a++) {
+    let t0 = 0, t1 = 0, t2 = 0;
+    const row = a * p;
+    for (let b = 0; b < p; b++) {
+      const c = C[row + b];
+      t0 += c * J[3 * b];
+      t1 += c * J[3 * b + 1];
+      t2 += c * J[3 * b + 2];
+    }
+    tmp[3 * a] = t0; tmp[3 * a + 1] = t1; tmp[3 * a + 2] = t2;
+  }
+  const M = [0, 0, 0, 0, 0, 0, 0, 0, 0];
+  for (let r = 0; r < 3; r++) {
+    for (let c = 0; c < 3; c++) {
+      let h = 0;
+      for (let a = 0; a < p; a++) h += J[3 * a + r] * tmp[3 * a + c];
+      M[3 * r + c] = (r === c ? 1 : 0) + sign * h;
+    }
+  }
+  // Solve M x = e by Cramer's rule (3×3).
+  const det = M[0] * (M[4] * M[8] - M[5] * M[7]) - M[1] * (M[3] * M[8] - M[5] * M[6]) + M[2] * (M[3] * M[7] - M[4] * M[6]);
+  if (!(Math.abs(det) > 1e-12) || !(sigma > 0)) return null;
+  const x0 = (e[0] * (M[4] * M[8] - M[5] * M[7]) - M[1] * (e[1] * M[8] - M[5] * e[2]) + M[2] * (e[1] * M[7] - M[4] * e[2])) / det;
+  const x1 = (M[0] * (e[1] * M[8] - M[5] * e[2]) - e[0] * (M[3] * M[8] - M[5] * M[6]) + M[2] * (M[3] * e[2] - e[1] * M[6])) / det;
+  const x2 = (M[0] * (M[4] * e[2] - e[1] * M[7]) - M[1] * (M[3] * e[2] - e[1] * M[6]) + e[0] * (M[3] * M[7] - M[4] * M[6])) / det;
+  const q = e[0] * x0 + e[1] * x1 + e[2] * x2;
+  return Math.sqrt(Math.max(q, 0) / 3) / sigma;
+}

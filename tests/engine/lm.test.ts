@@ -1,0 +1,110 @@
+import { describe, expect, it } from 'vitest';
+import { spawnSync } from 'node:child_process';
+import { fileURLToPath } from 'node:url';
+import { levenbergMarquardt as mlLevenbergMarquardt } from 'ml-levenberg-marquardt';
+import { denseProblem, levenbergMarquardt } from '../../src/lib/engine/lm';
+import { compileArm, createArmData } from '../../src/lib/engine/kinematics';
+import { poseBuffers } from '../../src/lib/engine/jacobian';
+import { ArmLeastSquares, fitSession, registerBase, writeBase } from '../../src/lib/engine/fit';
+import { gaussian, perturbed, rng, sixAxisDh, synthSession } from './helpers';
+
+function expDecay(x: number[], y: number[]) {
+  // y = b0·exp(−b1·x) + b2
+  return denseProblem(
+    3,
+    (b) => x.map((xi, i) => b[0] * Math.exp(-b[1] * xi) + b[2] - y[i]),
+    (b) => x.flatMap((xi) => [Math.exp(-b[1] * xi), -b[0] * xi * Math.exp(-b[1] * xi), 1]),
+  );
+}
+
+describe('Levenberg–Marquardt on small curve problems', () => {
+  it('agrees with ml-levenberg-marquardt on an exponential decay', () => {
+    const r = rng(31);
+    const x = Array.from({ length: 40 }, (_, i) => i * 0.25);
+    const y = x.map((xi) => 4.2 * Math.exp(-0.65 * xi) + 0.8 + 0.01 * gaussian(r));
+    // ml-levenberg-marquardt (fixed damping schedule) needs a start near the basin; both start there.
+    const start = [3, 0.4, 0.5];
+    const ours = levenbergMarquardt(expDecay(x, y), start, { costTolerance: 1e-15, stepTolerance: 1e-15, gradientTolerance: 1e-15 });
+    // Independent reference: ml-levenberg-marquardt with its analytic-Jacobian option and tight stopping.
+    const ref = mlLevenbergMarquardt(
+      { x, y },
+      ([b0, b1, b2]: number[]) => (t: number) => b0 * Math.exp(-b1 * t) + b2,
+      {
+        initialValues: start, maxIterations: 2000, errorTolerance: 1e-12, damping: 1e-2,
+        jacobianFunction: ([b0, b1]: number[]) => (t: number) => [Math.exp(-b1 * t), -b0 * t * Math.exp(-b1 * t), 1],
+      },
+    );
+    expect(ours.converged).toBe(true);
+    // Both reach the same least squares minimum: parameters agree to 1e-5 relative, SSR to 1e-8 relative.
+    ref.parameterValues.forEach((v: number, k: number) => expect(Math.abs(ours.x[k] - v)).toBeLessThan(1e-5 * Math.max(1, Math.abs(v))));
+    expect(Math.abs(2 * ours.cost - ref.parameterError) / ref.parameterError).toBeLessThan(1e-8);
+    // And near the generating values (noise 0.01).
+    expect(ours.x[0]).toBeCloseTo(4.2, 1);
+    expect(ours.x[1]).toBeCloseTo(0.65, 1);
+  });
+
+  it('reproduces the NIST StRD Misra1a certified values', () => {
+    // NIST Statistical Reference Datasets, nonlinear regression "Misra1a" (y = b1·(1 − exp(−b2·x))),
+    // start 1: b = (500, 1e-4). Data and certified values from memory of the published dataset:
+    // b1 = 2.3894212918E+02, b2 = 5.5015643181E-04, residual sum of squares 1.2455138894E-01.
+    const x = [77.6, 114.9, 141.1, 190.8, 239.9, 289.0, 332.8, 378.4, 434.8, 477.3, 536.8, 593.1, 689.1, 760.0];
+    const y = [10.07, 14.73, 17.94, 23.93, 29.61, 35.18, 40.02, 44.82, 50.76, 55.05, 61.01, 66.40, 75.47, 81.78];
+    const problem = denseProblem(
+      2,
+      (b) => x.map((xi, i) => b[0] * (1 - Math.exp(-b[1] * xi)) - y[i]),
+      (b) => x.flatMap((xi) => [1 - Math.exp(-b[1] * xi), b[0] * xi * Math.exp(-b[1] * xi)]),
+    );
+    const res = levenbergMarquardt(problem, [500, 1e-4], { maxIterations: 500, costTolerance: 1e-15, stepTolerance: 1e-15, gradientTolerance: 1e-15 });
+    // NIST asks for agreement to about 6 significant digits at least.
+    expect(Math.abs(res.x[0] / 2.3894212918e2 - 1)).toBeLessThan(1e-7);
+    expect(Math.abs(res.x[1] / 5.5015643181e-4 - 1)).toBeLessThan(1e-7);
+    expect(Math.abs((2 * res.cost) / 1.2455138894e-1 - 1)).toBeLessThan(1e-7);
+  });
+
+  it('stops at the iteration limit with a plain reason', () => {
+    const x = [0, 1, 2, 3, 4, 5];
+    const y = x.map((t) => 3 * Math.exp(-0.5 * t) + 1);
+    const res = levenbergMarquardt(expDecay(x, y), [1, 3, -2], { maxIterations: 1 });
+    expect(res.converged).toBe(false);
+    expect(res.stopReason).toMatch(/iteration limit/);
+  });
+});
+
+describe('Levenberg–Marquardt on a synthetic arm against SciPy least_squares (MINPACK)', () => {
+  it('reaches the same cost and parameters', () => {
+    const nominal = sixAxisDh();
+    const truth = perturbed(nominal, 41);
+    const poses = synthSession(truth, 80, 0.02, 42);
+    // The identified set of the engine (so both solvers face a full-rank problem).
+    const report = fitSession(nominal, poses);
+    const model = compileArm(nominal);
+    const data = createArmData(model);
+    const pb = poseBuffers(model, poses);
+    const v0 = Float64Array.from(model.nominal);
+    writeBase(model, v0, registerBase(model, data, v0, pb).base);
+    const active = Int32Array.from(report.parameters.filter((p) => p.status === 'identified').map((p) => model.layout.byKey.get(p.key)!.index));
+    const problem = new ArmLeastSquares(model, data, pb, active, v0, 'none', 1);
+    const tight = { costTolerance: 1e-14, stepTolerance: 1e-14, gradientTolerance: 1e-14, maxIterations: 200 };
+    const ours = levenbergMarquardt(problem, Float64Array.from(active, (j) => v0[j]), tight);
+
+    const script = fileURLToPath(new URL('./reference/arm_least_squares.py', import.meta.url));
+    const input = {
+      convention: nominal.convention, prismatic: Array.from(model.prismatic), v0: Array.from(v0), active: Array.from(active),
+      q: Array.from({ length: pb.count }, (_, i) => Array.from(pb.q.subarray(i * model.n, (i + 1) * model.n))),
+      measured: poses.map((p) => [p.x, p.y, p.z]), jac: '2-point', ftol: 1e-14, xtol: 1e-14, gtol: 1e-14,
+    };
+    const run = spawnSync(process.env.PYTHON ?? 'python3', [script], { input: JSON.stringify(input), encoding: 'utf8', maxBuffer: 1 << 26 });
+    expect(run.status, run.stderr).toBe(0);
+    const ref = JSON.parse(run.stdout) as { x: number[]; cost: number };
+    // Same minimum: cost (½ SSR, SciPy's definition) within 1e-7 relative; each parameter within 1 % of
+    // its standard error (SciPy uses finite differences, so the last digits differ).
+    expect(Math.abs(ours.cost - ref.cost) / ref.cost).toBeLessThan(1e-7);
+    const se = new Map(report.parameters.map((p) => [p.key, p]));
+    Array.from(active).forEach((j, k) => {
+      const info = model.layout.params[j];
+      const sErr = se.get(info.key)!.standardError!;
+      const seInternal = info.unit === 'deg' ? (sErr * Math.PI) / 180 : sErr;
+      expect(Math.abs(ours.x[k] - ref.x[k]), info.key).toBeLessThan(0.01 * seInternal);
+    });
+  });
+});
