@@ -236,6 +236,8 @@ async function main() {
     PORT: String(appPort),
     PUBLIC_BASE_URL: appUrl,
     BASE_URL: appUrl,
+    // vitest overwrites BASE_URL with Vite's base path ('/'), so tests read this name.
+    OFFSETRY_TEST_BASE_URL: appUrl,
     AUTH_SECRET: crypto.randomBytes(32).toString('base64url'),
     AUTH_TRUST_HOST: 'true',
     DATABASE_URL: databaseUrl,

@@ -1,12 +1,10 @@
 import { chromium, type Browser, type Page } from 'playwright-core';
-import { mkdtempSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { join } from 'node:path';
 import { BASE_URL, DEMO_PASSWORD } from './http';
 
 /**
  * Debian's chromium driven by playwright-core (never a downloaded browser). The flags keep Chromium from
- * reaching for the network, which this machine does not have (stack-notes).
+ * reaching for the network, which this machine does not have (stack-notes). playwright gives every launch a
+ * fresh, empty profile of its own.
  */
 export async function launchBrowser(): Promise<Browser> {
   return chromium.launch({
@@ -20,7 +18,6 @@ export async function launchBrowser(): Promise<Browser> {
       '--disable-component-update',
       '--disable-sync',
       '--no-first-run',
-      `--user-data-dir=${mkdtempSync(join(tmpdir(), 'offsetry-chromium-'))}`,
     ],
   });
 }

@@ -2,7 +2,8 @@
  * HTTP helpers for integration tests against the app that scripts/test.mjs started (BASE_URL).
  * `signIn` goes through Auth.js's real credentials flow and keeps the cookies like a browser would.
  */
-export const BASE_URL = process.env.BASE_URL ?? 'http://127.0.0.1:4321';
+// vitest sets BASE_URL to Vite's base path, so the harness exports the app's address under its own name.
+export const BASE_URL = process.env.OFFSETRY_TEST_BASE_URL ?? 'http://127.0.0.1:4321';
 export const DEMO_PASSWORD = process.env.DEMO_PASSWORD ?? 'offsetry-demo';
 
 export class Client {

@@ -42,7 +42,7 @@ export function serviceEnv(): ServiceEnv {
     },
     smtp: { host: requireEnv('SMTP_HOST'), port: Number(requireEnv('SMTP_PORT')) },
     mailApiUrl: requireEnv('MAIL_FAKE_API_URL'),
-    baseUrl: requireEnv('BASE_URL'),
+    baseUrl: requireEnv('OFFSETRY_TEST_BASE_URL'),
     runDir: requireEnv('OFFSETRY_TEST_RUN_DIR'),
     appEntry: requireEnv('OFFSETRY_APP_ENTRY'),
     pg: {
