@@ -108,7 +108,8 @@ function readJson(text: string): Located {
     throw new JsonSyntaxError(msg, l, at - ls + 1);
   };
   const describe = (k: number) =>
-    k >= text.length ? 'end of file' : `"${text[k] === '\n' ? '\\n' : text[k]}"`;
+    k >= text.length ? 'end of file' : text[k] === '\n' ? 'end of line' : `'${text[k]}'`;
+  const missingComma = () => (/["\[{0-9-]/.test(text[i] ?? '') ? ' (a comma is probably missing before it)' : '');
   const ws = () => {
     for (;;) {
       const c = text.charCodeAt(i);
@@ -185,7 +186,7 @@ function readJson(text: string): Located {
         ws();
         if (text[i] === ',') { i++; continue; }
         if (text[i] === '}') { i++; return obj; }
-        fail(`unexpected ${describe(i)}: expected "," or "}"`);
+        fail(`unexpected ${describe(i)}: expected "," or "}"${missingComma()}`);
       }
     }
     if (c === '[') {
@@ -200,7 +201,7 @@ function readJson(text: string): Located {
         ws();
         if (text[i] === ',') { i++; continue; }
         if (text[i] === ']') { i++; return arr; }
-        fail(`unexpected ${describe(i)}: expected "," or "]"`);
+        fail(`unexpected ${describe(i)}: expected "," or "]"${missingComma()}`);
       }
     }
     if (c === '"') return str();
