@@ -137,7 +137,7 @@ try {
     app = spawnLogged('app', process.execPath, [entry], { cwd: root, env, logFile: appLog, echo: true });
   }
   writePidFile(appPidFile, app.pid);
-  onShutdown(() => app.stop());
+  onShutdown(() => app.stop().finally(() => fs.rmSync(appPidFile, { force: true })));
   await waitForPort(port, { host, proc: app, timeoutMs: dev ? 120_000 : 60_000, what: dev ? 'astro dev' : 'the app' });
 
   const base = env.PUBLIC_BASE_URL || `http://${host}:${port}`;

@@ -1,6 +1,7 @@
 // The local services of the demo (`npm start`, `npm run services`): PostgreSQL, the S3 fake and the mail fake,
 // each only when .env points it at loopback (a managed database, a real bucket or relay are used as they are).
 // Node built-ins only.
+import fs from 'node:fs';
 import path from 'node:path';
 import { isLoopbackHost, urlTarget } from './env.mjs';
 import { startMailFake, startS3Fake } from './fakes.mjs';
@@ -40,6 +41,20 @@ async function requireFreePort(port, what, key) {
     throw new Error(
       `${what}: port 127.0.0.1:${port} is taken by another program. Stop it, or choose another port in .env (${key}).`,
     );
+  }
+}
+
+/**
+ * Whether an HTTP server at origin answers GET / with an S3 XML document (a bucket list or an S3 error).
+ * @param {string} origin
+ */
+async function answersLikeS3(origin) {
+  try {
+    const res = await fetch(`${origin}/`, { signal: AbortSignal.timeout(2000) });
+    const text = await res.text();
+    return text.includes('<ListAllMyBucketsResult') || /<Error>\s*<Code>/.test(text);
+  } catch {
+    return false;
   }
 }
 
@@ -98,6 +113,11 @@ export async function startLocalServices(options) {
     }
     const pidFile = path.join(pidDir, 's3-fake.pid');
     if (await stopLeftover(pidFile, 'docker-fake-s3/server.mjs')) log('S3 fake: stopped a leftover from an earlier run');
+    if (!(await isPortFree(s3.port)) && (await answersLikeS3(s3.url.origin))) {
+      // e.g. the optional MinIO of docker-fake-s3/compose.yaml on 127.0.0.1:9000
+      log(`S3: an S3-compatible server already answers at ${s3.url.origin}; using it (the fake is not started)`);
+      return;
+    }
     await requireFreePort(s3.port, 'S3 fake', 'S3_ENDPOINT');
     const proc = await startS3Fake({
       root,
@@ -107,7 +127,7 @@ export async function startLocalServices(options) {
       logFile: path.join(logDir, 's3-fake.log'),
     });
     writePidFile(pidFile, proc.pid);
-    stops.push(() => proc.stop());
+    stops.push(() => proc.stop().finally(() => fs.rmSync(pidFile, { force: true })));
     started.push(`S3 fake ${s3.url.origin}`);
   })();
 
@@ -132,7 +152,7 @@ export async function startLocalServices(options) {
       logFile: path.join(logDir, 'mail-fake.log'),
     });
     writePidFile(pidFile, proc.pid);
-    stops.push(() => proc.stop());
+    stops.push(() => proc.stop().finally(() => fs.rmSync(pidFile, { force: true })));
     started.push(`mail fake smtp://127.0.0.1:${smtpPort} (API ${api.url.origin})`);
   })();
 
