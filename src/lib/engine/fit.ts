@@ -268,6 +268,18 @@ export function identifyParameters(
   return { result, v: Float64Array.from(problem.full(result.x)) };
 }
 
+/** Joints whose readings span less than 0.5° (0.5 mm) over the fit poses. */
+function stillJoints(g: ArmGeometry, poses: SessionPose[], idx: number[]): string[] {
+  return g.joints.filter((_, k) => {
+    let lo = Infinity, hi = -Infinity;
+    for (const i of idx) {
+      lo = Math.min(lo, poses[i].q[k]);
+      hi = Math.max(hi, poses[i].q[k]);
+    }
+    return hi - lo < 0.5;
+  }).map((j) => j.name);
+}
+
 function labelOrLine(poses: SessionPose[]): (p: SessionPose) => string {
   const counts = new Map<string, number>();
   for (const p of poses) counts.set(p.label, (counts.get(p.label) ?? 0) + 1);
@@ -310,7 +322,7 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   const candIdx = Int32Array.from(candidates, (c) => c.index);
   const cost0 = accumulateNormalEquations(model, data, v0, fitPb, candIdx, Ac, gc, normalWork(pc));
   symmetrize(Ac, pc);
-  const selection = selectIdentifiable(Ac, candidates, nominal);
+  const selection = selectIdentifiable(Ac, candidates, nominal, stillJoints(nominal, poses, fitIdx));
   const identified = selection.identified.map((c) => candidates[c]);
   const p = identified.length;
   if (fitPb.count < p) {

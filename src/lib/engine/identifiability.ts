@@ -50,7 +50,9 @@ function priority(info: ParameterInfo, jointCount: number): number {
 }
 
 /** Decide which candidates are identifiable from A = JᵀWJ over the candidates (p×p row-major, full). */
-export function selectIdentifiable(A: Float64Array, candidates: ParameterInfo[], geometry: ArmGeometry): IdentifiabilityResult {
+export function selectIdentifiable(
+  A: Float64Array, candidates: ParameterInfo[], geometry: ArmGeometry, stillJoints: string[] = [],
+): IdentifiabilityResult {
   const p = candidates.length;
   const n = geometry.joints.length;
   const d = new Float64Array(p);
@@ -94,7 +96,7 @@ export function selectIdentifiable(A: Float64Array, candidates: ParameterInfo[],
         .filter((e) => e.w > 0.05 * cmax)
         .sort((x, z) => z.w - x.w)
         .map((e) => candidates[kept[e.a]]);
-      fixed.push({ candidate: j, fixed: { info, reason: explain(info, related, geometry), relatedKeys: related.map((r) => r.key) } });
+      fixed.push({ candidate: j, fixed: { info, reason: explain(info, related, geometry, stillJoints), relatedKeys: related.map((r) => r.key) } });
       continue;
     }
     const row = Array.from(y);
@@ -125,8 +127,11 @@ function list(infos: ParameterInfo[]): string {
   return names.length <= 1 ? (names[0] ?? 'other parameters') : `${names.slice(0, -1).join(', ')} and ${names[names.length - 1]}`;
 }
 
-/** A plain-words reason for a parameter fixed at nominal, from the relation detected. */
-export function explain(info: ParameterInfo, related: ParameterInfo[], g: ArmGeometry): string {
+/**
+ * A plain-words reason for a parameter fixed at nominal, from the relation detected. `stillJoints` names
+ * joints whose readings barely change over the poses (their links then act as one rigid body).
+ */
+export function explain(info: ParameterInfo, related: ParameterInfo[], g: ArmGeometry, stillJoints: string[] = []): string {
   const n = g.joints.length;
   const key = info.key;
   const allBase = related.length > 0 && related.every((r) => r.owner === 'base');
@@ -155,7 +160,10 @@ export function explain(info: ParameterInfo, related: ParameterInfo[], g: ArmGeo
       return `${head}: with consecutive parallel joint axes, ${key} and these parameters turn the rest of the arm about the same direction`;
     }
   }
-  return `${head}: on these poses ${key} changes the measured points only in the way a combination of them does, so the data cannot tell them apart`;
+  const still = stillJoints.length
+    ? `; ${stillJoints.join(', ')} ${stillJoints.length > 1 ? 'do' : 'does'} not move on these poses, which merges links`
+    : '';
+  return `${head}: on these poses ${key} changes the measured points only in the way a combination of them does, so the data cannot tell them apart${still}`;
 }
 
 export interface Observability {
