@@ -1,0 +1,240 @@
+import { useRef, useState } from 'react';
+import { useDropzone } from 'react-dropzone';
+
+interface Problem {
+  file?: string;
+  line?: number;
+  column?: string;
+  field?: string;
+  message: string;
+  expected?: string;
+}
+
+interface Refusal {
+  error: string;
+  errors?: Problem[];
+  truncated?: boolean;
+  outsideLimits?: boolean;
+  existing?: { id: string; url: string };
+}
+
+interface Props {
+  units: { serial: string; model: string; site: string }[];
+  initialUnit: string;
+  today: string;
+  technician: string;
+  maxBytes: number;
+}
+
+type State =
+  | { kind: 'idle' }
+  | { kind: 'uploading'; sent: number; total: number }
+  | { kind: 'checking' }
+  | { kind: 'refused'; status: number; body: Refusal }
+  | { kind: 'done'; url: string };
+
+const formatBytes = (b: number) => (b >= 1048576 ? `${(b / 1048576).toFixed(1)} MiB` : b >= 1024 ? `${(b / 1024).toFixed(1)} KiB` : `${b} bytes`);
+
+/** Drop zone + metadata form; uploads with XMLHttpRequest so the bytes sent can be shown. */
+export default function UploadForm({ units, initialUnit, today, technician, maxBytes }: Props) {
+  const [file, setFile] = useState<File | null>(null);
+  const [state, setState] = useState<State>({ kind: 'idle' });
+  const [override, setOverride] = useState(false);
+  const formRef = useRef<HTMLFormElement>(null);
+
+  const { getRootProps, getInputProps, isDragActive } = useDropzone({
+    multiple: false,
+    // No type filter here: the server reads the content and says precisely what is wrong with a non-CSV file.
+    onDrop: (accepted) => {
+      if (accepted[0]) {
+        setFile(accepted[0]);
+        setState({ kind: 'idle' });
+        setOverride(false);
+      }
+    },
+  });
+
+  function submit(e?: React.FormEvent) {
+    e?.preventDefault();
+    const form = formRef.current;
+    if (!form || !file) return;
+    const fields = new FormData(form);
+    const body = new FormData();
+    // The unit goes first so the server can check the CSV against the unit's model while it arrives.
+    for (const name of ['unit', 'measuredOn', 'technician', 'instrument', 'ambientC', 'target', 'notes']) body.append(name, String(fields.get(name) ?? ''));
+    body.append('allowOutsideLimits', override ? 'true' : 'false');
+    body.append('file', file, file.name);
+
+    const xhr = new XMLHttpRequest();
+    xhr.open('POST', '/api/sessions');
+    xhr.responseType = 'text';
+    xhr.upload.onprogress = (ev) => setState({ kind: 'uploading', sent: ev.loaded, total: ev.lengthComputable ? ev.total : file.size });
+    xhr.upload.onload = () => setState({ kind: 'checking' });
+    xhr.onerror = () => setState({ kind: 'refused', status: 0, body: { error: 'The server could not be reached. Check the connection and upload again.' } });
+    xhr.onload = () => {
+      let parsed: Refusal & { url?: string } = { error: xhr.statusText };
+      try {
+        parsed = JSON.parse(xhr.responseText);
+      } catch {
+        // keep the status text
+      }
+      if (xhr.status === 201 && parsed.url) {
+        setState({ kind: 'done', url: parsed.url });
+        location.href = parsed.url;
+      } else setState({ kind: 'refused', status: xhr.status, body: parsed });
+    };
+    setState({ kind: 'uploading', sent: 0, total: file.size });
+    xhr.send(body);
+  }
+
+  const busy = state.kind === 'uploading' || state.kind === 'checking' || state.kind === 'done';
+  const refusal = state.kind === 'refused' ? state.body : undefined;
+
+  return (
+    <form ref={formRef} onSubmit={submit} className="flex flex-col gap-5" noValidate>
+      <div
+        {...getRootProps({
+          className: `flex min-h-40 cursor-pointer flex-col items-center justify-center gap-2 rounded-lg border-2 border-dashed p-6 text-center ${
+            isDragActive ? 'border-accent bg-accent-soft' : 'border-rule bg-white'
+          }`,
+          'aria-label': 'Session file: drop a CSV here or choose one',
+        })}
+        data-dropzone
+      >
+        <input {...getInputProps()} name="file-picker" data-file-input />
+        {file ? (
+          <>
+            <p className="font-semibold" data-chosen-file>
+              ▤ {file.name}
+            </p>
+            <p className="text-ink-soft">{formatBytes(file.size)} · drop another file or tap to replace it</p>
+          </>
+        ) : (
+          <>
+            <p className="font-semibold">Drop the session CSV here, or tap to choose it</p>
+            <p className="text-ink-soft">
+              Header <code>pose,q1,…,qn,x,y,z</code> (optional <code>split</code>); at most {formatBytes(maxBytes)}.
+            </p>
+          </>
+        )}
+      </div>
+
+      <div className="grid gap-4 md:grid-cols-2">
+        <label className="field">
+          <span>Unit (serial number)</span>
+          <input className="input" name="unit" required defaultValue={initialUnit} list="upload-units" autoComplete="off" />
+          <datalist id="upload-units">
+            {units.map((u) => (
+              <option key={u.serial} value={u.serial}>
+                {u.model}
+                {u.site ? ` · ${u.site}` : ''}
+              </option>
+            ))}
+          </datalist>
+        </label>
+        <label className="field">
+          <span>Measured on</span>
+          <input className="input" name="measuredOn" type="date" required defaultValue={today} max={today} />
+        </label>
+        <label className="field">
+          <span>Technician</span>
+          <input className="input" name="technician" defaultValue={technician} maxLength={120} />
+        </label>
+        <label className="field">
+          <span>Laser tracker / instrument id</span>
+          <input className="input" name="instrument" maxLength={120} placeholder="e.g. tracker LT-07" />
+        </label>
+        <label className="field">
+          <span>Ambient temperature (°C)</span>
+          <input className="input" name="ambientC" inputMode="decimal" placeholder="e.g. 21.5" maxLength={32} />
+        </label>
+        <label className="field">
+          <span>Target (SMR) and mounting</span>
+          <input className="input" name="target" maxLength={200} placeholder="e.g. 1.5 in SMR on flange nest B" />
+        </label>
+        <label className="field md:col-span-2">
+          <span>Notes</span>
+          <textarea className="input" name="notes" maxLength={4000} />
+        </label>
+      </div>
+
+      {refusal?.outsideLimits && (
+        <label className="notice notice-attention flex min-h-10 items-start gap-3" data-override>
+          <input type="checkbox" className="mt-1 h-6 w-6 shrink-0" checked={override} onChange={(e) => setOverride(e.target.checked)} name="allowOutsideLimits" />
+          <span>
+            ▲ I have checked the readings listed below. Store this session although these joint readings are outside the model's limits (the session will be
+            marked as accepted with the outside-limits override).
+          </span>
+        </label>
+      )}
+
+      <div className="flex flex-wrap items-center gap-3">
+        <button className="btn" type="submit" disabled={!file || busy || (refusal?.outsideLimits === true && !override)}>
+          {refusal?.outsideLimits ? 'Upload again with the override' : 'Upload session'}
+        </button>
+        {!file && <span className="text-ink-soft">Choose a file first.</span>}
+      </div>
+
+      {state.kind === 'uploading' && (
+        <div role="status" aria-live="polite" className="flex flex-col gap-1">
+          <progress className="h-3 w-full" max={state.total || 1} value={state.sent} />
+          <span className="text-ink-soft">
+            Uploading: {formatBytes(state.sent)} of {formatBytes(state.total)} ({state.total ? Math.round((100 * state.sent) / state.total) : 0} %)
+          </span>
+        </div>
+      )}
+      {state.kind === 'checking' && (
+        <p role="status" className="notice">
+          ◌ Uploaded; checking and storing the session…
+        </p>
+      )}
+      {state.kind === 'done' && (
+        <p role="status" className="notice">
+          ✓ Stored. Opening the session…
+        </p>
+      )}
+
+      {refusal && (
+        <div className="flex flex-col gap-3" data-refusal data-status={state.kind === 'refused' ? state.status : undefined}>
+          <p className={`notice ${refusal.outsideLimits || state.kind === 'refused' && state.status === 409 ? 'notice-attention' : 'notice-error'}`} role="alert">
+            {state.kind === 'refused' && state.status === 409 ? '▲ ' : '✕ '}
+            {refusal.error}
+            {refusal.existing && (
+              <>
+                {' '}
+                <a href={refusal.existing.url} data-existing-session>
+                  Open the existing session
+                </a>
+              </>
+            )}
+          </p>
+          {refusal.errors && refusal.errors.length > 0 && (
+            <div className="overflow-x-auto">
+              <table className="data-table" data-problems>
+                <thead>
+                  <tr>
+                    <th className="num">Line</th>
+                    <th>Column / field</th>
+                    <th>Problem</th>
+                    <th>Expected</th>
+                  </tr>
+                </thead>
+                <tbody>
+                  {refusal.errors.map((p, k) => (
+                    <tr key={k}>
+                      <td className="num">{p.line ?? '—'}</td>
+                      <td>{p.column ?? p.field ?? '—'}</td>
+                      <td>{p.message}</td>
+                      <td>{p.expected ?? ''}</td>
+                    </tr>
+                  ))}
+                </tbody>
+              </table>
+              {refusal.truncated && <p className="mt-2 text-ink-soft">Only the first {refusal.errors.length} problems are listed; fix these and upload again to see the rest.</p>}
+            </div>
+          )}
+        </div>
+      )}
+    </form>
+  );
+}

@@ -1,0 +1,20 @@
+import type { APIRoute } from 'astro';
+import { json, problems, zodProblems } from '../../../lib/server/http';
+import { createSession, listSessions, sessionListQuerySchema } from '../../../lib/server/sessions';
+
+/** Sessions, newest measurement first; ?unit=SERIAL&page=&pageSize= */
+export const GET: APIRoute = async ({ url }) => {
+  const parsed = sessionListQuerySchema.safeParse(Object.fromEntries(url.searchParams));
+  if (!parsed.success) return problems(400, 'Invalid session list query.', zodProblems(parsed.error));
+  return json(await listSessions(parsed.data));
+};
+
+/**
+ * Upload a session: multipart/form-data with `file` (the CSV) and the fields unit, measuredOn, technician,
+ * instrument, ambientC, target, notes, allowOutsideLimits. Send `unit` before `file` so the CSV is checked
+ * while it arrives.
+ */
+export const POST: APIRoute = async ({ locals, request }) => {
+  const result = await createSession(request, { id: locals.user!.id, name: locals.user!.name });
+  return json(result.body, result.status, result.ok ? { location: result.body.url } : {});
+};
