@@ -1,10 +1,11 @@
 /**
  * The measurement session file (CSV): header `pose,q1,…,qn,x,y,z`, optional `split` column, unknown
  * columns ignored with a warning. Streamed through csv-parse: the source is read chunk by chunk, decoded
- * once, and never held as a whole; only the parsed poses are kept.
+ * by csv-parse, and never held as a whole; only the parsed poses are kept. Node-only (streams, Buffer).
  *
  * Line numbers are physical lines from 1 (header = 1), blank lines included.
  */
+import { isUtf8 } from 'node:buffer';
 import { parse, CsvError } from 'csv-parse';
 import type { ArmGeometry, InputProblem, SessionPose } from './types';
 
@@ -68,7 +69,20 @@ async function* chunksOf(source: string | AsyncIterable<Uint8Array | string>): A
   yield* source;
 }
 
-const utf8 = new TextEncoder();
+/** Length of the UTF-8 sequence a lead byte starts (1 for ASCII or a stray continuation byte). */
+function utf8Length(lead: number): number {
+  return lead >= 0xf0 ? 4 : lead >= 0xe0 ? 3 : lead >= 0xc0 ? 2 : 1;
+}
+
+/** Bytes at the end of `c` (from `from`) that start a multi-byte sequence not yet complete. */
+function incompleteTail(c: Uint8Array, from: number): number {
+  for (let k = 1; k <= 3 && c.length - k >= from; k++) {
+    const b = c[c.length - k];
+    if ((b & 0xc0) === 0x80) continue; // continuation byte: look further back
+    return b >= 0xc0 && utf8Length(b) > k ? k : 0;
+  }
+  return 0;
+}
 
 /**
  * Parse a session CSV against an arm geometry. Never throws for bad content: every problem (up to
@@ -101,20 +115,21 @@ export async function parseSessionCsv(
     throw new StopReading();
   };
 
-  // ---- byte level: size, binary content, UTF-8; decoded text flows to csv-parse ----------------
+  // ---- byte level: size, binary content, UTF-8 ---------------------------------------------------
+  // Bytes go to csv-parse as they come (it decodes each field itself); here they are only checked:
+  // size, signatures of binary formats, NUL bytes, and UTF-8 validity (buffer.isUtf8, native).
   let bytes = 0;
   let sawText = false; // any non-whitespace character
-  let head = ''; // the first two lines, for delimiter sniffing
-  let headDone = false;
-  const decoder = new TextDecoder('utf-8', { fatal: true }); // strips a leading BOM by default
+  let head = ''; // the start of the file (first two lines), for delimiter sniffing
   let firstBytes = true;
+  let carry: Uint8Array | undefined; // an incomplete UTF-8 sequence at the end of the previous chunk
 
-  const takeText = (s: string) => {
-    if (!sawText && /\S/.test(s)) sawText = true;
-    if (!headDone) {
-      head += s;
-      const nl1 = head.indexOf('\n');
-      if ((nl1 >= 0 && head.indexOf('\n', nl1 + 1) >= 0) || head.length > 65536) headDone = true;
+  const HEAD_BYTES = 4096;
+  const takeHead = (c: Uint8Array | string) => {
+    if (head.length < HEAD_BYTES) head += typeof c === 'string' ? c.slice(0, HEAD_BYTES) : new TextDecoder().decode(c.subarray(0, HEAD_BYTES));
+    if (!sawText) {
+      if (typeof c === 'string') sawText = /\S/.test(c);
+      else for (let k = 0; k < c.length && !sawText; k++) sawText = c[k] > 32;
     }
   };
 
@@ -133,78 +148,86 @@ export async function parseSessionCsv(
     fatal({ message: `the file is larger than the limit of ${formatBytes(maxBytes)} (reading stopped at ${formatBytes(bytes)})`, expected: 'a smaller session file' });
   const nul = (c: Uint8Array | string, at: number) =>
     fatal({ line: newlines + countNl(c, at) + 1, message: 'not a CSV text file: it contains NUL bytes (binary data)', expected: 'a UTF-8 CSV text file' });
+  const notUtf8 = (c: Uint8Array) => {
+    // Locate the first undecodable byte for the message (slow path, only on failure).
+    const loose = new TextDecoder('utf-8').decode(c);
+    const at = loose.indexOf('\ufffd');
+    fatal({
+      line: newlines + countNl(loose, at < 0 ? loose.length : at) + 1,
+      message: 'not a CSV text file: the bytes are not valid UTF-8',
+      expected: 'a UTF-8 CSV text file (save as "CSV UTF-8")',
+    });
+  };
+  const checkUtf8 = (c: Uint8Array) => {
+    let from = 0;
+    if (carry) {
+      // finish the sequence split across chunks: at most 3 more bytes
+      const need = utf8Length(carry[0]) - carry.length;
+      const joined = new Uint8Array(carry.length + Math.min(need, c.length));
+      joined.set(carry);
+      joined.set(c.subarray(0, need), carry.length);
+      if (joined.length < utf8Length(carry[0])) { carry = joined; return; }
+      if (!isUtf8(joined)) notUtf8(joined);
+      from = need;
+      carry = undefined;
+    }
+    const tail = incompleteTail(c, from);
+    if (!isUtf8(c.subarray(from, c.length - tail))) notUtf8(c.subarray(from));
+    if (tail) carry = c.slice(c.length - tail);
+  };
 
-  async function* decoded(): AsyncGenerator<string> {
+  async function* checked(): AsyncGenerator<Uint8Array | string> {
     for await (const chunk of chunksOf(source)) {
       if (typeof chunk === 'string') {
-        bytes += typeof Buffer !== 'undefined' ? Buffer.byteLength(chunk) : utf8.encode(chunk).length;
+        bytes += Buffer.byteLength(chunk);
         if (bytes > maxBytes) tooBig();
         const z = chunk.indexOf('\0');
         if (z >= 0) nul(chunk, z);
+        if (!chunk) continue;
         const s = firstBytes && chunk.charCodeAt(0) === 0xfeff ? chunk.slice(1) : chunk;
         firstBytes = false;
         newlines += countNl(s, s.length);
-        takeText(s);
-        if (s) yield s;
+        takeHead(s);
+        yield s;
         continue;
       }
+      if (chunk.byteLength === 0) continue;
       bytes += chunk.byteLength;
       if (bytes > maxBytes) tooBig();
       if (firstBytes) {
         const kind = binarySignature(chunk);
         if (kind) fatal({ line: 1, message: `not a CSV text file: it looks like ${kind}`, expected: 'a UTF-8 CSV text file' });
-        firstBytes = false;
       }
       const z = chunk.indexOf(0);
       if (z >= 0) nul(chunk, z);
-      let s: string;
-      try {
-        s = decoder.decode(chunk, { stream: true });
-      } catch {
-        // Locate the first undecodable byte for the message (slow path, only on failure).
-        const loose = new TextDecoder('utf-8').decode(chunk);
-        const at = loose.indexOf('\ufffd');
-        fatal({
-          line: newlines + countNl(loose, at < 0 ? loose.length : at) + 1,
-          message: 'not a CSV text file: the bytes are not valid UTF-8',
-          expected: 'a UTF-8 CSV text file (save as "CSV UTF-8")',
-        });
-      }
-      newlines += countNl(chunk, chunk.length);
-      takeText(s!);
-      if (s!) yield s!;
+      checkUtf8(chunk);
+      // a UTF-8 byte-order mark is accepted and dropped
+      const c = firstBytes && chunk[0] === 0xef && chunk[1] === 0xbb && chunk[2] === 0xbf ? chunk.subarray(3) : chunk;
+      firstBytes = false;
+      newlines += countNl(c, c.length);
+      takeHead(c);
+      yield c;
     }
-    let tail: string;
-    try {
-      tail = decoder.decode();
-    } catch {
-      fatal({ line: newlines + 1, message: 'not a CSV text file: the bytes are not valid UTF-8 (truncated character at the end)', expected: 'a UTF-8 CSV text file' });
-    }
-    takeText(tail!);
-    if (tail!) yield tail!;
+    if (carry) fatal({ line: newlines + 1, message: 'not a CSV text file: the bytes are not valid UTF-8 (truncated character at the end)', expected: 'a UTF-8 CSV text file' });
   }
 
   // ---- record level ---------------------------------------------------------------------------
-  // on_record tags each record with its (end) physical line; records are handled synchronously in
-  // 'data' events, which is markedly cheaper than async iteration at 100 000 rows.
-  const parser = parse({
-    relax_column_count: true,
-    skip_empty_lines: true,
-    on_record: (record: string[], context: { lines: number }) => {
-      (record as Row).line = context.lines;
-      return record;
-    },
-  });
+  // Records are handled synchronously in 'data' events (markedly cheaper than async iteration at
+  // 100 000 rows). Empty lines are kept as records so that physical lines can be counted here:
+  // a record spans one line plus the line breaks inside its (quoted) fields.
+  const parser = parse({ relax_column_count: true, skip_empty_lines: false });
+  let lineNo = 0;
 
   let header: Header | undefined;
   const poses: SessionPose[] = [];
   const visits = new Map<string, { q: number[]; line: number; count: number }>();
   let headerKey = '';
 
-  const onRecord = (rec: Row) => {
-    const line = rec.line;
-    // A line of spaces only is blank too.
-    if (rec.length === 1 && rec[0].trim() === '') return;
+  const onRecord = (rec: string[]) => {
+    const line = ++lineNo;
+    for (let k = 0; k < rec.length; k++) if (rec[k].includes('\n')) lineNo += countNl(rec[k], rec[k].length);
+    // Empty lines, and lines of spaces only, are skipped (but counted).
+    if (rec.length === 1 && (rec[0] === '' || rec[0].trim() === '')) return;
     if (!header) {
       header = readHeader(rec, line, n, geometry.name, head, problem, fatal, warnings, file);
       headerKey = rec.map((c) => c.trim().toLowerCase()).join('\u0001');
@@ -244,7 +267,7 @@ export async function parseSessionCsv(
     if (!parser.destroyed) parser.destroy();
   };
   const finished = new Promise<void>((resolve) => {
-    parser.on('data', (rec: Row) => {
+    parser.on('data', (rec: string[]) => {
       if (failure !== undefined) return;
       try {
         onRecord(rec);
@@ -261,7 +284,7 @@ export async function parseSessionCsv(
     parser.on('close', () => resolve());
   });
   try {
-    for await (const s of decoded()) {
+    for await (const s of checked()) {
       if (failure !== undefined) break; // leaving the loop closes the source
       if (!parser.write(s)) await new Promise<void>((r) => { parser.once('drain', () => r()); parser.once('close', () => r()); });
     }
@@ -337,8 +360,6 @@ interface Header {
   names: string[];
   count: number;
 }
-
-type Row = string[] & { line: number };
 
 type ProblemFn = (p: Omit<InputProblem, 'file'>) => void;
 
@@ -432,6 +453,20 @@ function readHeader(
   return h;
 }
 
+/** A numeric cell, or NaN after reporting what is wrong with it. */
+function cellNumber(cell: string, line: number, column: string, unit: string, problem: ProblemFn): number {
+  const raw = cell.trim();
+  if (NUMBER_RE.test(raw)) return Number(raw);
+  let what: string;
+  if (raw === '') what = 'empty cell';
+  else if (/^[+-]?nan$/i.test(raw)) what = 'NaN is not a measured value';
+  else if (/^[+-]?(inf|infinity)$/i.test(raw)) what = 'Infinity is not a measured value';
+  else if (DECIMAL_COMMA_RE.test(raw)) what = `"${raw}" uses a decimal comma`;
+  else what = `"${raw.length > 40 ? raw.slice(0, 40) + '…' : raw}" is not a number`;
+  problem({ line, column, message: what, expected: `a decimal number in ${unit} (e.g. 12.5)` });
+  return NaN;
+}
+
 function readRow(
   rec: string[],
   line: number,
@@ -459,24 +494,12 @@ function readRow(
     problem({ line, column: 'pose', message: 'empty pose label', expected: 'a label such as P1' });
     bad = true;
   }
-  const num = (k: number, column: string, unit: string): number => {
-    const raw = rec[k].trim();
-    if (NUMBER_RE.test(raw)) return Number(raw);
-    bad = true;
-    let what: string;
-    if (raw === '') what = 'empty cell';
-    else if (/^[+-]?nan$/i.test(raw)) what = 'NaN is not a measured value';
-    else if (/^[+-]?(inf|infinity)$/i.test(raw)) what = 'Infinity is not a measured value';
-    else if (DECIMAL_COMMA_RE.test(raw)) what = `"${raw}" uses a decimal comma`;
-    else what = `"${raw.length > 40 ? raw.slice(0, 40) + '…' : raw}" is not a number`;
-    problem({ line, column, message: what, expected: `a decimal number in ${unit} (e.g. 12.5)` });
-    return NaN;
-  };
   const q = new Array<number>(h.q.length);
   for (let j = 0; j < h.q.length; j++) {
     const joint = geometry.joints[j];
     const unit = joint.type === 'prismatic' ? 'mm' : 'deg';
-    const v = num(h.q[j], `q${j + 1}`, unit);
+    const v = cellNumber(rec[h.q[j]], line, `q${j + 1}`, unit, problem);
+    if (v !== v) bad = true; // NaN: reported
     q[j] = v;
     if (Number.isFinite(v) && ((joint.min !== undefined && v < joint.min) || (joint.max !== undefined && v > joint.max))) {
       outsideLimits.push({
@@ -488,9 +511,10 @@ function readRow(
       });
     }
   }
-  const x = num(h.x, 'x', 'mm');
-  const y = num(h.y, 'y', 'mm');
-  const z = num(h.z, 'z', 'mm');
+  const x = cellNumber(rec[h.x], line, 'x', 'mm', problem);
+  const y = cellNumber(rec[h.y], line, 'y', 'mm', problem);
+  const z = cellNumber(rec[h.z], line, 'z', 'mm', problem);
+  if (x !== x || y !== y || z !== z) bad = true;
   let split: SessionPose['split'];
   if (h.split >= 0) {
     const s = rec[h.split].trim().toLowerCase();
