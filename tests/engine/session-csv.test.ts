@@ -156,6 +156,35 @@ describe('parseSessionCsv: limits and repeats', () => {
   });
 });
 
+describe('parseSessionCsv: line numbers and byte boundaries', () => {
+  const H = 'pose,q1,q2,q3,q4,q5,q6,x,y,z';
+
+  it('counts the lines inside a quoted multi-line field', async () => {
+    const text = `${H}\n"two\nlines",1,2,3,4,5,6,7,8,9\nP2,1,2,3,4,5,6,7,8,x\n`;
+    const r = failed(await parseSessionCsv(text, { fileName: 'q.csv', geometry: vx }));
+    expect(r.problems).toEqual([expect.objectContaining({ line: 4, column: 'z' })]);
+  });
+
+  it('a data row separated by semicolons under a comma header is located and explained', async () => {
+    const r = failed(await parseSessionCsv(`${H}\nP1;1;2;3;4;5;6;7;8;9\n`, { fileName: 'd.csv', geometry: vx }));
+    expect(r.problems[0]).toMatchObject({ line: 2, message: expect.stringMatching(/1 field but the header has 10 — the row is separated by ";" or tabs/) });
+  });
+
+  it('invalid UTF-8 split across chunks, and a character cut at the end of the file', async () => {
+    const start = Buffer.from(`${H}\nP1`);
+    const r1 = failed(await parseSessionCsv(Readable.from([start, Uint8Array.of(0xc3), Uint8Array.of(0x28, 0x2c)]), { fileName: 'u.csv', geometry: vx }));
+    expect(r1.problems[0]).toMatchObject({ line: 2, message: 'not a CSV text file: the bytes are not valid UTF-8' });
+    const r2 = failed(await parseSessionCsv(Readable.from([start, Uint8Array.of(0xe2, 0x82)]), { fileName: 'u.csv', geometry: vx }));
+    expect(r2.problems[0].message).toMatch(/truncated character at the end/);
+    // a valid three-byte character split 1 + 2 is fine
+    const ok = `${H}\n"P€",1,2,3,4,5,6,7,8,9\n`;
+    const bytes = Buffer.from(ok);
+    const cut = bytes.indexOf(0xe2) + 1;
+    const r3 = passed(await parseSessionCsv(Readable.from([bytes.subarray(0, cut), bytes.subarray(cut)]), { fileName: 'u.csv', geometry: vx }));
+    expect(r3.poses[0].label).toBe('P€');
+  });
+});
+
 describe('sessionToCsv / planToCsv', () => {
   it('writes a session that reads back identically, full precision', async () => {
     const poses: SessionPose[] = [
@@ -172,5 +201,9 @@ describe('sessionToCsv / planToCsv', () => {
     const text = planToCsv([[1, 2, 3, 4, 5, 6], [0.5, 0, 0, 0, 0, -0.25]], vx);
     expect(text).toBe('pose,q1,q2,q3,q4,q5,q6\nP1,1,2,3,4,5,6\nP2,0.5,0,0,0,0,-0.25\n');
     expect(() => planToCsv([[1, 2]], vx)).toThrow(/expected 6/);
+    // rounded to 0.001 (deg / mm) by default; labels zero-padded to sort as text
+    const many = planToCsv(Array.from({ length: 10 }, () => [1 / 3, -2 / 3, 1e-9, -1e-9, 179.99951, 0]), vx).split('\n');
+    expect(many[1]).toBe('P01,0.333,-0.667,0,0,180,0');
+    expect(many[10]).toMatch(/^P10,/);
   });
 });

@@ -553,14 +553,18 @@ export function sessionToCsv(poses: SessionPose[], jointCount: number): string {
   return lines.join('\n') + '\n';
 }
 
-/** A pose plan as CSV: header pose,q1..qn, labels P1, P2, … */
-export function planToCsv(q: number[][], geometry: ArmGeometry): string {
+/**
+ * A pose plan as CSV: header pose,q1..qn, labels P1, P2, … (zero-padded). Joint values are rounded to
+ * `decimals` (default 3: 0.001 deg / 0.001 mm, finer than a technician can jog to) — a plan is a target
+ * to drive to, not a measurement.
+ */
+export function planToCsv(q: number[][], geometry: ArmGeometry, decimals = 3): string {
   const n = geometry.joints.length;
   const width = String(q.length).length;
   const lines = [['pose', ...Array.from({ length: n }, (_, k) => `q${k + 1}`)].join(',')];
   q.forEach((row, i) => {
     if (row.length !== n) throw new Error(`plan row ${i + 1}: ${row.length} joint values, expected ${n}`);
-    lines.push([`P${String(i + 1).padStart(width, '0')}`, ...row.map(String)].join(','));
+    lines.push([`P${String(i + 1).padStart(width, '0')}`, ...row.map((v) => String(Number(v.toFixed(decimals)) || 0))].join(','));
   });
   return lines.join('\n') + '\n';
 }
