@@ -1,3 +1,5 @@
+import { config } from './config';
+import { log } from './log';
 import { startMailSender } from './mail';
 
 let started = false;
@@ -8,4 +10,12 @@ export function startBackground() {
   started = true;
   if (process.env.VITEST) return;
   startMailSender();
+  if (config().RUN_WORKER) {
+    // Loaded on demand so instances without a worker never open the queue's connections for it.
+    void import('./jobs').then(({ startWorker, stopWorker }) => {
+      void startWorker({ concurrency: 1 }).catch((err) => log('error', 'fit worker did not start', { error: String(err) }));
+      // A running fit finishes (or is handed back to the queue) before the process exits.
+      process.once('SIGTERM', () => void stopWorker(10_000).finally(() => process.exit(0)));
+    });
+  }
 }

@@ -1,0 +1,202 @@
+/**
+ * Compare two geometries of a unit — the nominal of its model revision, an approved parameter set, or a
+ * fit's calibrated geometry — parameter by parameter, and by the predicted position difference over the
+ * unit's workspace: a seeded sample of joint configurations within the joint limits, max and RMS of
+ * |p_A − p_B| at the measured point.
+ *
+ * Positions are compared in each geometry's own robot base frame by default: a calibrated base is where
+ * the robot stood in that session's tracker frame, which changes from visit to visit, so including it
+ * would mostly measure where the tracker was. `includeBase` compares in the measurement frame instead.
+ */
+import { and, eq } from 'drizzle-orm';
+import { armModelRevisions, fits, parameterSets, units } from '../../db/schema';
+import { compileArm, createArmData, forwardKinematics, jointsToInternal } from '../engine/kinematics';
+import { geometryToVector, parameterLayout, toReportUnit } from '../engine/parameters';
+import type { ArmGeometry } from '../engine/types';
+import { db as sharedDb, type Db } from './db';
+import { isUuid } from './http';
+
+export interface GeometryRef {
+  ref: string;
+  label: string;
+  kind: 'nominal' | 'parameter_set' | 'fit';
+  geometry: ArmGeometry;
+  standardErrors: Record<string, number | null>;
+}
+
+/** The geometries a unit can be compared across: nominal, each parameter set, each fitted fit. */
+export async function comparisonChoices(unitId: string, database: Db = sharedDb()) {
+  const sets = await database
+    .select({ id: parameterSets.id, version: parameterSets.version, state: parameterSets.state })
+    .from(parameterSets)
+    .where(eq(parameterSets.unitId, unitId))
+    .orderBy(parameterSets.version);
+  const fitted = await database
+    .select({ id: fits.id, createdAt: fits.createdAt })
+    .from(fits)
+    .where(and(eq(fits.unitId, unitId), eq(fits.state, 'fitted')))
+    .orderBy(fits.createdAt);
+  return [
+    { ref: 'nominal', label: 'Nominal (model revision)' },
+    ...sets.map((s) => ({ ref: s.id, label: `Parameter set v${s.version} (${s.state})` })),
+    ...fitted.map((f) => ({ ref: `fit:${f.id}`, label: `Fit of ${f.createdAt.toISOString().slice(0, 16).replace('T', ' ')} (not approved)` })),
+  ];
+}
+
+/** Resolve 'nominal', a parameter set id, or 'fit:<id>' within one unit. */
+export async function resolveRef(unitId: string, ref: string, database: Db = sharedDb()): Promise<GeometryRef | { error: string }> {
+  if (ref === 'nominal') {
+    const [row] = await database
+      .select({ geometry: armModelRevisions.geometry, revision: armModelRevisions.revision })
+      .from(units)
+      .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
+      .where(eq(units.id, unitId));
+    if (!row) return { error: 'The unit has no model revision.' };
+    return { ref, label: `Nominal (r${row.revision})`, kind: 'nominal', geometry: row.geometry, standardErrors: {} };
+  }
+  if (ref.startsWith('fit:')) {
+    const id = ref.slice(4);
+    if (!isUuid(id)) return { error: `"${ref}" is not a fit reference (fit:<id>).` };
+    const [row] = await database.select({ calibrated: fits.calibrated, report: fits.report, state: fits.state }).from(fits).where(and(eq(fits.id, id), eq(fits.unitId, unitId)));
+    if (!row) return { error: `No fit ${id} for this unit.` };
+    if (row.state !== 'fitted' || !row.calibrated) return { error: `Fit ${id} is ${row.state}; only fitted fits have a calibrated geometry.` };
+    const params = (row.report as { parameters?: { key: string; standardError: number | null }[] } | null)?.parameters ?? [];
+    return { ref, label: 'Fit (not approved)', kind: 'fit', geometry: row.calibrated, standardErrors: Object.fromEntries(params.map((p) => [p.key, p.standardError])) };
+  }
+  if (!isUuid(ref)) return { error: `"${ref}" is not a reference: use nominal, a parameter set id, or fit:<id>.` };
+  const [row] = await database.select().from(parameterSets).where(and(eq(parameterSets.id, ref), eq(parameterSets.unitId, unitId)));
+  if (!row) return { error: `No parameter set ${ref} for this unit.` };
+  return { ref, label: `Parameter set v${row.version}`, kind: 'parameter_set', geometry: row.geometry, standardErrors: row.standardErrors };
+}
+
+export interface ParameterDifference {
+  key: string;
+  joint?: string;
+  name: string;
+  group: string;
+  unit: 'mm' | 'deg';
+  a: number;
+  b: number;
+  difference: number;
+  standardErrorA: number | null;
+  standardErrorB: number | null;
+}
+
+/** Seeded uniform generator (mulberry32, public domain), so a comparison is reproducible. */
+function mulberry32(seed: number): () => number {
+  let s = seed >>> 0;
+  return () => {
+    s = (s + 0x6d2b79f5) >>> 0;
+    let t = s;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+/** Joint range used for sampling: the nominal's limits, else ±180° (revolute) or 0…500 mm (prismatic). */
+export function jointRanges(nominal: ArmGeometry): [number, number][] {
+  return nominal.joints.map((j) => [j.min ?? (j.type === 'prismatic' ? 0 : -180), j.max ?? (j.type === 'prismatic' ? 500 : 180)]);
+}
+
+export interface WorkspaceDifference {
+  samples: number;
+  seed: number;
+  frame: 'robot base' | 'measurement';
+  maxMm: number;
+  rmsMm: number;
+  meanMm: number;
+  /** The configuration with the largest difference (deg / mm). */
+  worstQ: number[];
+}
+
+/** Max / RMS of |p_A − p_B| over `samples` configurations drawn uniformly within `ranges`. */
+export function workspaceDifference(
+  a: ArmGeometry,
+  b: ArmGeometry,
+  ranges: [number, number][],
+  options: { samples?: number; seed?: number; includeBase?: boolean } = {},
+): WorkspaceDifference {
+  const samples = options.samples ?? 2000;
+  const seed = options.seed ?? 1;
+  const strip = (g: ArmGeometry): ArmGeometry => (options.includeBase ? g : { ...g, base: undefined });
+  const ma = compileArm(strip(a)), mb = compileArm(strip(b));
+  if (ma.n !== mb.n || ma.n !== ranges.length) throw new Error('the two geometries have different joint counts');
+  const da = createArmData(ma), db = createArmData(mb);
+  const q = new Array<number>(ma.n);
+  const qa = new Float64Array(ma.n), qb = new Float64Array(mb.n);
+  const rnd = mulberry32(seed);
+  let sum2 = 0, sum = 0, worst = -1, worstQ: number[] = [];
+  for (let s = 0; s < samples; s++) {
+    for (let i = 0; i < ma.n; i++) q[i] = ranges[i]![0] + (ranges[i]![1] - ranges[i]![0]) * rnd();
+    jointsToInternal(ma, q, qa);
+    jointsToInternal(mb, q, qb);
+    forwardKinematics(ma, da, qa);
+    forwardKinematics(mb, db, qb);
+    const e = Math.hypot(da.point[0]! - db.point[0]!, da.point[1]! - db.point[1]!, da.point[2]! - db.point[2]!);
+    sum += e;
+    sum2 += e * e;
+    if (e > worst) {
+      worst = e;
+      worstQ = q.slice();
+    }
+  }
+  return { samples, seed, frame: options.includeBase ? 'measurement' : 'robot base', maxMm: worst, rmsMm: Math.sqrt(sum2 / samples), meanMm: sum / samples, worstQ };
+}
+
+/** Parameter-by-parameter differences b − a, in report units (mm / deg), in the layout's group order. */
+export function parameterDifferences(a: GeometryRef, b: GeometryRef): ParameterDifference[] {
+  const layout = parameterLayout(a.geometry);
+  const va = geometryToVector(a.geometry), vb = geometryToVector(b.geometry);
+  const hasBeta = (g: ArmGeometry, i: number) => g.joints[i]?.beta !== undefined;
+  const order = ['lengths', 'twists', 'offsets', 'beta', 'base', 'tool', 'tool-rotation'];
+  return layout.params
+    .filter((p) => !(p.owner === 'joint' && p.name === 'beta' && !hasBeta(a.geometry, p.jointIndex!) && !hasBeta(b.geometry, p.jointIndex!)))
+    .map((p) => {
+      const av = toReportUnit(p, va[p.index]!), bv = toReportUnit(p, vb[p.index]!);
+      return {
+        key: p.key,
+        ...(p.joint !== undefined ? { joint: p.joint } : {}),
+        name: p.name,
+        group: p.group === 'tool-rotation' ? 'tool' : p.group,
+        unit: p.unit,
+        a: av,
+        b: bv,
+        difference: bv - av,
+        standardErrorA: a.standardErrors[p.key] ?? null,
+        standardErrorB: b.standardErrors[p.key] ?? null,
+      };
+    })
+    .sort((x, y) => order.indexOf(x.group) - order.indexOf(y.group));
+}
+
+export type CompareResult =
+  | { ok: true; a: Omit<GeometryRef, 'geometry' | 'standardErrors'>; b: Omit<GeometryRef, 'geometry' | 'standardErrors'>; parameters: ParameterDifference[]; workspace: WorkspaceDifference }
+  | { ok: false; status: 400 | 404; error: string; errors?: { field: string; message: string }[] };
+
+export async function compareForUnit(
+  serial: string,
+  refA: string,
+  refB: string,
+  options: { samples?: number; includeBase?: boolean } = {},
+  database: Db = sharedDb(),
+): Promise<CompareResult> {
+  const [unit] = await database
+    .select({ id: units.id, nominal: armModelRevisions.geometry })
+    .from(units)
+    .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
+    .where(eq(units.serial, serial));
+  if (!unit) return { ok: false, status: 404, error: `No unit ${serial}.` };
+  const [a, b] = await Promise.all([resolveRef(unit.id, refA, database), resolveRef(unit.id, refB, database)]);
+  const errors = [
+    ...('error' in a ? [{ field: 'a', message: a.error }] : []),
+    ...('error' in b ? [{ field: 'b', message: b.error }] : []),
+  ];
+  if ('error' in a || 'error' in b) return { ok: false, status: 400, error: 'Cannot compare these references.', errors };
+  if (a.geometry.joints.length !== b.geometry.joints.length) {
+    return { ok: false, status: 400, error: 'The two geometries have different joint counts.', errors: [{ field: 'b', message: `${b.geometry.joints.length} joints against ${a.geometry.joints.length}` }] };
+  }
+  const workspace = workspaceDifference(a.geometry, b.geometry, jointRanges(unit.nominal), options);
+  const strip = ({ geometry: _g, standardErrors: _s, ...rest }: GeometryRef) => rest;
+  return { ok: true, a: strip(a), b: strip(b), parameters: parameterDifferences(a, b), workspace };
+}

@@ -1,0 +1,107 @@
+/**
+ * Runs one fit of the engine off the caller's event loop when it can: in a worker thread that loads
+ * src/lib/server/fit-thread.ts through tsx's loader (the engine is synchronous, so progress can only be
+ * written to the database while the fit runs if the fit runs on another thread). When the source tree or
+ * tsx is not at hand (or OFFSETRY_FIT_THREAD=off), the fit runs in-process; progress is then reported once,
+ * at the end.
+ */
+import { existsSync } from 'node:fs';
+import { createRequire } from 'node:module';
+import path from 'node:path';
+import { fileURLToPath, pathToFileURL } from 'node:url';
+import { Worker } from 'node:worker_threads';
+import { fitSession, type FitOptions, type FitReport, type IterationInfo } from '../engine/fit';
+import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
+import type { FitThreadInput, FitThreadMessage } from './fit-thread';
+import { log } from './log';
+
+const THREAD_FILE = path.join('src', 'lib', 'server', 'fit-thread.ts');
+
+/** The project folder holding the source tree: the working directory, else a parent of this module. */
+function projectRoot(): string | undefined {
+  const candidates = [process.cwd()];
+  try {
+    let dir = path.dirname(fileURLToPath(import.meta.url));
+    for (let i = 0; i < 8; i++) {
+      candidates.push(dir);
+      dir = path.dirname(dir);
+    }
+  } catch {
+    // import.meta.url is always a file URL in Node; nothing else to try.
+  }
+  return candidates.find((d) => existsSync(path.join(d, THREAD_FILE)) && existsSync(path.join(d, 'node_modules', 'tsx')));
+}
+
+let threadCode: string | null | undefined;
+
+/** The bootstrap of the thread: register tsx, then import fit-thread.ts. null when threads are unavailable. */
+function bootstrap(): string | null {
+  if (threadCode !== undefined) return threadCode;
+  threadCode = null;
+  if (process.env.OFFSETRY_FIT_THREAD === 'off') return threadCode;
+  const root = projectRoot();
+  if (!root) return threadCode;
+  try {
+    const tsxApi = createRequire(path.join(root, 'package.json')).resolve('tsx/esm/api');
+    const target = pathToFileURL(path.join(root, THREAD_FILE)).href;
+    threadCode =
+      `import(${JSON.stringify(pathToFileURL(tsxApi).href)})` +
+      `.then((m) => { m.register(); return import(${JSON.stringify(target)}); })` +
+      `.catch((e) => { require('node:worker_threads').parentPort.postMessage({ type: 'error', message: 'fit thread did not start: ' + (e && e.stack || e) }); });`;
+  } catch {
+    threadCode = null;
+  }
+  return threadCode;
+}
+
+export type EngineMode = 'thread' | 'in-process';
+
+export function engineMode(): EngineMode {
+  return bootstrap() ? 'thread' : 'in-process';
+}
+
+export interface EngineRun {
+  nominal: ArmGeometry;
+  poses: SessionPose[];
+  options: Omit<FitOptions, 'onIteration'>;
+  onIteration?: (it: Pick<IterationInfo, 'iteration' | 'cost' | 'rmsMm'>) => void;
+  /** Give up after this long (ms); the thread is terminated. */
+  timeoutMs?: number;
+}
+
+/** Fit in a worker thread (or in-process as a fallback). Rejects with EngineInputError on bad input. */
+export async function runEngine(run: EngineRun): Promise<FitReport> {
+  const code = bootstrap();
+  if (!code) {
+    return fitSession(run.nominal, run.poses, { ...run.options, onIteration: run.onIteration });
+  }
+  const input: FitThreadInput = { nominal: run.nominal, poses: run.poses, options: run.options };
+  return new Promise<FitReport>((resolve, reject) => {
+    const worker = new Worker(code, { eval: true, workerData: input });
+    let settled = false;
+    const finish = (fn: () => void) => {
+      if (settled) return;
+      settled = true;
+      clearTimeout(timer);
+      fn();
+      void worker.terminate();
+    };
+    const timer = setTimeout(
+      () => finish(() => reject(new Error(`the fit did not finish within ${Math.round((run.timeoutMs ?? 0) / 1000)} s`))),
+      run.timeoutMs ?? 10 * 60_000,
+    );
+    worker.on('message', (m: FitThreadMessage) => {
+      if (m.type === 'iteration') run.onIteration?.(m);
+      else if (m.type === 'done') finish(() => resolve(m.report as FitReport));
+      else if (m.type === 'input-error') finish(() => reject(new EngineInputError(m.problems)));
+      else finish(() => reject(new Error(m.message)));
+    });
+    worker.on('error', (err) => finish(() => reject(err)));
+    worker.on('exit', (codeNo) => {
+      if (!settled) {
+        log('warn', 'fit thread exited early', { code: codeNo });
+        finish(() => reject(new Error(`the fit thread stopped (exit code ${codeNo}) before it finished`)));
+      }
+    });
+  });
+}

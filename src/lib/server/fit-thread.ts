@@ -1,0 +1,36 @@
+/**
+ * Worker-thread entry of a fit: runs the engine's fitSession on the data it is given and posts progress and
+ * the result back. Loaded by src/lib/server/engine-runner.ts through tsx's loader, so it runs from the source
+ * tree both under tsx (scripts/worker.ts) and inside the built app.
+ */
+import { parentPort, workerData } from 'node:worker_threads';
+import { fitSession, type FitOptions } from '../engine/fit';
+import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
+
+export interface FitThreadInput {
+  nominal: ArmGeometry;
+  poses: SessionPose[];
+  options: Omit<FitOptions, 'onIteration'>;
+}
+
+export type FitThreadMessage =
+  | { type: 'iteration'; iteration: number; cost: number; rmsMm: number }
+  | { type: 'done'; report: unknown }
+  | { type: 'input-error'; message: string; problems: EngineInputError['problems'] }
+  | { type: 'error'; message: string };
+
+const port = parentPort;
+if (port) {
+  const input = workerData as FitThreadInput;
+  const post = (m: FitThreadMessage) => port.postMessage(m);
+  try {
+    const report = fitSession(input.nominal, input.poses, {
+      ...input.options,
+      onIteration: (it) => post({ type: 'iteration', iteration: it.iteration, cost: it.cost, rmsMm: it.rmsMm }),
+    });
+    post({ type: 'done', report });
+  } catch (err) {
+    if (err instanceof EngineInputError) post({ type: 'input-error', message: err.message, problems: err.problems });
+    else post({ type: 'error', message: String((err as Error)?.stack ?? err) });
+  }
+}

@@ -1,0 +1,267 @@
+/**
+ * Fits: one identification run over a session with its settings. Created here (row + audit in one
+ * transaction, then queued as a job: src/lib/server/jobs.ts runs it), read while it runs (state, progress)
+ * and afterwards (the engine's full report), listed, and re-run with poses excluded (a new fit; the old
+ * one is kept).
+ */
+import { aliasedTable, and, count, desc, eq, isNull, sql, type SQL } from 'drizzle-orm';
+import { z } from 'zod';
+import { FIT_STATES, REVIEW_STATES, fits, parameterSets, sessionPoses, sessions, units, users, type FitState, type ReviewState } from '../../db/schema';
+import type { FitOptions } from '../engine/fit';
+import { PARAMETER_GROUPS } from '../engine/types';
+import { audit } from './audit';
+import { db as sharedDb, type Db } from './db';
+import type { FieldProblem } from './http';
+import { log } from './log';
+
+/** Fit settings as the API and the pages take them; stored unchanged on the fit. */
+export const fitSettingsSchema = z.strictObject({
+  groups: z
+    .array(z.enum(PARAMETER_GROUPS, { error: `groups: each entry must be one of ${PARAMETER_GROUPS.join(', ')}` }))
+    .min(1, 'choose at least one parameter group')
+    .refine((g) => new Set(g).size === g.length, 'each parameter group once')
+    .default([...PARAMETER_GROUPS]),
+  holdout: z.number({ error: 'holdout must be a number from 0 to 0.5' }).min(0, 'holdout is at least 0').max(0.5, 'holdout is at most 0.5 (half the poses)').default(0),
+  useSplitColumn: z.boolean({ error: 'useSplitColumn must be true or false' }).default(true),
+  robust: z.boolean({ error: 'robust must be true or false' }).default(false),
+  outlierThreshold: z.number({ error: 'outlierThreshold must be a number from 2 to 10' }).min(2, 'outlierThreshold is at least 2').max(10, 'outlierThreshold is at most 10').default(3),
+  exclude: z
+    .array(z.string({ error: 'exclude lists pose labels (text)' }).trim().min(1, 'an excluded pose label must not be empty').max(100))
+    .max(10_000, 'exclude lists at most 10 000 poses')
+    .default([]),
+  kFold: z
+    .number({ error: 'kFold must be 0 (off) or a whole number from 3 to 10' })
+    .int('kFold must be a whole number')
+    .refine((k) => k === 0 || (k >= 3 && k <= 10), 'kFold must be 0 (off) or from 3 to 10')
+    .default(0),
+  seed: z.number({ error: 'seed must be a whole number' }).int('seed must be a whole number').min(1).max(2 ** 31 - 1).default(1),
+});
+export type FitSettings = z.infer<typeof fitSettingsSchema>;
+
+/** The engine's options for stored settings (robust on = Huber loss at the engine's default scale). */
+export function toFitOptions(s: FitSettings): Omit<FitOptions, 'onIteration'> {
+  return {
+    groups: s.groups,
+    holdout: s.holdout,
+    useSplitColumn: s.useSplitColumn,
+    robust: s.robust ? 'huber' : 'none',
+    outlierThreshold: s.outlierThreshold,
+    exclude: s.exclude,
+    kFold: s.kFold,
+    seed: s.seed,
+  };
+}
+
+/** Refit body: poses to exclude (added to the parent's) and any setting to change. */
+export const refitSchema = fitSettingsSchema.partial();
+export type RefitInput = z.infer<typeof refitSchema>;
+
+export type CreateResult = { ok: true; id: string } | { ok: false; status: 400 | 404 | 409; error: string; errors?: FieldProblem[] };
+
+/** Exclusions must name poses of the session: a label, or "line:N" for one row. */
+async function unknownExclusions(database: Db, sessionId: string, exclude: string[]): Promise<FieldProblem[]> {
+  if (!exclude.length) return [];
+  const rows = await database.select({ label: sessionPoses.label, line: sessionPoses.line }).from(sessionPoses).where(eq(sessionPoses.sessionId, sessionId));
+  const labels = new Set(rows.map((r) => r.label));
+  const lines = new Set(rows.map((r) => `line:${r.line}`));
+  return exclude
+    .map((e, i) => ({ e, i }))
+    .filter(({ e }) => !labels.has(e) && !lines.has(e))
+    .slice(0, 50)
+    .map(({ e, i }) => ({ field: `exclude.${i}`, message: `the session has no pose "${e}"`, expected: 'a pose label of the session, or line:N for one row' }));
+}
+
+/**
+ * Create a fit of a session and queue it. The row and its audit entry commit together; the job is queued
+ * after the commit (a fit whose enqueue was lost is picked up by the worker's sweep).
+ */
+export async function createFit(
+  sessionId: string,
+  settings: FitSettings,
+  actorId: string,
+  options: { parentFitId?: string; database?: Db; enqueue?: (fitId: string) => Promise<void> } = {},
+): Promise<CreateResult> {
+  const database = options.database ?? sharedDb();
+  const [session] = await database.select({ id: sessions.id, unitId: sessions.unitId, poseCount: sessions.poseCount }).from(sessions).where(eq(sessions.id, sessionId));
+  if (!session) return { ok: false, status: 404, error: 'No such session.' };
+  const bad = await unknownExclusions(database, sessionId, settings.exclude);
+  if (bad.length) return { ok: false, status: 400, error: 'Some excluded poses are not in the session.', errors: bad };
+  const id = await database.transaction(async (tx) => {
+    const [row] = await tx
+      .insert(fits)
+      .values({ sessionId, unitId: session.unitId, parentFitId: options.parentFitId ?? null, state: 'queued', settings, createdBy: actorId })
+      .returning({ id: fits.id });
+    await audit(tx, {
+      actorId,
+      unitId: session.unitId,
+      entityType: 'fit',
+      entityId: row!.id,
+      action: 'fit.created',
+      details: { sessionId, settings, ...(options.parentFitId ? { parentFitId: options.parentFitId } : {}) },
+    });
+    return row!.id;
+  });
+  const enqueue = options.enqueue ?? (async (fitId: string) => (await import('./jobs')).enqueueFit(fitId));
+  try {
+    await enqueue(id);
+  } catch (err) {
+    // The row exists in state queued; the worker's sweep queues it again.
+    log('warn', 'fit enqueue failed; the sweep will pick it up', { fitId: id, error: String((err as Error)?.message ?? err) });
+  }
+  return { ok: true, id };
+}
+
+/** A new fit from an earlier one: its settings, the overrides, and its exclusions plus the new ones. */
+export async function refit(parentId: string, input: RefitInput, actorId: string, database: Db = sharedDb()): Promise<CreateResult> {
+  const [parent] = await database.select().from(fits).where(eq(fits.id, parentId));
+  if (!parent) return { ok: false, status: 404, error: 'No such fit.' };
+  const base = fitSettingsSchema.safeParse(parent.settings);
+  const merged = { ...(base.success ? base.data : {}), ...input };
+  merged.exclude = [...new Set([...(base.success ? base.data.exclude : []), ...(input.exclude ?? [])])];
+  const parsed = fitSettingsSchema.safeParse(merged);
+  if (!parsed.success) return { ok: false, status: 400, error: 'Invalid fit settings.', errors: parsed.error.issues.map((i) => ({ field: i.path.join('.') || undefined, message: i.message })) };
+  return createFit(parent.sessionId, parsed.data, actorId, { parentFitId: parentId, database });
+}
+
+const creator = aliasedTable(users, 'creator');
+const submitter = aliasedTable(users, 'submitter');
+const decider = aliasedTable(users, 'decider');
+
+const summaryColumns = {
+  id: fits.id,
+  sessionId: fits.sessionId,
+  unitId: fits.unitId,
+  unitSerial: units.serial,
+  sessionMeasuredOn: sessions.measuredOn,
+  sessionFileName: sessions.fileName,
+  parentFitId: fits.parentFitId,
+  state: fits.state,
+  reviewState: fits.reviewState,
+  settings: fits.settings,
+  progress: fits.progress,
+  error: fits.error,
+  engineVersion: fits.engineVersion,
+  attempts: fits.attempts,
+  durationMs: fits.durationMs,
+  createdAt: fits.createdAt,
+  startedAt: fits.startedAt,
+  finishedAt: fits.finishedAt,
+  createdBy: fits.createdBy,
+  createdByName: creator.name,
+  submittedBy: fits.submittedBy,
+  submittedByName: submitter.name,
+  submittedAt: fits.submittedAt,
+  decidedBy: fits.decidedBy,
+  decidedByName: decider.name,
+  decidedAt: fits.decidedAt,
+  decisionComment: fits.decisionComment,
+  // Read inside PostgreSQL so lists never load whole reports.
+  rmsBeforeMm: sql<number | null>`(${fits.report} #>> '{statistics,fit,before,rms}')::float8`,
+  rmsAfterMm: sql<number | null>`(${fits.report} #>> '{statistics,fit,after,rms}')::float8`,
+};
+
+const detailColumns = { ...summaryColumns, inputChecksums: fits.inputChecksums, report: fits.report, calibrated: fits.calibrated };
+
+function joinedSummary(database: Db) {
+  return database
+    .select(summaryColumns)
+    .from(fits)
+    .innerJoin(units, eq(units.id, fits.unitId))
+    .innerJoin(sessions, eq(sessions.id, fits.sessionId))
+    .leftJoin(creator, eq(creator.id, fits.createdBy))
+    .leftJoin(submitter, eq(submitter.id, fits.submittedBy))
+    .leftJoin(decider, eq(decider.id, fits.decidedBy));
+}
+
+function joinedDetail(database: Db) {
+  return database
+    .select(detailColumns)
+    .from(fits)
+    .innerJoin(units, eq(units.id, fits.unitId))
+    .innerJoin(sessions, eq(sessions.id, fits.sessionId))
+    .leftJoin(creator, eq(creator.id, fits.createdBy))
+    .leftJoin(submitter, eq(submitter.id, fits.submittedBy))
+    .leftJoin(decider, eq(decider.id, fits.decidedBy));
+}
+
+export interface FitSummary {
+  id: string;
+  sessionId: string;
+  unitId: string;
+  unitSerial: string;
+  sessionMeasuredOn: string;
+  sessionFileName: string;
+  parentFitId: string | null;
+  state: FitState;
+  reviewState: ReviewState | null;
+  settings: Record<string, unknown>;
+  progress: { iteration: number; rmsMm: number; cost: number } | null;
+  error: string | null;
+  engineVersion: string | null;
+  attempts: number;
+  durationMs: number | null;
+  createdAt: Date;
+  startedAt: Date | null;
+  finishedAt: Date | null;
+  createdBy: string | null;
+  createdByName: string | null;
+  submittedBy: string | null;
+  submittedByName: string | null;
+  submittedAt: Date | null;
+  decidedBy: string | null;
+  decidedByName: string | null;
+  decidedAt: Date | null;
+  decisionComment: string | null;
+  /** Before/after RMS of the fit poses (mm), once fitted. */
+  rmsBeforeMm?: number | null;
+  rmsAfterMm?: number | null;
+}
+
+export interface FitDetail extends FitSummary {
+  inputChecksums: { sessionFile: string; nominalGeometry: string } | null;
+  report: Record<string, unknown> | null;
+  calibrated: unknown;
+  /** The parameter set this fit's approval created, if any. */
+  parameterSet: { id: string; version: number; state: string } | null;
+}
+
+/** One fit with everything: status and progress while it runs, then the full engine report. */
+export async function getFit(id: string, database: Db = sharedDb()): Promise<FitDetail | undefined> {
+  const [row] = await joinedDetail(database).where(eq(fits.id, id));
+  if (!row) return undefined;
+  const [set] = await database.select({ id: parameterSets.id, version: parameterSets.version, state: parameterSets.state }).from(parameterSets).where(eq(parameterSets.fitId, id));
+  return { ...(row as unknown as FitDetail), parameterSet: set ?? null };
+}
+
+export const fitListQuerySchema = z.strictObject({
+  unit: z.string().trim().min(1).max(64).optional(),
+  session: z.uuid({ error: 'session must be a session id' }).optional(),
+  state: z.enum(FIT_STATES, { error: `state must be one of ${FIT_STATES.join(', ')}` }).optional(),
+  review: z.enum([...REVIEW_STATES, 'none'] as const, { error: `review must be one of ${[...REVIEW_STATES, 'none'].join(', ')}` }).optional(),
+  page: z.coerce.number({ error: 'page must be a whole number ≥ 1' }).int('page must be a whole number ≥ 1').min(1, 'page must be a whole number ≥ 1').max(100_000).default(1),
+  pageSize: z.coerce.number({ error: 'pageSize must be a whole number from 1 to 200' }).int().min(1).max(200).default(25),
+});
+export type FitListQuery = z.infer<typeof fitListQuerySchema>;
+
+/** Fits newest first, filtered by unit serial, session, state and review state; paginated. */
+export async function listFits(query: Partial<FitListQuery>, database: Db = sharedDb()) {
+  const q = fitListQuerySchema.parse(query);
+  const where: SQL[] = [];
+  if (q.unit) where.push(eq(units.serial, q.unit));
+  if (q.session) where.push(eq(fits.sessionId, q.session));
+  if (q.state) where.push(eq(fits.state, q.state));
+  if (q.review === 'none') where.push(isNull(fits.reviewState));
+  else if (q.review) where.push(eq(fits.reviewState, q.review));
+  const cond = where.length ? and(...where) : undefined;
+  const [{ total } = { total: 0 }] = await database
+    .select({ total: count() })
+    .from(fits)
+    .innerJoin(units, eq(units.id, fits.unitId))
+    .where(cond);
+  const rows = await joinedSummary(database)
+    .where(cond)
+    .orderBy(desc(fits.createdAt), desc(fits.id))
+    .limit(q.pageSize)
+    .offset((q.page - 1) * q.pageSize);
+  return { items: rows as unknown as FitSummary[], total, page: q.page, pageSize: q.pageSize };
+}

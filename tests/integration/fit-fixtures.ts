@@ -1,0 +1,148 @@
+/**
+ * Invented data for fit and review tests, written straight into the database: an arm model "TQ-6"
+ * (six axes, modified DH, made up for Offsetry), a unit, and a session whose poses are predicted by a
+ * "true" geometry (nominal plus invented errors, placed in an invented tracker frame) with tracker-like
+ * noise. The session's S3 object is not needed: fits read the poses from session_poses.
+ */
+import { createHash } from 'node:crypto';
+import { armModelRevisions, armModels, sessionPoses, sessions, units } from '../../src/db/schema';
+import { forwardPoint } from '../../src/lib/engine/kinematics';
+import type { ArmGeometry } from '../../src/lib/engine/types';
+import { createDb, type Db } from '../../src/lib/server/db';
+import { uniq } from '../support/http';
+
+let shared: Db | undefined;
+export function testDb(): Db {
+  shared ??= createDb(process.env.DATABASE_URL!, { max: 4 });
+  return shared;
+}
+
+export function nominalTq6(): ArmGeometry {
+  return {
+    format: 'offsetry-arm/1',
+    name: 'TQ-6 (invented test arm)',
+    convention: 'mdh',
+    joints: [
+      { name: 'J1', type: 'revolute', a: 0, alpha: 0, d: 350, theta: 0, min: -160, max: 160 },
+      { name: 'J2', type: 'revolute', a: 75, alpha: -90, d: 0, theta: -90, min: -100, max: 80 },
+      { name: 'J3', type: 'revolute', a: 420, alpha: 0, d: 0, theta: 0, beta: 0, min: -90, max: 130 },
+      { name: 'J4', type: 'revolute', a: 35, alpha: -90, d: 410, theta: 0, min: -170, max: 170 },
+      { name: 'J5', type: 'revolute', a: 0, alpha: 90, d: 0, theta: 0, min: -110, max: 110 },
+      { name: 'J6', type: 'revolute', a: 0, alpha: -90, d: 80, theta: 0, min: -330, max: 330 },
+    ],
+    tool: { x: 0, y: 0, z: 95, rx: 0, ry: 0, rz: 0 },
+  };
+}
+
+/** Nominal plus invented errors, in an invented tracker placement. */
+export function trueTq6(): ArmGeometry {
+  const g = nominalTq6();
+  const errors: [number, number, number, number][] = [
+    [0, 0, 0, 0],
+    [0.18, -0.025, 0, 0.038],
+    [-0.29, 0.021, 0, -0.031],
+    [0.12, 0.03, -0.22, 0.045],
+    [-0.07, -0.035, 0, -0.021],
+    [0, 0.019, 0.14, 0],
+  ];
+  g.joints.forEach((j, i) => {
+    const [da, dal, dd, dth] = errors[i]!;
+    j.a += da;
+    j.alpha += dal;
+    j.d += dd;
+    j.theta += dth;
+  });
+  g.joints[2]!.beta = 0.03;
+  g.base = { x: 1820.5, y: -512.3, z: -244.9, rx: 0.09, ry: -0.06, rz: 21.4 };
+  g.tool = { x: 0.35, y: -0.27, z: 95.48, rx: 0, ry: 0, rz: 0 };
+  return g;
+}
+
+function rng(seed: number) {
+  // mulberry32 (public domain), seeded so each fixture is reproducible.
+  let s = seed >>> 0;
+  return () => {
+    s = (s + 0x6d2b79f5) >>> 0;
+    let t = s;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+export interface Fixture {
+  modelId: string;
+  revisionId: string;
+  unitId: string;
+  serial: string;
+  sessionId: string;
+  poseLabels: string[];
+}
+
+/**
+ * A unit with one session of `count` poses. `outlier` adds a 1.5 mm error to pose P007 (a bumped target).
+ * `split` marks every fifth pose 'validate'.
+ */
+export async function createFixture(options: { count?: number; seed?: number; outlier?: boolean; split?: boolean } = {}): Promise<Fixture> {
+  const db = testDb();
+  const count = options.count ?? 60;
+  const r = rng(options.seed ?? 7);
+  const nominal = nominalTq6();
+  const truth = trueTq6();
+  const [model] = await db.insert(armModels).values({ name: `TQ-6 ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
+  const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry: nominal }).returning();
+  const serial = `TQ6-${uniq()}`;
+  const [unit] = await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Test hall', cell: 'C1' }).returning();
+  const noise = () => 0.015 * Math.sqrt(-2 * Math.log(Math.max(r(), 1e-300))) * Math.cos(2 * Math.PI * r()); // Box–Muller
+  const poses = Array.from({ length: count }, (_, i) => {
+    const q = nominal.joints.map((j) => j.min! * 0.8 + (j.max! - j.min!) * 0.8 * r());
+    const p = forwardPoint(truth, q);
+    const label = `P${String(i + 1).padStart(3, '0')}`;
+    const bump = options.outlier && label === 'P007' ? 1.5 : 0;
+    return {
+      idx: i,
+      line: i + 2,
+      label,
+      q,
+      x: p[0] + noise() + bump,
+      y: p[1] + noise(),
+      z: p[2] + noise(),
+      split: options.split ? ((i % 5 === 4 ? 'validate' : 'fit') as 'fit' | 'validate') : null,
+    };
+  });
+  const csv = poses.map((p) => [p.label, ...p.q, p.x, p.y, p.z].join(',')).join('\n');
+  const sha = createHash('sha256').update(csv).digest('hex');
+  const [session] = await db
+    .insert(sessions)
+    .values({
+      unitId: unit!.id,
+      modelRevisionId: rev!.id,
+      measuredOn: '2026-11-20',
+      technician: 'Test technician',
+      instrument: 'Invented tracker T-1',
+      fileName: `${serial}.csv`,
+      fileKey: `test/${serial}/${sha}.csv`,
+      fileSha256: sha,
+      fileBytes: csv.length,
+      poseCount: count,
+      jointCount: 6,
+      hasSplit: !!options.split,
+    })
+    .returning();
+  await db.insert(sessionPoses).values(poses.map((p) => ({ sessionId: session!.id, ...p })));
+  return { modelId: model!.id, revisionId: rev!.id, unitId: unit!.id, serial, sessionId: session!.id, poseLabels: poses.map((p) => p.label) };
+}
+
+/** Poll GET /api/fits/{id} until the fit leaves queued/running; returns the last body and the states seen. */
+export async function waitForFit(client: { json: (path: string) => Promise<{ status: number; body: any }> }, id: string, timeoutMs = 60_000) {
+  const seen = new Set<string>();
+  const deadline = Date.now() + timeoutMs;
+  for (;;) {
+    const res = await client.json(`/api/fits/${id}`);
+    if (res.status !== 200) throw new Error(`GET /api/fits/${id} answered ${res.status}: ${JSON.stringify(res.body)}`);
+    seen.add(res.body.fit.state);
+    if (res.body.fit.state === 'fitted' || res.body.fit.state === 'failed') return { fit: res.body.fit, seen };
+    if (Date.now() > deadline) throw new Error(`fit ${id} still ${res.body.fit.state} after ${timeoutMs} ms`);
+    await new Promise((r) => setTimeout(r, 150));
+  }
+}
