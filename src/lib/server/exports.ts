@@ -1,0 +1,249 @@
+/**
+ * Export bundles of approved parameter sets for a controller: the arm geometry JSON, a flat CSV of the
+ * parameters, a URDF and a manifest with the SHA-256 of each file (structure: docs/export-files.md).
+ * One set as a single file, or a batch as a zip with one folder per unit plus a top-level manifest.
+ * Every export is written to export_log (who, kind, format, serial + version + set id of each item).
+ */
+import { and, asc, count, desc, eq, inArray } from 'drizzle-orm';
+import JSZip from 'jszip';
+import { z } from 'zod';
+import { armModelRevisions, armModels, exportLog, fits, parameterSets, sessions, units, users } from '../../db/schema';
+import { serializeGeometry } from '../engine/geometry';
+import { SAFETY_CAUTION } from '../shared/safety';
+import { db as sharedDb, type Db } from './db';
+import { mergedOrder, parameterValues } from './parameter-values';
+import { sha256 } from './tokens';
+import { geometryToUrdf } from './urdf';
+
+export const EXPORT_FORMATS = ['json', 'csv', 'urdf'] as const;
+export type ExportFormat = (typeof EXPORT_FORMATS)[number];
+
+export const FILE_NAMES: Record<ExportFormat, string> = { json: 'geometry.json', csv: 'parameters.csv', urdf: 'robot.urdf' };
+export const MEDIA_TYPES: Record<ExportFormat | 'manifest', string> = {
+  json: 'application/json',
+  csv: 'text/csv',
+  urdf: 'application/xml',
+  manifest: 'application/json',
+};
+
+export interface ExportActor {
+  id: string;
+  name: string;
+  email: string;
+}
+
+/** Everything a bundle needs about one set. */
+async function loadSets(where: { setIds?: string[]; unitIds?: string[] }, database: Db) {
+  const cond = where.setIds ? inArray(parameterSets.id, where.setIds) : and(inArray(parameterSets.unitId, where.unitIds!), eq(parameterSets.state, 'current'));
+  return database
+    .select({
+      setId: parameterSets.id,
+      version: parameterSets.version,
+      state: parameterSets.state,
+      geometry: parameterSets.geometry,
+      standardErrors: parameterSets.standardErrors,
+      approvedAt: parameterSets.approvedAt,
+      approverName: users.name,
+      approverEmail: users.email,
+      unitId: units.id,
+      serial: units.serial,
+      nominal: armModelRevisions.geometry,
+      revision: armModelRevisions.revision,
+      modelId: armModels.id,
+      modelName: armModels.name,
+      engineVersion: fits.engineVersion,
+      fitId: fits.id,
+    })
+    .from(parameterSets)
+    .innerJoin(units, eq(units.id, parameterSets.unitId))
+    .innerJoin(users, eq(users.id, parameterSets.approvedBy))
+    .innerJoin(fits, eq(fits.id, parameterSets.fitId))
+    .innerJoin(sessions, eq(sessions.id, fits.sessionId))
+    // The nominal of a set is the revision its fit was made against.
+    .innerJoin(armModelRevisions, eq(armModelRevisions.id, sessions.modelRevisionId))
+    .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
+    .where(cond);
+}
+type SetRow = Awaited<ReturnType<typeof loadSets>>[number];
+
+/** A CSV field: quoted when it holds a comma, quote or line break (RFC 4180). */
+const field = (s: string) => (/[",\r\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s);
+/** Full precision: the shortest decimal that reads back to the same double. */
+const full = (x: number | null | undefined) => (x === null || x === undefined ? '' : String(Object.is(x, -0) ? 0 : x));
+
+/** key, joint, group, unit, nominal, calibrated, change, standard_error — one row per parameter. */
+export function parametersCsv(nominal: SetRow['nominal'], calibrated: SetRow['geometry'], standardErrors: Record<string, number | null>): string {
+  const nom = new Map(parameterValues(nominal).map((p) => [p.key, p.value]));
+  const cal = new Map(parameterValues(calibrated).map((p) => [p.key, p]));
+  const rows = ['key,joint,group,unit,nominal,calibrated,change,standard_error'];
+  for (const p of mergedOrder([parameterValues(calibrated)])) {
+    const c = cal.get(p.key)!.value;
+    const n = nom.get(p.key);
+    rows.push([p.key, field(p.joint ?? ''), p.group, p.unit, full(n), full(c), full(n === undefined ? null : c - n), full(standardErrors[p.key])].join(','));
+  }
+  return rows.join('\r\n') + '\r\n';
+}
+
+interface BuiltFile {
+  name: string;
+  format: ExportFormat;
+  text: string;
+  bytes: Uint8Array;
+  sha256: string;
+}
+
+function buildFiles(s: SetRow): BuiltFile[] {
+  const texts: Record<ExportFormat, string> = {
+    json: serializeGeometry(s.geometry),
+    csv: parametersCsv(s.nominal, s.geometry, s.standardErrors),
+    urdf: geometryToUrdf(s.geometry, {
+      robotName: `${s.modelName} ${s.serial}`,
+      comment: [
+        `Offsetry export: unit ${s.serial}, parameter set v${s.version} (${s.setId}),`,
+        `arm model ${s.modelName} r${s.revision}, approved by ${s.approverName} at ${new Date(s.approvedAt).toISOString()}.`,
+        'Lengths in metres, angles in radians. Geometry only: effort and velocity limits are 0 placeholders.',
+        SAFETY_CAUTION,
+      ],
+    }),
+  };
+  return EXPORT_FORMATS.map((format) => {
+    const bytes = new TextEncoder().encode(texts[format]);
+    return { name: FILE_NAMES[format], format, text: texts[format], bytes, sha256: sha256(bytes) };
+  });
+}
+
+export function unitManifest(s: SetRow, files: BuiltFile[], exportedAt: string) {
+  return {
+    format: 'offsetry-export/1',
+    serial: s.serial,
+    version: s.version,
+    parameterSetId: s.setId,
+    state: s.state,
+    approvedBy: { name: s.approverName, email: s.approverEmail },
+    approvedAt: new Date(s.approvedAt).toISOString(),
+    armModel: { id: s.modelId, name: s.modelName, revision: s.revision },
+    fitId: s.fitId,
+    engineVersion: s.engineVersion,
+    exportedAt,
+    files: files.map((f) => ({ name: f.name, mediaType: MEDIA_TYPES[f.format], bytes: f.bytes.length, sha256: f.sha256 })),
+    safety: SAFETY_CAUTION,
+  };
+}
+
+async function logExport(database: Db, actor: ExportActor, kind: 'single' | 'batch', format: string, sets: SetRow[]) {
+  await database.insert(exportLog).values({
+    userId: actor.id,
+    kind,
+    format,
+    items: sets.map((s) => ({ serial: s.serial, version: s.version, parameterSetId: s.setId })),
+  });
+}
+
+/** One file of one set, logged. Undefined when the set does not exist. */
+export async function exportSingle(setId: string, format: ExportFormat, actor: ExportActor, database: Db = sharedDb()) {
+  const [s] = await loadSets({ setIds: [setId] }, database);
+  if (!s) return undefined;
+  const file = buildFiles(s).find((f) => f.format === format)!;
+  await logExport(database, actor, 'single', format, [s]);
+  return {
+    fileName: `${s.serial}-v${s.version}-${file.name}`,
+    mediaType: MEDIA_TYPES[format],
+    bytes: file.bytes,
+    sha256: file.sha256,
+  };
+}
+
+export const batchSchema = z.strictObject({
+  serials: z
+    .array(z.string({ error: 'each serial number must be text' }).trim().min(1, 'a serial number must not be empty'), { error: 'serials must be a list of serial numbers' })
+    .min(1, 'serials must list at least one serial number')
+    .max(500, 'at most 500 units per batch'),
+});
+
+export type BatchResult =
+  | { ok: true; zip: Uint8Array; fileName: string; manifest: ReturnType<typeof batchManifest> }
+  | { ok: false; unknown: string[]; withoutSet: string[] };
+
+function batchManifest(actor: ExportActor, exportedAt: string, entries: { s: SetRow; files: { path: string; bytes: number; sha256: string }[] }[]) {
+  return {
+    format: 'offsetry-export-batch/1',
+    exportedAt,
+    exportedBy: { name: actor.name, email: actor.email },
+    units: entries.map(({ s, files }) => ({ serial: s.serial, version: s.version, parameterSetId: s.setId, folder: `${s.serial}/`, files })),
+    safety: SAFETY_CAUTION,
+  };
+}
+
+/** Each unit's CURRENT set as a zip: <serial>/geometry.json, parameters.csv, robot.urdf, manifest.json + manifest.json. */
+export async function exportBatch(serials: string[], actor: ExportActor, database: Db = sharedDb()): Promise<BatchResult> {
+  const wanted = [...new Set(serials)];
+  const found = await database.select({ id: units.id, serial: units.serial }).from(units).where(inArray(units.serial, wanted));
+  const known = new Map(found.map((u) => [u.serial, u.id]));
+  const unknown = wanted.filter((s) => !known.has(s));
+  const sets = found.length ? await loadSets({ unitIds: found.map((u) => u.id) }, database) : [];
+  const withSet = new Set(sets.map((s) => s.serial));
+  const withoutSet = wanted.filter((s) => known.has(s) && !withSet.has(s));
+  if (unknown.length || withoutSet.length) return { ok: false, unknown, withoutSet };
+  const exportedAt = new Date().toISOString();
+  const zip = new JSZip();
+  const entries: { s: SetRow; files: { path: string; bytes: number; sha256: string }[] }[] = [];
+  const ordered = wanted.map((serial) => sets.find((s) => s.serial === serial)!);
+  for (const s of ordered) {
+    const files = buildFiles(s);
+    const manifestBytes = new TextEncoder().encode(JSON.stringify(unitManifest(s, files, exportedAt), null, 2) + '\n');
+    const folder = zip.folder(s.serial)!;
+    for (const f of files) folder.file(f.name, f.bytes, { date: new Date(exportedAt) });
+    folder.file('manifest.json', manifestBytes, { date: new Date(exportedAt) });
+    entries.push({
+      s,
+      files: [
+        ...files.map((f) => ({ path: `${s.serial}/${f.name}`, bytes: f.bytes.length, sha256: f.sha256 })),
+        { path: `${s.serial}/manifest.json`, bytes: manifestBytes.length, sha256: sha256(manifestBytes) },
+      ],
+    });
+  }
+  const manifest = batchManifest(actor, exportedAt, entries);
+  zip.file('manifest.json', JSON.stringify(manifest, null, 2) + '\n', { date: new Date(exportedAt) });
+  const bytes = await zip.generateAsync({ type: 'uint8array', compression: 'DEFLATE', compressionOptions: { level: 6 } });
+  await logExport(database, actor, 'batch', 'zip', ordered);
+  return { ok: true, zip: bytes, fileName: `offsetry-export-${exportedAt.slice(0, 19).replace(/[:T]/g, '-')}.zip`, manifest };
+}
+
+export const logQuerySchema = z.strictObject({
+  page: z.coerce.number({ error: 'page must be a whole number from 1' }).int('page must be a whole number from 1').min(1, 'page must be a whole number from 1').default(1),
+  pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1, 'pageSize must be 1 to 200').max(200, 'pageSize must be 1 to 200').default(25),
+});
+
+/** The export log, newest first, paginated. */
+export async function exportLogPage(page = 1, pageSize = 25, database: Db = sharedDb()) {
+  const [{ total }] = (await database.select({ total: count() }).from(exportLog)) as [{ total: number }];
+  const rows = await database
+    .select({ id: exportLog.id, at: exportLog.at, kind: exportLog.kind, format: exportLog.format, items: exportLog.items, userName: users.name, userEmail: users.email })
+    .from(exportLog)
+    .innerJoin(users, eq(users.id, exportLog.userId))
+    .orderBy(desc(exportLog.at), desc(exportLog.id))
+    .limit(pageSize)
+    .offset((page - 1) * pageSize);
+  return { page, pageSize, total, entries: rows.map((r) => ({ ...r, at: new Date(r.at).toISOString() })) };
+}
+
+/** Units with a current set, for the export picker. */
+export async function exportableUnits(database: Db = sharedDb()) {
+  const rows = await database
+    .select({
+      serial: units.serial,
+      site: units.site,
+      needsAttention: units.needsAttention,
+      modelName: armModels.name,
+      setId: parameterSets.id,
+      version: parameterSets.version,
+      approvedAt: parameterSets.approvedAt,
+    })
+    .from(parameterSets)
+    .innerJoin(units, eq(units.id, parameterSets.unitId))
+    .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
+    .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
+    .where(eq(parameterSets.state, 'current'))
+    .orderBy(asc(units.serial));
+  return rows.map((r) => ({ ...r, approvedAt: new Date(r.approvedAt).toISOString() }));
+}

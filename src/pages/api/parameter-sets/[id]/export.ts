@@ -1,0 +1,26 @@
+import type { APIRoute } from 'astro';
+import { z } from 'zod';
+import { EXPORT_FORMATS, exportSingle } from '../../../../lib/server/exports';
+import { isUuid, problems, zodProblems } from '../../../../lib/server/http';
+
+const querySchema = z.strictObject({
+  format: z.enum(EXPORT_FORMATS, { error: `format must be one of ${EXPORT_FORMATS.join(', ')}` }),
+});
+
+/** Download one file of an approved parameter set (`?format=json|csv|urdf`), full precision; logged. */
+export const GET: APIRoute = async ({ params, url, locals }) => {
+  if (!isUuid(params.id)) return problems(404, 'No such parameter set.');
+  const q = querySchema.safeParse(Object.fromEntries(url.searchParams));
+  if (!q.success) return problems(400, 'Invalid query.', zodProblems(q.error));
+  const file = await exportSingle(params.id, q.data.format, locals.user!);
+  if (!file) return problems(404, 'No such parameter set.');
+  return new Response(file.bytes as Uint8Array<ArrayBuffer>, {
+    status: 200,
+    headers: {
+      'content-type': `${file.mediaType}; charset=utf-8`,
+      'content-disposition': `attachment; filename="${file.fileName}"`,
+      'x-content-sha256': file.sha256,
+      'cache-control': 'no-store',
+    },
+  });
+};
