@@ -73,3 +73,12 @@ for (const signal of ['SIGINT', 'SIGTERM']) {
     setTimeout(() => process.exit(0), 2000).unref();
   });
 }
+
+// Started by our scripts (OFFSETRY_EXIT_WITH_PARENT=1): end when the script that started us is gone, even if
+// it was killed without a chance to stop us, so no fake outlives its run on a port.
+if (process.env.OFFSETRY_EXIT_WITH_PARENT === '1') {
+  const parent = process.ppid;
+  setInterval(() => {
+    if (process.ppid !== parent) process.kill(process.pid, 'SIGTERM');
+  }, 1000).unref();
+}

@@ -14,7 +14,7 @@ export async function startS3Fake(options) {
     's3-fake',
     process.execPath,
     [script, '--host', host, '--port', String(options.port), '--dir', options.dir, '--bucket', options.bucket],
-    { cwd: options.root, logFile: options.logFile },
+    { cwd: options.root, logFile: options.logFile, env: { ...process.env, OFFSETRY_EXIT_WITH_PARENT: '1' } },
   );
   await waitForPort(options.port, { host, proc, timeoutMs: 30_000, what: `S3 fake (${script})` });
   return proc;
@@ -34,7 +34,7 @@ export async function startMailFake(options) {
       script, '--host', host, '--smtp-port', String(options.smtpPort),
       '--api-port', String(options.apiPort), '--dir', options.dir,
     ],
-    { cwd: options.root, logFile: options.logFile },
+    { cwd: options.root, logFile: options.logFile, env: { ...process.env, OFFSETRY_EXIT_WITH_PARENT: '1' } },
   );
   // The API listens after SMTP: both ports open means ready.
   await waitForPort(options.smtpPort, { host, proc, timeoutMs: 30_000, what: `mail fake SMTP (${script})` });

@@ -281,8 +281,8 @@ export function writePidFile(file, pid) {
 }
 
 /**
- * Stop a leftover process from an earlier run when its pid file names a live process whose command line
- * contains `marker` (so an unrelated process that reused the pid is never touched).
+ * Stop a leftover process from an earlier run when its pid file names a live process whose command line or
+ * environment contains `marker` (so an unrelated process that reused the pid is never touched).
  * @param {string} file
  * @param {string} marker
  * @returns {Promise<boolean>} whether a leftover was stopped
@@ -296,13 +296,17 @@ export async function stopLeftover(file, marker) {
   }
   if (!Number.isInteger(pid) || pid <= 0) return false;
   let cmdline = '';
+  let environ = '';
   try {
     cmdline = fs.readFileSync(`/proc/${pid}/cmdline`, 'utf8').replaceAll('\0', ' ');
+    environ = fs.readFileSync(`/proc/${pid}/environ`, 'utf8');
   } catch {
-    fs.rmSync(file, { force: true });
-    return false;
+    if (!cmdline) {
+      fs.rmSync(file, { force: true });
+      return false;
+    }
   }
-  if (!cmdline.includes(marker)) {
+  if (!cmdline.includes(marker) && !environ.includes(marker)) {
     fs.rmSync(file, { force: true });
     return false;
   }
