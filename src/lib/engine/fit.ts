@@ -107,6 +107,7 @@ export interface FitReport {
     crossValidation: { k: number; rms: number; folds: ErrorStats[] } | null;
   };
   poses: PoseResidual[];
+  /** Flagged fit and hold-out poses (already excluded ones keep their flag in `poses` only): label, or line:N when the label repeats. */
   outliers: string[];
   residualSigmaMm: number;
   /** How the base was obtained: from the nominal file, or registered (Kabsch) because the file had none. */
@@ -443,7 +444,7 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
       crossValidation,
     },
     poses: poseReports,
-    outliers: poses.filter((_, i) => poseReports[i].outlier).map(name),
+    outliers: poses.filter((_, i) => poseReports[i].outlier && roles[i] !== 'excluded').map(name),
     residualSigmaMm: unc.sigma,
     registration: { registered: !nominal.base, rmsMm: registrationRms },
     timing: { totalMs: 0, registrationMs, identificationMs, uncertaintyMs, validationMs },

@@ -1,0 +1,19 @@
+/**
+ * Offsetry calibration engine: the public surface for endpoints, job workers, the CLI and islands.
+ * Pure TypeScript (no Astro, database or server imports in the numerical modules).
+ */
+export * from './types';
+export * from './parameters';
+export * from './kinematics';
+export * from './jacobian';
+export * from './registration';
+export * from './lm';
+export * from './identifiability';
+export * from './uncertainty';
+export * from './stats';
+export * from './validation';
+export * from './fit';
+export * from './planner';
+export * from './geometry';
+export * from './session-csv';
+export * from './iso9283';
