@@ -17,7 +17,7 @@ export async function runCheck(args: string[], io: Io): Promise<number> {
   try {
     r = checkGeometry(geometry, session.poses);
   } catch (e) {
-    if (e instanceof EngineInputError) throw new CliError(problemsMessage(`cannot check ${modelPath} against ${dataPath}:`, e.problems.map((p) => ({ file: p.file ?? dataPath, ...p }))));
+    if (e instanceof EngineInputError) throw new CliError(problemsMessage(`cannot check ${modelPath} against ${dataPath}:`, e.problems.map((p) => ({ ...p, file: p.file ?? dataPath }))));
     throw e;
   }
   io.out(`${geometry.name} (${modelPath}) against ${dataPath}: ${r.stats.n} poses${r.registered ? ', measurement frame registered to the model (no base in the geometry)' : ''}.`);

@@ -1,4 +1,5 @@
 /** `offsetry fit`: identify a calibrated geometry from a nominal one and a measured session. */
+import { resolve } from 'node:path';
 import { performance } from 'node:perf_hooks';
 import { fitSession, type FitReport } from '../lib/engine/fit';
 import { serializeGeometry } from '../lib/engine/geometry';
@@ -51,7 +52,10 @@ export async function runFit(args: string[], io: Io): Promise<number> {
   const seed = numberOption(o.seed, '--seed', (v) => Number.isInteger(v), 'an integer') ?? 1;
   const outFull = checkOutputPath(outPath, '--out');
   const reportFull = typeof o.report === 'string' ? checkOutputPath(o.report, '--report') : undefined;
-  if (reportFull && reportFull === outFull) throw new CliError('--out and --report name the same file');
+  if (reportFull && reportFull === outFull) throw new CliError('--out and --report name the same file', 2);
+  for (const [flag, input] of [['--model', modelPath], ['--data', dataPath]] as const) {
+    if (resolve(input) === outFull || resolve(input) === reportFull) throw new CliError(`an output would overwrite the input ${flag} ${input}`, 2);
+  }
 
   const nominal = await readGeometryFile(modelPath);
   const session = await readSessionFile(dataPath, nominal, o['allow-outside-limits'] === true, io);
@@ -61,7 +65,7 @@ export async function runFit(args: string[], io: Io): Promise<number> {
     report = fitSession(nominal, session.poses, { holdout, seed, useSplitColumn: true });
   } catch (e) {
     if (e instanceof EngineInputError) {
-      throw new CliError(problemsMessage(`cannot fit ${modelPath} to ${dataPath}:`, e.problems.map((p) => ({ file: p.file ?? dataPath, ...p }))));
+      throw new CliError(problemsMessage(`cannot fit ${modelPath} to ${dataPath}:`, e.problems.map((p) => ({ ...p, file: p.file ?? dataPath }))));
     }
     throw e;
   }

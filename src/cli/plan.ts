@@ -24,7 +24,7 @@ export async function runPlan(args: string[], io: Io): Promise<number> {
   try {
     plan = planPoses(geometry, { count, seed, index });
   } catch (e) {
-    if (e instanceof EngineInputError) throw new CliError(problemsMessage(`cannot plan poses for ${modelPath}:`, e.problems.map((p) => ({ file: p.file ?? modelPath, ...p }))));
+    if (e instanceof EngineInputError) throw new CliError(problemsMessage(`cannot plan poses for ${modelPath}:`, e.problems.map((p) => ({ ...p, file: p.file ?? modelPath }))));
     throw e;
   }
   await writeOutputs([{ path: outFull, content: planToCsv(plan.q, geometry) }]);

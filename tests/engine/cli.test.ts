@@ -181,6 +181,14 @@ describe('offsetry fit', () => {
     noTempFiles();
   });
 
+  it('refuses an output that would overwrite an input', async () => {
+    const model = join(dir, 'model-copy.json');
+    writeFileSync(model, readFileSync(VX));
+    const r = await offsetry(['fit', '--model', model, '--data', VX_SESSION, '--out', model]);
+    expect(r).toMatchObject({ code: 2, stderr: expect.stringMatching(/would overwrite the input --model/) });
+    expect(readFileSync(model, 'utf8')).toBe(readFileSync(VX, 'utf8'));
+  });
+
   it('a missing input file or output folder exits 1 before any work', async () => {
     const [noModel, noDir] = await Promise.all([
       offsetry(['fit', '--model', join(dir, 'nope.json'), '--data', VX_SESSION, '--out', join(dir, 'n.json')]),
