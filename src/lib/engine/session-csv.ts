@@ -310,7 +310,8 @@ export async function parseSessionCsv(
   } else if (problems.length === 0 && poses.length === 0) {
     problems.push({ file, line: 2, message: 'the file has a header but no data rows', expected: 'one row per measured pose after the header' });
   }
-  if (!allowOutside && problems.length < maxProblems) {
+  if (!allowOutside && outsideLimits.length > 0) {
+    if (problems.length >= maxProblems) truncated = true;
     for (const p of outsideLimits) {
       if (problems.length >= maxProblems) { truncated = true; break; }
       problems.push({ ...p, message: `${p.message}; use the outside-limits override to accept it` });
