@@ -5,8 +5,7 @@
  * tsx is not at hand (or OFFSETRY_FIT_THREAD=off), the fit runs in-process; progress is then reported once,
  * at the end.
  */
-import { existsSync } from 'node:fs';
-import { createRequire } from 'node:module';
+import { existsSync, readFileSync } from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
@@ -42,12 +41,17 @@ function bootstrap(): string | null {
   const root = projectRoot();
   if (!root) return threadCode;
   try {
-    const tsxApi = createRequire(path.join(root, 'package.json')).resolve('tsx/esm/api');
+    // The ESM entry of tsx's API, read from its export map (the CommonJS entry cannot register from a thread).
+    const tsxDir = path.join(root, 'node_modules', 'tsx');
+    const pkg = JSON.parse(readFileSync(path.join(tsxDir, 'package.json'), 'utf8')) as { exports: Record<string, { import?: { default?: string } }> };
+    const entry = pkg.exports['./esm/api']?.import?.default;
+    if (!entry) return threadCode;
+    const tsxApi = path.join(tsxDir, entry);
     const target = pathToFileURL(path.join(root, THREAD_FILE)).href;
     threadCode =
       `import(${JSON.stringify(pathToFileURL(tsxApi).href)})` +
       `.then((m) => { m.register(); return import(${JSON.stringify(target)}); })` +
-      `.catch((e) => { require('node:worker_threads').parentPort.postMessage({ type: 'error', message: 'fit thread did not start: ' + (e && e.stack || e) }); });`;
+      `.catch((e) => { require('node:worker_threads').parentPort.postMessage({ type: 'no-start', message: String(e && e.stack || e) }); });`;
   } catch {
     threadCode = null;
   }
@@ -72,36 +76,86 @@ export interface EngineRun {
 /** Fit in a worker thread (or in-process as a fallback). Rejects with EngineInputError on bad input. */
 export async function runEngine(run: EngineRun): Promise<FitReport> {
   const code = bootstrap();
-  if (!code) {
+  if (!code) return fitSession(run.nominal, run.poses, { ...run.options, onIteration: run.onIteration });
+  try {
+    return await inThread(code, run);
+  } catch (err) {
+    if (!(err instanceof ThreadDidNotStart)) throw err;
+    // Threads cannot load the engine here: fall back for this and every later fit of the process.
+    log('warn', 'fit threads unavailable; fits run in-process', { error: err.message });
+    threadCode = null;
     return fitSession(run.nominal, run.poses, { ...run.options, onIteration: run.onIteration });
   }
+}
+
+class ThreadDidNotStart extends Error {}
+
+/** Idle threads, kept so a fit does not pay tsx's start-up (about a second) each time. */
+const idle: Worker[] = [];
+
+function startThread(code: string): Promise<Worker> {
+  return new Promise((resolve, reject) => {
+    const worker = new Worker(code, { eval: true });
+    const onMessage = (m: FitThreadMessage) => {
+      if (m.type === 'ready') {
+        cleanup();
+        resolve(worker);
+      } else if (m.type === 'no-start') {
+        cleanup();
+        void worker.terminate();
+        reject(new ThreadDidNotStart(m.message));
+      }
+    };
+    const onError = (err: Error) => {
+      cleanup();
+      reject(new ThreadDidNotStart(String(err?.message ?? err)));
+    };
+    const cleanup = () => {
+      worker.off('message', onMessage);
+      worker.off('error', onError);
+    };
+    worker.on('message', onMessage);
+    worker.on('error', onError);
+  });
+}
+
+async function inThread(code: string, run: EngineRun): Promise<FitReport> {
+  const worker = idle.pop() ?? (await startThread(code));
   const input: FitThreadInput = { nominal: run.nominal, poses: run.poses, options: run.options };
   return new Promise<FitReport>((resolve, reject) => {
-    const worker = new Worker(code, { eval: true, workerData: input });
     let settled = false;
-    const finish = (fn: () => void) => {
+    const finish = (fn: () => void, reusable: boolean) => {
       if (settled) return;
       settled = true;
       clearTimeout(timer);
+      worker.off('message', onMessage);
+      worker.off('error', onError);
+      worker.off('exit', onExit);
+      if (reusable && idle.length < 8) {
+        worker.unref();
+        idle.push(worker);
+      } else void worker.terminate();
       fn();
-      void worker.terminate();
     };
     const timer = setTimeout(
-      () => finish(() => reject(new Error(`the fit did not finish within ${Math.round((run.timeoutMs ?? 0) / 1000)} s`))),
+      () => finish(() => reject(new Error(`the fit did not finish within ${Math.round((run.timeoutMs ?? 600_000) / 1000)} s`)), false),
       run.timeoutMs ?? 10 * 60_000,
     );
-    worker.on('message', (m: FitThreadMessage) => {
+    const onMessage = (m: FitThreadMessage) => {
       if (m.type === 'iteration') run.onIteration?.(m);
-      else if (m.type === 'done') finish(() => resolve(m.report as FitReport));
-      else if (m.type === 'input-error') finish(() => reject(new EngineInputError(m.problems)));
-      else finish(() => reject(new Error(m.message)));
-    });
-    worker.on('error', (err) => finish(() => reject(err)));
-    worker.on('exit', (codeNo) => {
-      if (!settled) {
-        log('warn', 'fit thread exited early', { code: codeNo });
-        finish(() => reject(new Error(`the fit thread stopped (exit code ${codeNo}) before it finished`)));
-      }
-    });
+      else if (m.type === 'done') finish(() => resolve(m.report as FitReport), true);
+      else if (m.type === 'input-error') finish(() => reject(new EngineInputError(m.problems)), true);
+      else if (m.type === 'error') finish(() => reject(new Error(m.message)), false);
+    };
+    const onError = (err: Error) => finish(() => reject(err), false);
+    const onExit = (codeNo: number) => {
+      log('warn', 'fit thread exited early', { code: codeNo });
+      finish(() => reject(new Error(`the fit thread stopped (exit code ${codeNo}) before it finished`)), false);
+    };
+    worker.on('message', onMessage);
+    worker.on('error', onError);
+    worker.on('exit', onExit);
+    worker.ref();
+    worker.postMessage(input);
   });
 }

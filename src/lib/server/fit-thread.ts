@@ -1,9 +1,9 @@
 /**
- * Worker-thread entry of a fit: runs the engine's fitSession on the data it is given and posts progress and
- * the result back. Loaded by src/lib/server/engine-runner.ts through tsx's loader, so it runs from the source
- * tree both under tsx (scripts/worker.ts) and inside the built app.
+ * Worker-thread side of a fit: a long-lived thread that runs the engine's fitSession for each fit it is
+ * sent and posts progress and the result back. Loaded by src/lib/server/engine-runner.ts through tsx's
+ * loader, so it runs from the source tree both under tsx (scripts/worker.ts) and inside the built app.
  */
-import { parentPort, workerData } from 'node:worker_threads';
+import { parentPort } from 'node:worker_threads';
 import { fitSession, type FitOptions } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
 
@@ -14,23 +14,28 @@ export interface FitThreadInput {
 }
 
 export type FitThreadMessage =
+  | { type: 'ready' }
   | { type: 'iteration'; iteration: number; cost: number; rmsMm: number }
   | { type: 'done'; report: unknown }
   | { type: 'input-error'; message: string; problems: EngineInputError['problems'] }
-  | { type: 'error'; message: string };
+  | { type: 'error'; message: string }
+  /** Posted by the bootstrap in engine-runner.ts when this module could not be loaded. */
+  | { type: 'no-start'; message: string };
 
 const port = parentPort;
 if (port) {
-  const input = workerData as FitThreadInput;
   const post = (m: FitThreadMessage) => port.postMessage(m);
-  try {
-    const report = fitSession(input.nominal, input.poses, {
-      ...input.options,
-      onIteration: (it) => post({ type: 'iteration', iteration: it.iteration, cost: it.cost, rmsMm: it.rmsMm }),
-    });
-    post({ type: 'done', report });
-  } catch (err) {
-    if (err instanceof EngineInputError) post({ type: 'input-error', message: err.message, problems: err.problems });
-    else post({ type: 'error', message: String((err as Error)?.stack ?? err) });
-  }
+  port.on('message', (input: FitThreadInput) => {
+    try {
+      const report = fitSession(input.nominal, input.poses, {
+        ...input.options,
+        onIteration: (it) => post({ type: 'iteration', iteration: it.iteration, cost: it.cost, rmsMm: it.rmsMm }),
+      });
+      post({ type: 'done', report });
+    } catch (err) {
+      if (err instanceof EngineInputError) post({ type: 'input-error', message: err.message, problems: err.problems });
+      else post({ type: 'error', message: String((err as Error)?.stack ?? err) });
+    }
+  });
+  post({ type: 'ready' });
 }
