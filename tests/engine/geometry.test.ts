@@ -77,7 +77,7 @@ describe('parseGeometry', () => {
       '  "joints": [',
       '    { "name": "J1", "type": "revolute", "a": 0, "alpha": 0, "d": 300, "theta": 0 },',
       '    { "name": "J2", "a": 0, "alpha": "90", "d": 0, "theta": 0 },',
-      '    { "name": "J3", "type": "revolute", "a": 0, "alpah": 0, "d": 0, "theta": 0 }',
+      '    { "name": "J1", "type": "revolute", "a": 0, "alpah": 0, "d": 0, "theta": 0, "min": 10, "max": 5 }',
       '  ],',
       '  "tool": { "x": 0, "y": 0 }',
       '}',
@@ -90,6 +90,9 @@ describe('parseGeometry', () => {
     expect(by('joints[2].alpha')).toMatchObject({ line: 8, message: expect.stringMatching(/required/) });
     expect(by('joints[2].alpah')).toMatchObject({ line: 8, message: expect.stringMatching(/unknown field "alpah"/) });
     expect(by('tool.z')).toMatchObject({ line: 10, message: expect.stringMatching(/required/) });
+    // the cross-field rules are reported together with the field problems, not after they are fixed
+    expect(by('joints[2].name')).toMatchObject({ line: 8, message: expect.stringMatching(/"J1" is used twice/) });
+    expect(by('joints[2].max')).toMatchObject({ line: 8, message: expect.stringMatching(/greater than min/) });
     expect(problems.every((p) => p.file === 'arm.json')).toBe(true);
   });
 

@@ -36,11 +36,15 @@ export const jointSchema = z
     min: optionalFinite('min'),
     max: optionalFinite('max'),
   })
-  .superRefine((j, ctx) => {
-    if (j.min !== undefined && j.max !== undefined && !(j.min < j.max)) {
-      ctx.addIssue({ code: 'custom', path: ['max'], message: `max (${j.max}) must be greater than min (${j.min})` });
-    }
-  });
+  .superRefine(
+    (j, ctx) => {
+      if (typeof j.min === 'number' && typeof j.max === 'number' && !(j.min < j.max)) {
+        ctx.addIssue({ code: 'custom', path: ['max'], message: `max (${j.max}) must be greater than min (${j.min})` });
+      }
+    },
+    // run even when other fields of the row are wrong, so every problem is reported at once
+    { when: () => true },
+  );
 
 export const armGeometrySchema = z
   .strictObject({
@@ -51,9 +55,12 @@ export const armGeometrySchema = z
     base: frameSchema.optional(),
     tool: frameSchema.optional(),
   })
-  .superRefine((g, ctx) => {
+  .superRefine(
+    (g, ctx) => {
+    if (!Array.isArray(g.joints)) return;
     const seen = new Map<string, number>();
     g.joints.forEach((j, i) => {
+      if (typeof j !== 'object' || j === null || typeof j.name !== 'string') return;
       const first = seen.get(j.name);
       if (first !== undefined) {
         ctx.addIssue({
@@ -63,7 +70,9 @@ export const armGeometrySchema = z
         });
       } else seen.set(j.name, i);
     });
-  });
+    },
+    { when: () => true },
+  );
 
 /** JSON path of a zod issue in the file's notation: joints[2].alpha */
 export function formatPath(path: readonly PropertyKey[]): string {
