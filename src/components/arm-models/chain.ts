@@ -46,6 +46,7 @@ export function niceTicks(lo: number, hi: number, target = 5): number[] {
   const mag = 10 ** Math.floor(Math.log10(raw));
   const step = [1, 2, 5, 10].map((m) => m * mag).find((s) => s >= raw) ?? 10 * mag;
   const out: number[] = [];
-  for (let v = Math.ceil(lo / step) * step; v <= hi + step * 1e-9; v += step) out.push(Math.abs(v) < step * 1e-9 ? 0 : v);
+  // Multiples of the step, computed one by one (not accumulated) and trimmed of binary noise: 0.6, not 0.6000000000000001.
+  for (let k = Math.ceil(lo / step - 1e-9); k * step <= hi + step * 1e-9; k++) out.push(Number((k * step).toPrecision(12)) || 0);
   return out;
 }

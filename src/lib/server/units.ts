@@ -327,8 +327,16 @@ export async function posePlan(unit: UnitView, options: PosePlanOptions, databas
     throw e;
   }
   const csv = planToCsv(result.q, geometry);
-  // Labels as planToCsv writes them (P01, P02, …), so JSON and CSV name the same poses.
-  const labels = csv.trimEnd().split('\n').slice(1).map((l) => l.slice(0, l.indexOf(',')));
+  // The poses exactly as the CSV writes them (labels P01, …; joint values rounded for driving), so the JSON
+  // and the download describe the same plan.
+  const poses = csv
+    .trimEnd()
+    .split('\n')
+    .slice(1)
+    .map((line) => {
+      const [label, ...q] = line.split(',');
+      return { label: label!, q: q.map(Number) };
+    });
   return {
     ok: true,
     plan: {
@@ -339,7 +347,7 @@ export async function posePlan(unit: UnitView, options: PosePlanOptions, databas
       source,
       joints: geometry.joints.map((j) => j.name),
       quality: result.quality,
-      poses: result.q.map((q, i) => ({ label: labels[i] ?? `P${i + 1}`, q })),
+      poses,
       csv,
       fileName: `pose-plan-${unit.serial}-n${result.q.length}-seed${options.seed}.csv`,
     },
