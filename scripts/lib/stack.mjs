@@ -88,14 +88,15 @@ export async function startLocalServices(options) {
     if (await pg.init()) log(`PostgreSQL: new cluster in ${pg.dataDir}`);
     const running = await pg.runningPort();
     if (running === db.port) {
+      // Left running by an earlier start that was killed: the folder is ours, so it stops with this run.
       log(`PostgreSQL: already running on 127.0.0.1:${db.port} (reused)`);
     } else {
       if (running === undefined) await requireFreePort(db.port, 'PostgreSQL', 'DATABASE_URL');
       await pg.start();
-      const cluster = pg;
-      stops.push(() => cluster.stop());
       started.push(`PostgreSQL 127.0.0.1:${db.port}`);
     }
+    const cluster = pg;
+    stops.push(() => cluster.stop());
     const user = decodeURIComponent(db.url.username);
     const password = decodeURIComponent(db.url.password);
     const database = db.url.pathname.replace(/^\//, '');
