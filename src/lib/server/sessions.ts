@@ -294,15 +294,15 @@ export async function createSession(request: Request, user: Uploader, database: 
   let fileName: string | undefined;
   let fileSeen = false;
   let unitTarget: UnitTarget | undefined;
-  let unitLooked = false;
+  let unitLooked: string | undefined;
   let parse: Promise<Awaited<ReturnType<typeof parseSessionCsv>>> | undefined;
   let tooLarge = false;
 
   const lookUpUnit = async () => {
-    if (unitLooked) return;
-    unitLooked = true;
     const serial = (fields.get('unit') ?? '').trim();
-    if (serial && SERIAL_PATTERN.test(serial) && serial.length <= 64) unitTarget = await unitForUpload(serial, database);
+    if (!serial || serial === unitLooked) return;
+    unitLooked = serial;
+    if (SERIAL_PATTERN.test(serial) && serial.length <= 64) unitTarget = await unitForUpload(serial, database);
   };
   const parseOptions = (geometry: ArmGeometry, name: string) => ({
     fileName: name,
