@@ -1,7 +1,9 @@
 import { describe, expect, it } from 'vitest';
+import { Matrix, EigenvalueDecomposition } from 'ml-matrix';
 import { fitSession } from '../../src/lib/engine/fit';
+import { symmetricEigenvalues } from '../../src/lib/engine/identifiability';
 import type { ArmGeometry } from '../../src/lib/engine/types';
-import { fourAxisParallel, perturbed, sixAxisDh, sixAxisMdh, synthSession } from './helpers';
+import { fourAxisParallel, perturbed, rng, sixAxisDh, sixAxisMdh, synthSession } from './helpers';
 
 function fixedKeys(g: ArmGeometry, seed: number) {
   const rep = fitSession(g, synthSession(perturbed(g, seed), 60, 0.02, seed + 1));
@@ -60,5 +62,20 @@ describe('identifiability', () => {
     const extra = rep.parameters.filter((q) => q.status === 'fixed' && /^J[45]\./.test(q.key));
     expect(extra.length).toBe(4);
     for (const q of extra) expect(q.reason, q.key).toMatch(/J4 does not move on these poses/);
+  });
+});
+
+describe('symmetric eigenvalues (observability indices)', () => {
+  it('cyclic Jacobi agrees with ml-matrix EigenvalueDecomposition, including tiny eigenvalues', () => {
+    const r = rng(67);
+    for (const p of [2, 7, 27, 34]) {
+      // A graded matrix: columns scaled over six decades, as mm and rad columns are.
+      const X = Array.from({ length: 3 * p }, () => Array.from({ length: p }, (_, k) => (r() - 0.5) * 10 ** (-6 * k / p)));
+      const A = new Matrix(X).transpose().mmul(new Matrix(X));
+      const ref = new EigenvalueDecomposition(A, { assumeSymmetric: true }).realEigenvalues.slice().sort((a, b) => a - b);
+      const ours = Array.from(symmetricEigenvalues(Float64Array.from(A.to1DArray()), p)).sort((a, b) => a - b);
+      const max = ref[p - 1];
+      ref.forEach((v, k) => expect(Math.abs(ours[k] - v)).toBeLessThan(1e-12 * max + 1e-6 * Math.abs(v)));
+    }
   });
 });

@@ -70,3 +70,42 @@ describe('analytic Jacobian against central finite differences', () => {
     expect(Array.from(J)).toEqual(new Array(9).fill(0));
   });
 });
+
+describe('normal equations accumulated pose by pose', () => {
+  it('equal JᵀWJ and JᵀWr formed from the full Jacobian', async () => {
+    const { accumulateNormalEquations, normalWork, poseBuffers } = await import('../../src/lib/engine/jacobian');
+    const g = withFrames(sixAxisDh());
+    const model = compileArm(g);
+    const data = createArmData(model);
+    const r = rng(25);
+    // 70 poses: more than one block of 32, and a partial last block; uneven weights, one zero.
+    const poses = Array.from({ length: 70 }, (_, i) => ({
+      q: g.joints.map(() => 340 * r() - 170), x: 1000 * r(), y: 1000 * r(), z: 1000 * r(), weight: i === 5 ? 0 : 0.5 + r(),
+    }));
+    const pb = poseBuffers(model, poses);
+    const active = Int32Array.from([0, 1, 2, 3, 4, 7, 8, 12, 19, 26, 30, 31, 32, 33, 34, 35, 36, 37, 38]);
+    const p = active.length;
+    const A = new Float64Array(p * p), gv = new Float64Array(p);
+    const cost = accumulateNormalEquations(model, data, model.nominal, pb, active, A, gv, normalWork(p));
+    const Aref = new Float64Array(p * p), gref = new Float64Array(p);
+    let cref = 0;
+    const J = new Float64Array(3 * p);
+    setParameters(model, data, model.nominal);
+    for (let i = 0; i < pb.count; i++) {
+      forwardKinematics(model, data, pb.q, i * model.n, true);
+      pointJacobian(model, data, active, J);
+      const w = pb.weights[i];
+      const res = [0, 1, 2].map((c) => data.point[c] - pb.measured[3 * i + c]);
+      cref += w * res.reduce((s, v) => s + v * v, 0);
+      for (let a = 0; a < p; a++) {
+        for (let c = 0; c < 3; c++) gref[a] += w * J[3 * a + c] * res[c];
+        for (let b = 0; b < p; b++) for (let c = 0; c < 3; c++) Aref[a * p + b] += w * J[3 * a + c] * J[3 * b + c];
+      }
+    }
+    expect(Math.abs(cost - 0.5 * cref)).toBeLessThan(1e-9 * cref);
+    for (let a = 0; a < p; a++) {
+      expect(Math.abs(gv[a] - gref[a])).toBeLessThan(1e-9 * (1 + Math.abs(gref[a])));
+      for (let b = a; b < p; b++) expect(Math.abs(A[a * p + b] - Aref[a * p + b])).toBeLessThan(1e-9 * (1 + Math.abs(Aref[a * p + b])));
+    }
+  });
+});

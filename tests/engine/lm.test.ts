@@ -108,3 +108,24 @@ describe('Levenberg–Marquardt on a synthetic arm against SciPy least_squares (
     });
   });
 });
+
+describe('flat Cholesky used by the solver', () => {
+  it('solves SPD systems like ml-matrix CholeskyDecomposition', async () => {
+    const { CholeskyDecomposition, Matrix } = await import('ml-matrix');
+    const { choleskyInPlace, choleskySolveInPlace } = await import('../../src/lib/engine/lm');
+    const r = rng(33);
+    for (const p of [1, 3, 12, 30]) {
+      const X = Array.from({ length: p + 5 }, () => Array.from({ length: p }, () => r() - 0.5));
+      const A = new Matrix(X).transpose().mmul(new Matrix(X));
+      const b = Array.from({ length: p }, () => r());
+      const ref = new CholeskyDecomposition(A).solve(Matrix.columnVector(b)).to1DArray();
+      const L = Float64Array.from(A.to1DArray());
+      expect(choleskyInPlace(L, p)).toBe(true);
+      const x = Float64Array.from(b);
+      choleskySolveInPlace(L, p, x);
+      ref.forEach((v, k) => expect(Math.abs(x[k] - v)).toBeLessThan(1e-9 * Math.max(1, Math.abs(v))));
+    }
+    // Not positive definite → false.
+    expect(choleskyInPlace(Float64Array.from([1, 2, 2, 1]), 2)).toBe(false);
+  });
+});

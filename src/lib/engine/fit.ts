@@ -263,6 +263,7 @@ export function identifyParameters(
   const result = levenbergMarquardt(problem, x0, {
     maxIterations: o.maxIterations,
     rmsOf: (c) => Math.sqrt((2 * c) / Math.max(count, 1)),
+    degreesOfFreedom: 3 * count - active.length,
     onIteration,
     initial,
   });

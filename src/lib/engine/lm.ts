@@ -7,7 +7,9 @@
  * Method (Moré 1978 scaling, Nielsen 1999 damping update, as described in Madsen, Nielsen & Tingleff,
  * "Methods for non-linear least squares problems", 2004):
  *   - column scaling D_j = max over iterations of sqrt(A_jj) (MINPACK's rule), so mm and rad columns are
- *     comparable; the step solves (D⁻¹AD⁻¹ + λI)·(Dδ) = −D⁻¹g by Cholesky (ml-matrix), never an inverse;
+ *     comparable; the step solves (D⁻¹AD⁻¹ + λI)·(Dδ) = −D⁻¹g by a Cholesky factorisation, never an
+ *     inverse (a flat Float64Array Cholesky: at p ≈ 30 object-based matrices cost more than the solve;
+ *     checked against ml-matrix's CholeskyDecomposition in tests/engine/lm.test.ts);
  *   - gain ratio ρ = actual / predicted reduction; accepted steps scale λ by max(1/3, 1 − (2ρ − 1)³),
  *     rejected ones multiply it by ν (ν doubling);
  *   - stop when the scaled gradient ‖D⁻¹g‖∞ / ‖r‖ ≤ gradientTolerance (MINPACK's gtol: cosine between the
@@ -16,14 +18,13 @@
  *   - robust losses by iteratively reweighted least squares: the problem's `reweight(x)` recomputes the
  *     weights once per accepted iteration (Holland & Welsch 1977).
  */
-import { CholeskyDecomposition, Matrix } from 'ml-matrix';
 
 export interface LeastSquaresProblem {
   /** Number of parameters p. */
   readonly size: number;
   /** Cost ½ Σ w_i r_i² at x. */
   cost(x: Float64Array): number;
-  /** Fill A (p×p row-major; at least the upper triangle) = JᵀWJ and g = JᵀW r at x; return the cost at x. */
+  /** Fill A (p×p row-major; only the upper triangle is read) = JᵀWJ and g = JᵀW r at x; return the cost at x. */
   normalEquations(x: Float64Array, A: Float64Array, g: Float64Array): number;
   /** Optional IRLS step: recompute the robust weights at x. */
   reweight?(x: Float64Array): void;
@@ -52,11 +53,19 @@ export interface LmOptions {
   rmsOf?: (cost: number) => number;
   /** Called with iteration 0 (the start) and after every accepted step. */
   onIteration?: (it: LmIteration) => void;
+  /**
+   * Residual degrees of freedom m − p. When given, also stop once the next step would move the
+   * parameters by less than `significance` standard errors (δᵀAδ ≤ significance²·σ̂²): further digits are
+   * below the statistical resolution of the data. Default: not used.
+   */
+  degreesOfFreedom?: number;
+  /** Fraction of a standard error for the statistical stop. Default 0.01. */
+  significance?: number;
   /** Normal equations already computed at x0 (saves one pass); ignored when the problem reweights. */
   initial?: { A: Float64Array; g: Float64Array; cost: number };
 }
 
-export type LmStop = 'gradient' | 'cost' | 'step' | 'no-decrease' | 'iterations';
+export type LmStop = 'gradient' | 'cost' | 'step' | 'significance' | 'no-decrease' | 'iterations';
 
 export interface LmResult {
   x: Float64Array;
@@ -66,7 +75,7 @@ export interface LmResult {
   stopReason: string;
   converged: boolean;
   evaluations: { cost: number; normal: number };
-  /** Normal matrix JᵀWJ (p×p, full) and gradient JᵀWr at the returned x. */
+  /** Normal matrix JᵀWJ (p×p; full when the problem fills it, else its upper triangle) and gradient JᵀWr at the returned x. */
   A: Float64Array;
   g: Float64Array;
 }
@@ -75,6 +84,7 @@ const REASONS: Record<LmStop, string> = {
   gradient: 'converged: the gradient is zero within tolerance (residuals orthogonal to every parameter direction)',
   cost: 'converged: the last step lowered the cost by less than the relative tolerance',
   step: 'converged: the last step was smaller than the relative tolerance',
+  significance: 'converged: the next step would change every parameter by less than 1 % of its standard error',
   'no-decrease': 'converged: no step lowers the cost any further (floating-point limit)',
   iterations: 'stopped: the iteration limit was reached before convergence',
 };
@@ -85,14 +95,17 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
   const ftol = options.costTolerance ?? 1e-8;
   const xtol = options.stepTolerance ?? 1e-8;
   const rmsOf = options.rmsOf ?? ((c: number) => Math.sqrt(2 * c));
+  const dof = options.degreesOfFreedom ?? 0;
+  const significance = options.significance ?? 0.01;
   const p = problem.size;
   const x = Float64Array.from(x0);
   const xn = new Float64Array(p);
   const A = new Float64Array(p * p);
   const g = new Float64Array(p);
   const D = new Float64Array(p);
-  const M = new Matrix(p, p);
-  const b = new Matrix(p, 1);
+  const M = new Float64Array(p * p);
+  const b = new Float64Array(p);
+  const ds = new Float64Array(p);
   const evaluations = { cost: 0, normal: 0 };
   const iterations: LmIteration[] = [];
   const report = (it: LmIteration) => {
@@ -127,35 +140,51 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       stop = 'gradient';
       break;
     }
+    // Statistical stop: the Gauss–Newton step's size in the metric of the parameter covariance,
+    // δᵀAδ = g̃ᵀÃ⁻¹g̃ (Ã = D⁻¹AD⁻¹, g̃ = D⁻¹g), against σ̂² = 2·cost / dof. By Cauchy–Schwarz in that
+    // metric, |δ_j| ≤ √(δᵀAδ / σ̂²)·SE_j, so below significance² no parameter would move by more than
+    // that fraction of its standard error and the step is not worth a pass over the data.
+    if (dof > 0) {
+      for (let i = 0; i < p; i++) {
+        const di = D[i] > 0 ? D[i] : 1;
+        for (let j = 0; j <= i; j++) M[i * p + j] = A[j * p + i] / (di * (D[j] > 0 ? D[j] : 1));
+        b[i] = -g[i] / di;
+      }
+      if (choleskyInPlace(M, p)) {
+        ds.set(b);
+        choleskySolveInPlace(M, p, ds);
+        let gn2 = 0;
+        for (let i = 0; i < p; i++) gn2 += b[i] * ds[i];
+        if (gn2 <= significance * significance * ((2 * cost) / dof)) { stop = 'significance'; break; }
+      }
+    }
     // Inner loop: raise λ until a step lowers the cost.
     for (;;) {
       for (let i = 0; i < p; i++) {
         const di = D[i] > 0 ? D[i] : 1;
-        for (let j = i; j < p; j++) {
+        for (let j = 0; j <= i; j++) {
           const dj = D[j] > 0 ? D[j] : 1;
-          const val = A[i * p + j] / (di * dj);
-          M.set(i, j, val);
-          M.set(j, i, val);
+          M[i * p + j] = A[j * p + i] / (di * dj);
         }
-        M.set(i, i, M.get(i, i) + lambda);
-        b.set(i, 0, -g[i] / di);
+        M[i * p + i] += lambda;
+        b[i] = -g[i] / di;
       }
-      const chol = new CholeskyDecomposition(M);
-      if (!chol.isPositiveDefinite()) {
+      if (!choleskyInPlace(M, p)) {
         lambda *= nu;
         nu *= 2;
         if (lambda > 1e16) { stop = 'no-decrease'; break outer; }
         continue;
       }
-      const ds = chol.solve(b);
+      ds.set(b);
+      choleskySolveInPlace(M, p, ds);
       let stepScaled2 = 0, xScaled2 = 0, predicted = 0;
       for (let i = 0; i < p; i++) {
         const di = D[i] > 0 ? D[i] : 1;
-        const s = ds.get(i, 0);
+        const s = ds[i];
         xn[i] = x[i] + s / di;
         stepScaled2 += s * s;
         xScaled2 += (di * x[i]) ** 2;
-        predicted += b.get(i, 0) * s + lambda * s * s;
+        predicted += b[i] * s + lambda * s * s;
       }
       predicted *= 0.5;
       const stepNorm = Math.sqrt(stepScaled2);
@@ -181,7 +210,46 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       if (lambda > 1e16 || stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'no-decrease'; break outer; }
     }
   }
-  return { x, cost, iterations, stop, stopReason: REASONS[stop], converged: stop !== 'iterations', evaluations, A, g };
+  const stopReason = stop === 'significance'
+    ? `converged: the next step would change every parameter by less than ${+(significance * 100).toPrecision(3)} % of its standard error`
+    : REASONS[stop];
+  return { x, cost, iterations, stop, stopReason, converged: stop !== 'iterations', evaluations, A, g };
+}
+
+/**
+ * Cholesky factorisation in place: the lower triangle of the p×p row-major M becomes L with M = LLᵀ
+ * (the upper triangle is not read). Returns false when M is not positive definite.
+ */
+export function choleskyInPlace(M: Float64Array, p: number): boolean {
+  for (let j = 0; j < p; j++) {
+    const rj = j * p;
+    let d = M[rj + j];
+    for (let k = 0; k < j; k++) d -= M[rj + k] * M[rj + k];
+    if (!(d > 0)) return false;
+    const ljj = Math.sqrt(d);
+    M[rj + j] = ljj;
+    for (let i = j + 1; i < p; i++) {
+      const ri = i * p;
+      let s = M[ri + j];
+      for (let k = 0; k < j; k++) s -= M[ri + k] * M[rj + k];
+      M[ri + j] = s / ljj;
+    }
+  }
+  return true;
+}
+
+/** Solve LLᵀx = b in place (b becomes x) with the factor from choleskyInPlace. */
+export function choleskySolveInPlace(L: Float64Array, p: number, b: Float64Array): void {
+  for (let i = 0; i < p; i++) {
+    let s = b[i];
+    for (let k = 0; k < i; k++) s -= L[i * p + k] * b[k];
+    b[i] = s / L[i * p + i];
+  }
+  for (let i = p - 1; i >= 0; i--) {
+    let s = b[i];
+    for (let k = i + 1; k < p; k++) s -= L[k * p + i] * b[k];
+    b[i] = s / L[i * p + i];
+  }
 }
 
 /** IRLS weight of a residual of size e for a robust loss with scale k (Huber 1964; Cauchy / Lorentzian). */

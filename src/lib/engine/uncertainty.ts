@@ -3,10 +3,10 @@
  * (linearised least squares, e.g. Seber & Wild, "Nonlinear Regression", 1989, ch. 2):
  *   σ² = SSR / (m − p) with m residual coordinates and p identified parameters,
  *   Cov = σ² (JᵀWJ)⁻¹, standard error = √Cov_jj, correlation r_ij = Cov_ij / √(Cov_ii Cov_jj).
- * (JᵀWJ)⁻¹ is formed column by column from its Cholesky factor (ml-matrix), the one place where the
- * inverse itself is the wanted result.
+ * (JᵀWJ)⁻¹ is formed column by column from its Cholesky factor, the one place where the inverse itself
+ * is the wanted result.
  */
-import { CholeskyDecomposition, Matrix } from 'ml-matrix';
+import { choleskyInPlace, choleskySolveInPlace } from './lm';
 
 export const HIGH_CORRELATION = 0.95;
 
@@ -26,15 +26,19 @@ export function uncertainty(A: Float64Array, p: number, ssr: number, residualCou
   // Factor the unit-diagonal scaled matrix for accuracy, then undo the scaling.
   const d = new Float64Array(p);
   for (let j = 0; j < p; j++) d[j] = Math.sqrt(A[j * p + j]) || 1;
-  const M = new Matrix(p, p);
-  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) M.set(a, b, A[a * p + b] / (d[a] * d[b]));
-  const chol = new CholeskyDecomposition(M);
-  if (!chol.isPositiveDefinite() || !(dof > 0)) {
+  const L = new Float64Array(p * p);
+  for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = A[a * p + b] / (d[a] * d[b]);
+  if (!choleskyInPlace(L, p) || !(dof > 0)) {
     return { sigma, covariance: null, standardErrors: new Array(p).fill(null), correlation: identity(p), high: [] };
   }
-  const inv = chol.solve(Matrix.eye(p, p));
   const cov = new Float64Array(p * p);
-  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) cov[a * p + b] = (sigma * sigma * inv.get(a, b)) / (d[a] * d[b]);
+  const col = new Float64Array(p);
+  for (let b = 0; b < p; b++) {
+    col.fill(0);
+    col[b] = 1;
+    choleskySolveInPlace(L, p, col);
+    for (let a = 0; a < p; a++) cov[a * p + b] = (sigma * sigma * col[a]) / (d[a] * d[b]);
+  }
   const se = Array.from({ length: p }, (_, j) => Math.sqrt(cov[j * p + j]));
   const correlation: number[][] = [];
   const high: Uncertainty['high'] = [];
