@@ -1,0 +1,285 @@
+import { useMemo, useState } from 'react';
+import {
+  createColumnHelper,
+  flexRender,
+  getCoreRowModel,
+  getSortedRowModel,
+  useReactTable,
+  type SortingState,
+} from '@tanstack/react-table';
+import { CartesianGrid, ComposedChart, Legend, ReferenceLine, ResponsiveContainer, Scatter, Tooltip, XAxis, YAxis } from 'recharts';
+import { downloadCsv, fmt, fmtSigma, sigmaBackground } from './format';
+
+export interface FleetParameterView {
+  key: string;
+  joint?: string;
+  group: string;
+  unit: 'mm' | 'deg';
+  n: number;
+  mean: number | null;
+  sd: number | null;
+  lower: number | null;
+  upper: number | null;
+  outside: string[];
+}
+
+export interface FleetUnitView {
+  serial: string;
+  version: number;
+  needsAttention: boolean;
+  deviations: Record<string, number>;
+  sigmas: Record<string, number | null>;
+  outside: string[];
+  positionError: { maxMm: number; rmsMm: number };
+}
+
+export interface FleetViewProps {
+  modelName: string;
+  parameters: FleetParameterView[];
+  units: FleetUnitView[];
+  outside: { serial: string; key: string; unit: 'mm' | 'deg'; deviation: number; lower: number; upper: number; sigma: number | null }[];
+  positionError: { samples: number; fleet: { maxMm: number; meanMaxMm: number; rmsMm: number } | null };
+}
+
+const GROUP_LABEL: Record<string, string> = { lengths: 'Lengths', twists: 'Twists', offsets: 'Zero offsets', beta: 'Beta', base: 'Base frame', tool: 'Tool point' };
+
+/** A point of the per-unit chart: circle inside the limits, triangle (▲) outside. */
+function UnitMark(props: { cx?: number; cy?: number; payload?: { outside: boolean } }) {
+  const { cx = 0, cy = 0, payload } = props;
+  if (payload?.outside) return <path d={`M${cx},${cy - 7} L${cx + 7},${cy + 5} L${cx - 7},${cy + 5} Z`} fill="var(--color-error)" />;
+  return <circle cx={cx} cy={cy} r={5} fill="var(--color-accent)" />;
+}
+
+function Distribution({ p, units }: { p: FleetParameterView; units: FleetUnitView[] }) {
+  const data = units
+    .filter((u) => u.deviations[p.key] !== undefined)
+    .map((u) => ({ serial: u.serial, deviation: u.deviations[p.key]!, outside: u.outside.includes(p.key) }));
+  const [table, setTable] = useState(false);
+  return (
+    <section className="card flex flex-col gap-3" aria-label={`Distribution of ${p.key}`} data-distribution={p.key}>
+      <div className="flex flex-wrap items-baseline gap-x-6 gap-y-1">
+        <h3>{p.key}{p.joint ? ` (${p.joint})` : ''} — deviation from nominal, {p.unit}</h3>
+        <dl className="flex flex-wrap gap-x-5 text-sm">
+          <div><dt className="inline text-ink-soft">units </dt><dd className="inline num">{p.n}</dd></div>
+          <div><dt className="inline text-ink-soft">mean </dt><dd className="inline num">{fmt(p.mean, p.unit, true)} {p.unit}</dd></div>
+          <div><dt className="inline text-ink-soft">σ (sample, n − 1) </dt><dd className="inline num">{fmt(p.sd, p.unit)} {p.unit}</dd></div>
+          <div><dt className="inline text-ink-soft">limits ±3σ </dt><dd className="inline num">{fmt(p.lower, p.unit, true)} … {fmt(p.upper, p.unit, true)} {p.unit}</dd></div>
+        </dl>
+      </div>
+      <div style={{ width: '100%', height: 280 }}>
+        <ResponsiveContainer>
+          <ComposedChart data={data} margin={{ top: 10, right: 50, bottom: 30, left: 20 }}>
+            <CartesianGrid stroke="var(--color-rule)" />
+            <XAxis dataKey="serial" type="category" label={{ value: 'Unit (serial number)', position: 'insideBottom', offset: -20 }} />
+            <YAxis label={{ value: `Deviation from nominal (${p.unit})`, angle: -90, position: 'insideLeft', style: { textAnchor: 'middle' } }} width={90} tickFormatter={(v: number) => fmt(v, p.unit)} />
+            <Tooltip formatter={(v) => [`${fmt(Number(v), p.unit, true)} ${p.unit}`, 'deviation']} />
+            <Legend verticalAlign="top" />
+            {p.mean !== null && <ReferenceLine y={p.mean} stroke="var(--color-nominal)" strokeDasharray="4 3" ifOverflow="extendDomain" label={{ value: 'mean', position: 'right' }} />}
+            {p.upper !== null && <ReferenceLine y={p.upper} stroke="var(--color-error)" ifOverflow="extendDomain" label={{ value: '+3σ', position: 'right' }} />}
+            {p.lower !== null && <ReferenceLine y={p.lower} stroke="var(--color-error)" ifOverflow="extendDomain" label={{ value: '−3σ', position: 'right' }} />}
+            <Scatter name="Unit's current set (▲ = out of limits; red lines = fleet ±3σ)" dataKey="deviation" fill="var(--color-accent)" shape={UnitMark} isAnimationActive={false} />
+          </ComposedChart>
+        </ResponsiveContainer>
+      </div>
+      <div className="flex gap-2">
+        <button type="button" className="btn btn-quiet" onClick={() => setTable(!table)} aria-expanded={table}>{table ? 'Hide numbers' : 'Show numbers'}</button>
+        <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(`fleet-${p.key}.csv`, ['serial', `deviation_${p.unit}`, 'outside'], data.map((d) => [d.serial, d.deviation, d.outside ? 'yes' : 'no']))}>Download CSV</button>
+      </div>
+      {table && (
+        <table className="data-table">
+          <thead><tr><th>Unit</th><th className="num">Deviation ({p.unit})</th><th>Limits</th></tr></thead>
+          <tbody>
+            {data.map((d) => (
+              <tr key={d.serial}><td>{d.serial}</td><td className="num">{fmt(d.deviation, p.unit, true)}</td><td>{d.outside ? <span className="badge text-error">▲ out of limits</span> : <span className="text-ink-soft">● within</span>}</td></tr>
+            ))}
+          </tbody>
+        </table>
+      )}
+    </section>
+  );
+}
+
+type Row = FleetUnitView;
+const column = createColumnHelper<Row>();
+
+function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units: FleetUnitView[] }) {
+  const [sorting, setSorting] = useState<SortingState>([]);
+  const columns = useMemo(
+    () => [
+      column.accessor('serial', {
+        header: 'Unit',
+        cell: (c) => (
+          <a href={`/units/${encodeURIComponent(c.getValue())}/drift`} className="font-semibold">
+            {c.getValue()}
+          </a>
+        ),
+      }),
+      ...parameters.map((p) =>
+        column.accessor((r) => r.sigmas[p.key] ?? null, {
+          id: p.key,
+          header: `${p.key} (σ)`,
+          sortUndefined: 'last',
+          sortingFn: (a, b, id) => Math.abs((a.getValue<number | null>(id) ?? 0)) - Math.abs((b.getValue<number | null>(id) ?? 0)),
+          cell: (c) => {
+            const z = c.getValue() as number | null;
+            const out = c.row.original.outside.includes(p.key);
+            const dev = c.row.original.deviations[p.key];
+            return (
+              <span title={`deviation ${fmt(dev, p.unit, true)} ${p.unit}`} className="flex items-center justify-end gap-1">
+                {out && <span aria-label="out of limits" className="text-error">▲</span>}
+                {fmtSigma(z)}
+              </span>
+            );
+          },
+        }),
+      ),
+    ],
+    [parameters],
+  );
+  const table = useReactTable({ data: units, columns, state: { sorting }, onSortingChange: setSorting, getCoreRowModel: getCoreRowModel(), getSortedRowModel: getSortedRowModel() });
+  return (
+    <div className="overflow-x-auto">
+      <table className="data-table" aria-label="Units × parameters, deviation in σ">
+        <thead>
+          {table.getHeaderGroups().map((hg) => (
+            <tr key={hg.id}>
+              {hg.headers.map((h) => {
+                const dir = h.column.getIsSorted();
+                return (
+                  <th key={h.id} className={h.column.id === 'serial' ? '' : 'num'} aria-sort={dir === 'asc' ? 'ascending' : dir === 'desc' ? 'descending' : 'none'}>
+                    <button type="button" className="min-h-10 font-semibold" onClick={h.column.getToggleSortingHandler()}>
+                      {flexRender(h.column.columnDef.header, h.getContext())} {dir === 'asc' ? '▴' : dir === 'desc' ? '▾' : ''}
+                    </button>
+                  </th>
+                );
+              })}
+            </tr>
+          ))}
+        </thead>
+        <tbody>
+          {table.getRowModel().rows.map((r) => (
+            <tr key={r.id} data-unit-row={r.original.serial}>
+              {r.getVisibleCells().map((c) => {
+                const isSerial = c.column.id === 'serial';
+                const z = isSerial ? null : (c.getValue() as number | null);
+                return (
+                  <td key={c.id} className={isSerial ? '' : 'num'} style={isSerial ? undefined : { background: sigmaBackground(z) }}>
+                    {flexRender(c.column.columnDef.cell, c.getContext())}
+                  </td>
+                );
+              })}
+            </tr>
+          ))}
+        </tbody>
+      </table>
+      <p className="mt-2 text-sm text-ink-soft">
+        Each cell: (unit's deviation − fleet mean) / fleet σ. Teal below the mean, amber above, stronger toward 3σ; ▲ marks a unit
+        outside the limits. Click a column title to sort by |σ|.
+      </p>
+    </div>
+  );
+}
+
+export default function FleetView({ modelName, parameters, units, outside, positionError }: FleetViewProps) {
+  const spreadParams = parameters.filter((p) => p.sd !== null && p.sd > 0);
+  const firstOutside = outside[0]?.key;
+  const [selected, setSelected] = useState(firstOutside ?? spreadParams[0]?.key ?? parameters[0]?.key ?? '');
+  const p = parameters.find((x) => x.key === selected);
+  const groups = [...new Set(parameters.map((x) => x.group))];
+  if (!units.length) return <p className="notice">No unit of {modelName} has an approved parameter set yet.</p>;
+  return (
+    <div className="flex flex-col gap-6">
+      <section aria-label="Units outside the limits" className="flex flex-col gap-2">
+        <h2>Units outside the limits</h2>
+        {outside.length === 0 ? (
+          <p className="notice">● No unit lies outside the ±3σ limits of the rest of the fleet.</p>
+        ) : (
+          <table className="data-table" data-outside-list>
+            <thead><tr><th>Unit</th><th>Parameter</th><th className="num">Deviation</th><th className="num">Limits of the other units</th><th className="num">σ</th><th>State</th></tr></thead>
+            <tbody>
+              {outside.map((o) => (
+                <tr key={`${o.serial}-${o.key}`}>
+                  <td><a href={`/units/${encodeURIComponent(o.serial)}/drift`} className="font-semibold">{o.serial}</a></td>
+                  <td><button type="button" className="btn-quiet min-h-10 underline" onClick={() => setSelected(o.key)}>{o.key}</button></td>
+                  <td className="num">{fmt(o.deviation, o.unit, true)} {o.unit}</td>
+                  <td className="num">{fmt(o.lower, o.unit, true)} … {fmt(o.upper, o.unit, true)} {o.unit}</td>
+                  <td className="num">{fmtSigma(o.sigma)}</td>
+                  <td><span className="badge text-error">▲ out of limits</span></td>
+                </tr>
+              ))}
+            </tbody>
+          </table>
+        )}
+        <p className="text-sm text-ink-soft">
+          A unit is out of limits when its deviation lies outside mean ± 3σ of the <em>other</em> units (sample σ, n − 1). With the unit
+          itself included, no unit of a fleet of ten or fewer could ever leave ±3σ (Samuelson's inequality), so small fleets are judged this way.
+        </p>
+      </section>
+
+      <section className="flex flex-col gap-3" aria-label="Distribution per parameter">
+        <h2>Distribution per parameter</h2>
+        <label className="field max-w-md">
+          <span>Parameter</span>
+          <select className="input" value={selected} onChange={(e) => setSelected(e.target.value)} name="parameter">
+            {groups.map((g) => (
+              <optgroup key={g} label={GROUP_LABEL[g] ?? g}>
+                {parameters.filter((x) => x.group === g).map((x) => (
+                  <option key={x.key} value={x.key}>{x.key}{x.joint ? ` (${x.joint})` : ''}{x.outside.length ? ' ▲' : ''}</option>
+                ))}
+              </optgroup>
+            ))}
+          </select>
+        </label>
+        {p && <Distribution p={p} units={units} />}
+        <details>
+          <summary className="min-h-10 cursor-pointer font-semibold">All parameters: mean, σ and limits</summary>
+          <div className="overflow-x-auto">
+            <table className="data-table">
+              <thead><tr><th>Group</th><th>Parameter</th><th>Unit</th><th className="num">n</th><th className="num">Mean</th><th className="num">σ (n − 1)</th><th className="num">−3σ</th><th className="num">+3σ</th><th>Outside</th></tr></thead>
+              <tbody>
+                {parameters.map((x) => (
+                  <tr key={x.key}>
+                    <td>{GROUP_LABEL[x.group] ?? x.group}</td><td>{x.key}</td><td>{x.unit}</td><td className="num">{x.n}</td>
+                    <td className="num">{fmt(x.mean, x.unit, true)}</td><td className="num">{fmt(x.sd, x.unit)}</td>
+                    <td className="num">{fmt(x.lower, x.unit, true)}</td><td className="num">{fmt(x.upper, x.unit, true)}</td>
+                    <td>{x.outside.length ? <span className="text-error">▲ {x.outside.join(', ')}</span> : '—'}</td>
+                  </tr>
+                ))}
+              </tbody>
+            </table>
+          </div>
+        </details>
+      </section>
+
+      <section className="flex flex-col gap-2" aria-label="Units × parameters">
+        <h2>Units × parameters (deviation in σ)</h2>
+        <Matrix parameters={parameters} units={units} />
+      </section>
+
+      <section className="flex flex-col gap-2" aria-label="Position error">
+        <h2>Predicted position error: nominal vs calibrated</h2>
+        <p className="text-sm text-ink-soft">
+          Distance between the tool point predicted by the nominal geometry and by each unit's current set, over {positionError.samples} seeded joint
+          configurations within the joint limits, in the robot base frame.
+        </p>
+        {positionError.fleet && (
+          <p className="num text-left" data-fleet-position-error>
+            Fleet: largest {fmt(positionError.fleet.maxMm, 'mm')} mm · mean of unit maxima {fmt(positionError.fleet.meanMaxMm, 'mm')} mm · RMS {fmt(positionError.fleet.rmsMm, 'mm')} mm
+          </p>
+        )}
+        <table className="data-table">
+          <thead><tr><th>Unit</th><th className="num">Version</th><th className="num">Max (mm)</th><th className="num">RMS (mm)</th><th>Attention</th></tr></thead>
+          <tbody>
+            {units.map((u) => (
+              <tr key={u.serial}>
+                <td>{u.serial}</td><td className="num">v{u.version}</td>
+                <td className="num">{fmt(u.positionError.maxMm, 'mm')}</td><td className="num">{fmt(u.positionError.rmsMm, 'mm')}</td>
+                <td>{u.needsAttention ? <span className="badge text-attention">▲ drift alert open</span> : '—'}</td>
+              </tr>
+            ))}
+          </tbody>
+        </table>
+      </section>
+    </div>
+  );
+}
