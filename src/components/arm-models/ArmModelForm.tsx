@@ -1,4 +1,4 @@
-import { useMemo, useRef, useState } from 'react';
+import { useEffect, useMemo, useRef, useState } from 'react';
 import { parseGeometry } from '../../lib/engine/geometry';
 import { EngineInputError, type ArmGeometry, type FrameSpec } from '../../lib/engine/types';
 import { api, type ApiError } from '../../lib/shared/api-client';
@@ -75,6 +75,9 @@ export interface ArmModelFormProps {
  * geometry schema while typing (the server checks again); problems sit beside their fields.
  */
 export default function ArmModelForm({ mode, modelId, initial, latestInUse = false, latestRevision }: ArmModelFormProps) {
+  // Set once React has taken over, so nothing submits natively before that (and tests can wait for it).
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
   const start = initial?.geometry;
   const [name, setName] = useState(initial?.name ?? '');
   const [manufacturer, setManufacturer] = useState(initial?.manufacturer ?? '');
@@ -161,7 +164,7 @@ export default function ArmModelForm({ mode, modelId, initial, latestInUse = fal
   const limitUnit = (r: JointRow) => (r.type === 'prismatic' ? 'mm' : 'deg');
 
   return (
-    <form onSubmit={submit} noValidate className="flex flex-col gap-6" data-arm-model-form data-hydrated="true">
+    <form onSubmit={submit} noValidate className="flex flex-col gap-6" data-arm-model-form data-hydrated={hydrated ? 'true' : undefined}>
       <section className="card grid gap-4 md:grid-cols-3">
         <label className="field">
           <span>Name</span>
@@ -347,7 +350,7 @@ export default function ArmModelForm({ mode, modelId, initial, latestInUse = fal
       {touched && !checked.ok && <p className="text-sm text-error">✕ {clientIssues.length} problem(s) in the form; they are marked beside the fields.</p>}
 
       <div className="flex gap-3">
-        <button type="submit" className="btn" disabled={busy}>
+        <button type="submit" className="btn" disabled={busy || !hydrated}>
           {mode === 'create' ? 'Create arm model' : 'Save changes'}
         </button>
         <a className="btn btn-quiet" href={mode === 'edit' ? `/arm-models/${modelId}` : '/arm-models'}>

@@ -1,4 +1,4 @@
-import { useState } from 'react';
+import { useEffect, useState } from 'react';
 import { api, type ApiError } from '../../lib/shared/api-client';
 
 interface Quality {
@@ -22,6 +22,9 @@ const sig = (v: number) => (Number.isFinite(v) ? v.toPrecision(4) : '∞');
 
 /** "Pose plan for the next visit": count and seed → quality figures, warnings and the CSV download. */
 export default function PosePlanBox({ serial }: { serial: string }) {
+  // Set once React has taken over, so nothing submits natively before that (and tests can wait for it).
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
   const [count, setCount] = useState('60');
   const [seed, setSeed] = useState('1');
   const [plan, setPlan] = useState<Plan | null>(null);
@@ -46,7 +49,7 @@ export default function PosePlanBox({ serial }: { serial: string }) {
   const stale = plan && (String(plan.count) !== count || String(plan.seed) !== seed);
 
   return (
-    <div className="flex flex-col gap-3" data-pose-plan data-hydrated="true">
+    <div className="flex flex-col gap-3" data-pose-plan data-hydrated={hydrated ? 'true' : undefined}>
       <form onSubmit={make} className="flex flex-wrap items-end gap-3">
         <label className="field">
           <span>Poses (6–500)</span>
@@ -56,7 +59,7 @@ export default function PosePlanBox({ serial }: { serial: string }) {
           <span>Seed</span>
           <input className="input num w-24" inputMode="numeric" value={seed} onChange={(e) => setSeed(e.target.value)} name="seed" />
         </label>
-        <button className="btn" type="submit" disabled={busy}>
+        <button className="btn" type="submit" disabled={busy || !hydrated}>
           {busy ? 'Planning…' : 'Make plan'}
         </button>
         {plan && !stale && (

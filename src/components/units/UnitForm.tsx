@@ -1,4 +1,4 @@
-import { useState } from 'react';
+import { useEffect, useState } from 'react';
 import { api, type ApiError } from '../../lib/shared/api-client';
 
 export interface ModelChoice {
@@ -9,6 +9,9 @@ export interface ModelChoice {
 
 /** Register a unit: serial number, arm model and revision (latest by default), site, cell, commissioning date, notes. */
 export default function UnitForm({ models, initialModel }: { models: ModelChoice[]; initialModel?: string }) {
+  // Set once React has taken over, so nothing submits natively before that (and tests can wait for it).
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
   const [modelId, setModelId] = useState(initialModel && models.some((m) => m.id === initialModel) ? initialModel : (models[0]?.id ?? ''));
   const [revision, setRevision] = useState('');
   const [error, setError] = useState<ApiError | null>(null);
@@ -44,7 +47,7 @@ export default function UnitForm({ models, initialModel }: { models: ModelChoice
   };
 
   return (
-    <form onSubmit={submit} className="card grid gap-4 md:grid-cols-2" data-unit-form data-hydrated="true">
+    <form onSubmit={submit} className="card grid gap-4 md:grid-cols-2" data-unit-form data-hydrated={hydrated ? 'true' : undefined}>
       <label className="field">
         <span>Serial number</span>
         <input className="input" name="serial" required maxLength={64} pattern="[A-Za-z0-9][A-Za-z0-9._\-]*" placeholder="e.g. VX620-10457" autoComplete="off" />
@@ -93,7 +96,7 @@ export default function UnitForm({ models, initialModel }: { models: ModelChoice
         </p>
       )}
       <div className="flex gap-3 md:col-span-2">
-        <button className="btn" type="submit" disabled={busy}>Register unit</button>
+        <button className="btn" type="submit" disabled={busy || !hydrated}>Register unit</button>
         <a className="btn btn-quiet" href="/units">Cancel</a>
       </div>
     </form>

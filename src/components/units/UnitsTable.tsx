@@ -34,6 +34,9 @@ const PAGE_SIZES = [10, 25, 50, 100];
  * holds the state and shows one page. The state is mirrored in the address so a view can be shared.
  */
 export default function UnitsTable({ initial, initialQuery, models }: UnitsTableProps) {
+  // Set once React has taken over, so nothing submits natively before that (and tests can wait for it).
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
   const [data, setData] = useState(initial);
   const [sorting, setSorting] = useState<SortingState>([{ id: initialQuery.sort, desc: initialQuery.dir === 'desc' }]);
   const [pagination, setPagination] = useState<PaginationState>({ pageIndex: initial.page - 1, pageSize: initial.pageSize });
@@ -132,7 +135,7 @@ export default function UnitsTable({ initial, initialQuery, models }: UnitsTable
   const to = Math.min(data.total, data.page * data.pageSize);
 
   return (
-    <div className="flex flex-col gap-3" data-units-table data-hydrated="true">
+    <div className="flex flex-col gap-3" data-units-table data-hydrated={hydrated ? 'true' : undefined}>
       <div className="flex flex-wrap items-end gap-3">
         <label className="field min-w-60 flex-1">
           <span>Search serial number, site, cell or model</span>
