@@ -7,7 +7,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { auditLog, driftAlerts, units } from '../../src/db/schema';
 import { createDb } from '../../src/lib/server/db';
 import { checkDriftOnApproval, DEFAULT_TOLERANCES, toleranceFor } from '../../src/lib/server/drift';
-import { approveSet, makeModel, makeUnit, moved, testArm } from '../support/approved-sets';
+import { approveSet, fitAwaitingReview, makeModel, makeUnit, moved, testArm } from '../support/approved-sets';
 import { BASE_URL, DEMO, signedIn, type Client } from '../support/http';
 import { waitForMail } from '../support/services';
 
@@ -140,5 +140,23 @@ describe('drift alerts', () => {
     expect(entries).toHaveLength(2);
     const still = await quality.json('/api/alerts');
     expect(still.body.alerts.filter((a: { serial: string }) => a.serial === unit.serial)).toHaveLength(0);
+  });
+});
+
+describe('drift check inside the real approval', () => {
+  it('approving a fit through the API raises the alert and marks the unit', async () => {
+    const m = await makeModel(db, nominal);
+    const u = await makeUnit(db, m.revisionId);
+    const engineer = await signedIn(DEMO.engineer);
+    const first = await fitAwaitingReview(db, { unitId: u.unitId, revisionId: m.revisionId, geometry: moved(nominal, { 'J2.a': 0.01 }) });
+    expect((await engineer.json(`/api/fits/${first.fitId}/approve`, { method: 'POST', json: {} })).status).toBe(200);
+    const second = await fitAwaitingReview(db, { unitId: u.unitId, revisionId: m.revisionId, geometry: moved(nominal, { 'J2.a': 0.61 }) });
+    expect((await engineer.json(`/api/fits/${second.fitId}/approve`, { method: 'POST', json: {} })).status).toBe(200);
+    const alerts = await db.select().from(driftAlerts).where(eq(driftAlerts.unitId, u.unitId));
+    expect(alerts).toHaveLength(1);
+    expect(alerts[0]!.details.map((d) => d.key)).toEqual(['J2.a']);
+    expect(alerts[0]!.details[0]!.change).toBeCloseTo(0.6, 9);
+    const [row] = await db.select().from(units).where(eq(units.id, u.unitId));
+    expect(row!.needsAttention).toBe(true);
   });
 });

@@ -97,3 +97,24 @@ export function moved(nominal: ArmGeometry, changes: Record<string, number>): Ar
   }
   return g;
 }
+
+/** A session and a fitted fit awaiting review (run and submitted by `byEmail`), for approval through the API. */
+export async function fitAwaitingReview(database: Conn, o: { unitId: string; revisionId: string; geometry: ArmGeometry; byEmail?: string }) {
+  const by = await userId(database, o.byEmail ?? 'technician@example.com');
+  const key = uniq('sess-');
+  const [s] = await database
+    .insert(sessions)
+    .values({
+      unitId: o.unitId, modelRevisionId: o.revisionId, measuredOn: '2026-03-02', fileName: `${key}.csv`, fileKey: `test/${key}.csv`,
+      fileSha256: key.padEnd(64, '0').slice(0, 64), fileBytes: 100, poseCount: 40, jointCount: o.geometry.joints.length,
+    })
+    .returning({ id: sessions.id });
+  const [f] = await database
+    .insert(fits)
+    .values({
+      sessionId: s!.id, unitId: o.unitId, state: 'fitted', settings: {}, calibrated: o.geometry, reviewState: 'awaiting_review', engineVersion: 'test',
+      report: { parameters: [] }, createdBy: by, submittedBy: by, submittedAt: new Date(), finishedAt: new Date(),
+    })
+    .returning({ id: fits.id });
+  return { fitId: f!.id };
+}

@@ -13,6 +13,7 @@ import type { ArmGeometry } from '../engine/types';
 import { audit } from './audit';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
+import { checkDriftOnApproval } from './drift';
 import { composeMail, enqueueMail } from './mail';
 import type { CurrentUser } from './users';
 
@@ -120,6 +121,8 @@ export async function approveFit(
         comment: comment ?? '',
       })
       .returning({ id: parameterSets.id, version: parameterSets.version });
+    // Drift beyond tolerance from the previous version: alert, attention mark and mail, in this transaction.
+    await checkDriftOnApproval(tx, { unitId: fit.unitId, newSetId: set!.id });
     await tx
       .update(fits)
       .set({ reviewState: 'approved', decidedBy: user.id, decidedAt: sql`now()`, decisionComment: comment || null })
