@@ -19,7 +19,7 @@ import { levenbergMarquardt, robustWeight, type LeastSquaresProblem } from './lm
 import { observability, selectIdentifiable, subMatrix } from './identifiability';
 import { uncertainty } from './uncertainty';
 import { errorStats } from './stats';
-import { assignRoles, kFoldAssignment, standardisedResidual, type PoseRole } from './validation';
+import { assignRoles, kFoldAssignment, leverageFactor, standardisedResidual, type PoseRole } from './validation';
 
 export const ENGINE_VERSION = '1.0.0';
 
@@ -362,16 +362,17 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   predictPoints(model, data, v, all, after, errAfter);
   setParameters(model, data, v);
   const tmp = new Float64Array(3 * p);
+  const lev = unc.covariance ? leverageFactor(A, p) : null;
   const name = labelOrLine(poses);
   const poseReports: PoseResidual[] = poses.map((pose, i) => {
     const mb: [number, number, number] = [all.measured[3 * i] - before[3 * i], all.measured[3 * i + 1] - before[3 * i + 1], all.measured[3 * i + 2] - before[3 * i + 2]];
     const ma: [number, number, number] = [all.measured[3 * i] - after[3 * i], all.measured[3 * i + 1] - after[3 * i + 1], all.measured[3 * i + 2] - after[3 * i + 2]];
     let s: number | null = null;
-    if (unc.covariance) {
+    if (lev) {
       forwardKinematics(model, data, all.q, i * n, true);
       pointJacobian(model, data, active, J);
       // Robust weights scale a fit pose's information; the studentisation uses the unweighted residual.
-      s = standardisedResidual(ma, J, unc.covariance, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);
+      s = standardisedResidual(ma, J, lev, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);
     }
     return {
       label: pose.label, line: pose.line, role: roles[i], before: mb, after: ma,

@@ -37,14 +37,15 @@ export function kabsch(from: ArrayLike<number>, to: ArrayLike<number>, weights?:
     }
   }
   for (let c = 0; c < 3; c++) { pc[c] /= W; qc[c] /= W; }
-  const H = Matrix.zeros(3, 3);
+  const h = [0, 0, 0, 0, 0, 0, 0, 0, 0];
   for (let i = 0; i < n; i++) {
     const w = weights ? weights[i] : 1;
     for (let r = 0; r < 3; r++) {
-      const pr = from[3 * i + r] - pc[r];
-      for (let c = 0; c < 3; c++) H.set(r, c, H.get(r, c) + w * pr * (to[3 * i + c] - qc[c]));
+      const pr = w * (from[3 * i + r] - pc[r]);
+      for (let c = 0; c < 3; c++) h[3 * r + c] += pr * (to[3 * i + c] - qc[c]);
     }
   }
+  const H = new Matrix([h.slice(0, 3), h.slice(3, 6), h.slice(6, 9)]);
   const svd = new SingularValueDecomposition(H);
   const U = svd.leftSingularVectors, V = svd.rightSingularVectors, s = svd.diagonal;
   const VUt = V.mmul(U.transpose());

@@ -7,13 +7,14 @@
  * same side, so repeat visits never leak between fit and hold-out).
  *
  * Standardised residual of a pose with 3-D residual e (mm), point Jacobian J_i (3×p) and
- * C = (JᵀWJ)⁻¹: the leverage block H_i = J_i C J_iᵀ gives Var(e) = σ²(I − H_i) for a fit pose and
+ * C = (JᵀWJ)⁻¹: the leverage block H_i = J_i C J_iᵀ (computed by triangular solves) gives Var(e) = σ²(I − H_i) for a fit pose and
  * σ²(I + H_i) for a pose not in the fit (Cook & Weisberg, "Residuals and Influence in Regression", 1982,
  * internally studentised residuals and prediction errors). We report s = √(eᵀ(I ∓ H_i)⁻¹e / 3) / σ, the RMS
  * of the three studentised coordinates, so s ≈ 1 for an ordinary pose.
  */
 import type { SessionPose } from './types';
 import { EngineInputError } from './types';
+import { choleskyInPlace } from './lm';
 
 export type PoseRole = 'fit' | 'holdout' | 'excluded';
 
@@ -89,29 +90,42 @@ export function kFoldAssignment(labels: string[], k: number, seed: number): numb
 }
 
 /**
- * s = √(eᵀ(I + sign·H)⁻¹e / 3) / σ with H = J C Jᵀ (J interleaved by column: J[3k + r]).
- * sign = −1 for a pose in the fit, +1 for a pose outside it. Returns null when I − H is singular
- * (a pose with leverage 1, which alone determines some parameter).
+ * Factor for leverages: with A = JᵀWJ = D·S·D (D = √diag A) and S = LLᵀ, the leverage block of a pose is
+ * H = J A⁻¹ Jᵀ = WᵀW with W = L⁻¹ D⁻¹ Jᵀ (triangular solves, no inverse). Returns null when A is singular.
  */
-export function standardisedResidual(e: ArrayLike<number>, J: Float64Array, C: Float64Array, p: number, sigma: number, sign: 1 | -1, tmp: Float64Array): number | null {
-  // tmp (3p) = C Jᵀ, column r at tmp[3a + r].
-  for (let a = 0; a < p; a++) {
-    let t0 = 0, t1 = 0, t2 = 0;
-    const row = a * p;
-    for (let b = 0; b < p; b++) {
-      const c = C[row + b];
-      t0 += c * J[3 * b];
-      t1 += c * J[3 * b + 1];
-      t2 += c * J[3 * b + 2];
+export function leverageFactor(A: Float64Array, p: number): { L: Float64Array; d: Float64Array } | null {
+  const d = new Float64Array(p);
+  for (let j = 0; j < p; j++) d[j] = Math.sqrt(A[j * p + j]) || 1;
+  const L = new Float64Array(p * p);
+  for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = A[b * p + a] / (d[a] * d[b]);
+  return choleskyInPlace(L, p) ? { L, d } : null;
+}
+
+/**
+ * s = √(eᵀ(I + sign·H)⁻¹e / 3) / σ for a pose with residual e and point Jacobian J (interleaved by
+ * column: J[3k + r]); sign = −1 for a pose in the fit, +1 for one outside it. `tmp` holds 3p numbers.
+ * Returns null when I − H is singular (a pose with leverage 1, which alone determines some parameter).
+ */
+export function standardisedResidual(
+  e: ArrayLike<number>, J: Float64Array, f: { L: Float64Array; d: Float64Array }, p: number, sigma: number, sign: 1 | -1, tmp: Float64Array,
+): number | null {
+  const L = f.L, d = f.d;
+  // W (3 columns of length p, at tmp[r·p + i]) = L⁻¹ D⁻¹ Jᵀ.
+  for (let r = 0; r < 3; r++) {
+    const o = r * p;
+    for (let i = 0; i < p; i++) {
+      let s = J[3 * i + r] / d[i];
+      const li = i * p;
+      for (let k = 0; k < i; k++) s -= L[li + k] * tmp[o + k];
+      tmp[o + i] = s / L[li + i];
     }
-    tmp[3 * a] = t0; tmp[3 * a + 1] = t1; tmp[3 * a + 2] = t2;
   }
   const M = [0, 0, 0, 0, 0, 0, 0, 0, 0];
   for (let r = 0; r < 3; r++) {
-    for (let c = 0; c < 3; c++) {
+    for (let c = r; c < 3; c++) {
       let h = 0;
-      for (let a = 0; a < p; a++) h += J[3 * a + r] * tmp[3 * a + c];
-      M[3 * r + c] = (r === c ? 1 : 0) + sign * h;
+      for (let i = 0; i < p; i++) h += tmp[r * p + i] * tmp[c * p + i];
+      M[3 * r + c] = M[3 * c + r] = (r === c ? 1 : 0) + sign * h;
     }
   }
   // Solve M x = e by Cramer's rule (3×3).
