@@ -442,6 +442,13 @@ async function main() {
   const code = await runSuites(env);
   // A crash of the main app during the run is worth knowing about even when tests passed.
   if (mainApp && !apps.has(mainApp)) say(`note: the app exited during the run; its log:\n${tail(path.join(logDir, `${mainApp}.log`), 20)}`);
+  if (code !== 0 && !keep) {
+    // The run folder goes away; its logs (app instances, fakes, PostgreSQL) are what explains a failure.
+    const saved = fs.mkdtempSync('/tmp/offsetry-test-logs-');
+    fs.cpSync(logDir, saved, { recursive: true });
+    if (fs.existsSync(cluster.logFile)) fs.copyFileSync(cluster.logFile, path.join(saved, 'postgres.log'));
+    say(`tests failed: service and app logs saved in ${saved}`);
+  }
   return code;
 }
 
