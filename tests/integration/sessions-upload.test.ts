@@ -67,7 +67,7 @@ async function upload(client: Client, u: Upload) {
   const fields = { measuredOn: '2025-03-14', technician: 'Test Tech', instrument: 'tracker T-1', ambientC: '21.5', target: '1.5 in SMR', notes: '', ...u.fields };
   for (const [k, v] of Object.entries(fields)) form.append(k, v);
   const bytes = typeof u.file === 'string' ? new TextEncoder().encode(u.file) : u.file;
-  form.append('file', new Blob([bytes], { type: 'text/csv' }), u.fileName ?? 'session.csv');
+  form.append('file', new Blob([bytes as Uint8Array<ArrayBuffer>], { type: 'text/csv' }), u.fileName ?? 'session.csv');
   return client.json<any>('/api/sessions', { method: 'POST', body: form });
 }
 
