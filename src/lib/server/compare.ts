@@ -200,3 +200,15 @@ export async function compareForUnit(
   const strip = ({ geometry: _g, standardErrors: _s, ...rest }: GeometryRef) => rest;
   return { ok: true, a: strip(a), b: strip(b), parameters: parameterDifferences(a, b), workspace };
 }
+
+/** The unit behind a serial number with the choices its comparison page offers. */
+export async function comparePageData(serial: string, database: Db = sharedDb()) {
+  const [unit] = await database.select({ id: units.id, serial: units.serial }).from(units).where(eq(units.serial, serial));
+  if (!unit) return undefined;
+  const choices = await comparisonChoices(unit.id, database);
+  const [current] = await database
+    .select({ id: parameterSets.id })
+    .from(parameterSets)
+    .where(and(eq(parameterSets.unitId, unit.id), eq(parameterSets.state, 'current')));
+  return { unit, choices, defaultB: current?.id ?? choices.at(-1)?.ref ?? 'nominal' };
+}
