@@ -100,8 +100,13 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
   const p = problem.size;
   const x = Float64Array.from(x0);
   const xn = new Float64Array(p);
-  const A = new Float64Array(p * p);
-  const g = new Float64Array(p);
+  let A = new Float64Array(p * p);
+  let g = new Float64Array(p);
+  // Without reweighting, a trial point's normal equations are computed in the same pass as its cost:
+  // near the solution nearly every step is accepted, so this saves one pass over the data per iteration.
+  const fused = !problem.reweight;
+  let At = fused ? new Float64Array(p * p) : A;
+  let gt = fused ? new Float64Array(p) : g;
   const D = new Float64Array(p);
   const M = new Float64Array(p * p);
   const b = new Float64Array(p);
@@ -188,8 +193,14 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       }
       predicted *= 0.5;
       const stepNorm = Math.sqrt(stepScaled2);
-      const costN = problem.cost(xn);
-      evaluations.cost++;
+      let costN: number;
+      if (fused) {
+        costN = problem.normalEquations(xn, At, gt);
+        evaluations.normal++;
+      } else {
+        costN = problem.cost(xn);
+        evaluations.cost++;
+      }
       const rho = predicted > 0 ? (cost - costN) / predicted : -1;
       if (rho > 0 && costN < cost) {
         lambda *= Math.max(1 / 3, 1 - (2 * rho - 1) ** 3);
@@ -197,9 +208,15 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
         const reduction = cost - costN;
         const costBefore = cost;
         x.set(xn);
-        problem.reweight?.(x);
-        cost = problem.normalEquations(x, A, g);
-        evaluations.normal++;
+        if (fused) {
+          [A, At] = [At, A];
+          [g, gt] = [gt, g];
+          cost = costN;
+        } else {
+          problem.reweight?.(x);
+          cost = problem.normalEquations(x, A, g);
+          evaluations.normal++;
+        }
         report({ iteration: iter, cost, rmsMm: rmsOf(cost), lambda, stepNorm });
         if (reduction <= ftol * costBefore) { stop = 'cost'; break outer; }
         if (stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'step'; break outer; }
