@@ -2,7 +2,7 @@ import { defineMiddleware, sequence } from 'astro:middleware';
 import { getSession } from 'auth-astro/server';
 import { randomUUID } from 'node:crypto';
 import { allows, matchApiRoute, pageAccess, type Method } from './lib/shared/routes';
-import { config } from './lib/server/config';
+import { config, configProblems } from './lib/server/config';
 import { isServiceUnavailable, json } from './lib/server/http';
 import { log } from './lib/server/log';
 import { activeUserById, userByBearer } from './lib/server/users';
@@ -13,8 +13,31 @@ const isAuthRoute = (path: string) => path.startsWith('/api/auth/');
 const UNSAFE = new Set(['POST', 'PUT', 'PATCH', 'DELETE']);
 export const CLIENT_HEADER = 'x-offsetry-client-address';
 
+let configChecked = false;
+
+/**
+ * The configuration check at first use, for deployments that start dist/server/entry.mjs directly rather than
+ * through scripts/serve.mjs (which checks before starting): every problem goes to the log, the request gets a
+ * 503, and the process exits with 78 (EX_CONFIG) instead of serving half-configured.
+ */
+function configRefusal(): Response | undefined {
+  if (configChecked) return undefined;
+  const found = configProblems();
+  if (!found.length) {
+    configChecked = true;
+    return undefined;
+  }
+  const message = `Offsetry configuration is incomplete; the server stops:\n  ${found.join('\n  ')}`;
+  log('error', 'configuration incomplete', { problems: found });
+  process.stderr.write(message + '\n');
+  setTimeout(() => process.exit(78), 200);
+  return json({ error: 'The server is not configured completely and is stopping; see its log.' }, 503);
+}
+
 /** Request id, structured access log, and a clean 503 when PostgreSQL (or S3) is away. */
 const observe = defineMiddleware(async (context, next) => {
+  const refusal = configRefusal();
+  if (refusal) return refusal;
   startBackground();
   const started = performance.now();
   const incoming = context.request.headers.get('x-request-id');

@@ -18,7 +18,7 @@ const schema = z.object({
   S3_SECRET_ACCESS_KEY: z.string().min(1),
   S3_FORCE_PATH_STYLE: bool.default(true),
   SMTP_HOST: z.string().min(1),
-  SMTP_PORT: z.coerce.number().int().min(1).max(65535),
+  SMTP_PORT: z.coerce.number({ error: 'must be a port number (1–65535)' }).int().min(1).max(65535),
   SMTP_SECURE: bool.default(false),
   SMTP_USER: z.string().optional(),
   SMTP_PASS: z.string().optional(),
@@ -45,11 +45,17 @@ export const EXAMPLE_SECRET = 'change-me-change-me-change-me-change-me';
 let cached: Config | undefined;
 
 export function configProblems(env: NodeJS.ProcessEnv = process.env): string[] {
-  const parsed = schema.safeParse(stripEmpty(env));
+  const given = stripEmpty(env);
+  const parsed = schema.safeParse(given);
+  // A variable that is not set at all says so, rather than zod's "expected string, received undefined".
   const problems = parsed.success
     ? []
-    : parsed.error.issues.map((i) => `${i.path.join('.') || '(environment)'}: ${i.message}`);
-  if (parsed.success && parsed.data.OFFSETRY_MODE === 'production' && parsed.data.AUTH_SECRET === EXAMPLE_SECRET) {
+    : parsed.error.issues.map((i) => {
+        const name = i.path.join('.') || '(environment)';
+        return `${name}: ${i.path.length === 1 && given[name] === undefined ? 'is not set' : i.message}`;
+      });
+  // Checked on the raw values too, so the list is complete even when other variables are wrong.
+  if (given.OFFSETRY_MODE === 'production' && given.AUTH_SECRET === EXAMPLE_SECRET) {
     problems.push('AUTH_SECRET: the example secret is refused in production mode; generate your own');
   }
   return problems;
