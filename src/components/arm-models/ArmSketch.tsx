@@ -81,9 +81,9 @@ export default function ArmSketch({ geometry }: { geometry: ArmGeometry }) {
           {computed.chosen.map((p, i) => (
             <tr key={i}>
               <td>{p.label}</td>
-              <td className="num">{p.x.toFixed(3)}</td>
-              <td className="num">{p.y.toFixed(3)}</td>
-              <td className="num">{p.z.toFixed(3)}</td>
+              <td className="num">{mm(p.x)}</td>
+              <td className="num">{mm(p.y)}</td>
+              <td className="num">{mm(p.z)}</td>
             </tr>
           ))}
         </tbody>
@@ -91,6 +91,9 @@ export default function ArmSketch({ geometry }: { geometry: ArmGeometry }) {
     </div>
   );
 }
+
+/** mm with 3 decimals; rounding noise never shows as "-0.000". */
+const mm = (v: number) => (Math.abs(v) < 0.0005 ? 0 : v).toFixed(3);
 
 const W = 380;
 const H = 320;
