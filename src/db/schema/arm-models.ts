@@ -1,4 +1,5 @@
-import { integer, jsonb, pgTable, text, unique, uuid } from 'drizzle-orm/pg-core';
+import { sql } from 'drizzle-orm';
+import { integer, jsonb, pgTable, text, unique, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
 import type { ArmGeometry } from '../../lib/engine/types';
 import { createdAt, id } from './columns';
 import { users } from './users';
@@ -14,7 +15,9 @@ export interface GroupTolerances {
 }
 
 /** A model type (for example a 6-axis articulated arm); its geometry lives in revisions. */
-export const armModels = pgTable('arm_models', {
+export const armModels = pgTable(
+  'arm_models',
+  {
   id: id(),
   name: text().notNull().unique(),
   manufacturer: text().notNull().default(''),
@@ -22,7 +25,9 @@ export const armModels = pgTable('arm_models', {
   tolerances: jsonb().$type<GroupTolerances>(),
   createdBy: uuid().references(() => users.id),
   createdAt: createdAt(),
-});
+  },
+  (t) => [uniqueIndex('arm_models_name_lower_unique').on(sql`lower(${t.name})`)],
+);
 
 /** Nominal geometry revision r1, r2, …; a revision a unit uses is never changed: edits make a new one. */
 export const armModelRevisions = pgTable(

@@ -1,4 +1,5 @@
-import { boolean, date, pgTable, text, uuid } from 'drizzle-orm/pg-core';
+import { sql } from 'drizzle-orm';
+import { boolean, date, pgTable, text, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
 import { armModelRevisions } from './arm-models';
 import { createdAt, id } from './columns';
 import { users } from './users';
@@ -16,4 +17,7 @@ export const units = pgTable('units', {
   needsAttention: boolean().notNull().default(false),
   createdBy: uuid().references(() => users.id),
   createdAt: createdAt(),
-});
+}, (t) => [
+  // Serial numbers are unique whatever the letter case, also under concurrent registrations.
+  uniqueIndex('units_serial_lower_unique').on(sql`lower(${t.serial})`),
+]);

@@ -1,0 +1,2 @@
+CREATE UNIQUE INDEX "arm_models_name_lower_unique" ON "arm_models" USING btree (lower("name"));--> statement-breakpoint
+CREATE UNIQUE INDEX "units_serial_lower_unique" ON "units" USING btree (lower("serial"));
