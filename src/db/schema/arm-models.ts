@@ -18,13 +18,13 @@ export interface GroupTolerances {
 export const armModels = pgTable(
   'arm_models',
   {
-  id: id(),
-  name: text().notNull().unique(),
-  manufacturer: text().notNull().default(''),
-  description: text().notNull().default(''),
-  tolerances: jsonb().$type<GroupTolerances>(),
-  createdBy: uuid().references(() => users.id),
-  createdAt: createdAt(),
+    id: id(),
+    name: text().notNull().unique(),
+    manufacturer: text().notNull().default(''),
+    description: text().notNull().default(''),
+    tolerances: jsonb().$type<GroupTolerances>(),
+    createdBy: uuid().references(() => users.id),
+    createdAt: createdAt(),
   },
   (t) => [uniqueIndex('arm_models_name_lower_unique').on(sql`lower(${t.name})`)],
 );

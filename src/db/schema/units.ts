@@ -5,19 +5,23 @@ import { createdAt, id } from './columns';
 import { users } from './users';
 
 /** One physical arm, by serial number. */
-export const units = pgTable('units', {
-  id: id(),
-  serial: text().notNull().unique(),
-  modelRevisionId: uuid().notNull().references(() => armModelRevisions.id, { onDelete: 'restrict' }),
-  site: text().notNull().default(''),
-  cell: text().notNull().default(''),
-  commissionedOn: date(),
-  notes: text().notNull().default(''),
-  /** Set by a drift alert until someone acknowledges it. */
-  needsAttention: boolean().notNull().default(false),
-  createdBy: uuid().references(() => users.id),
-  createdAt: createdAt(),
-}, (t) => [
-  // Serial numbers are unique whatever the letter case, also under concurrent registrations.
-  uniqueIndex('units_serial_lower_unique').on(sql`lower(${t.serial})`),
-]);
+export const units = pgTable(
+  'units',
+  {
+    id: id(),
+    serial: text().notNull().unique(),
+    modelRevisionId: uuid().notNull().references(() => armModelRevisions.id, { onDelete: 'restrict' }),
+    site: text().notNull().default(''),
+    cell: text().notNull().default(''),
+    commissionedOn: date(),
+    notes: text().notNull().default(''),
+    /** Set by a drift alert until someone acknowledges it. */
+    needsAttention: boolean().notNull().default(false),
+    createdBy: uuid().references(() => users.id),
+    createdAt: createdAt(),
+  },
+  (t) => [
+    // Serial numbers are unique whatever the letter case, also under concurrent registrations.
+    uniqueIndex('units_serial_lower_unique').on(sql`lower(${t.serial})`),
+  ],
+);
