@@ -363,16 +363,17 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   setParameters(model, data, v);
   const tmp = new Float64Array(3 * p);
   const lev = unc.covariance ? leverageFactor(A, p) : null;
+  const fk = forwardKinematics, jac = pointJacobian, studentise = standardisedResidual;
   const name = labelOrLine(poses);
   const poseReports: PoseResidual[] = poses.map((pose, i) => {
     const mb: [number, number, number] = [all.measured[3 * i] - before[3 * i], all.measured[3 * i + 1] - before[3 * i + 1], all.measured[3 * i + 2] - before[3 * i + 2]];
     const ma: [number, number, number] = [all.measured[3 * i] - after[3 * i], all.measured[3 * i + 1] - after[3 * i + 1], all.measured[3 * i + 2] - after[3 * i + 2]];
     let s: number | null = null;
     if (lev) {
-      forwardKinematics(model, data, all.q, i * n, true);
-      pointJacobian(model, data, active, J);
+      fk(model, data, all.q, i * n, true);
+      jac(model, data, active, J);
       // Robust weights scale a fit pose's information; the studentisation uses the unweighted residual.
-      s = standardisedResidual(ma, J, lev, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);
+      s = studentise(ma, J, lev, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);
     }
     return {
       label: pose.label, line: pose.line, role: roles[i], before: mb, after: ma,

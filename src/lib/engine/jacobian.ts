@@ -5,7 +5,12 @@
  * (measurement frame). Its column is u_j for a translation and u_j × (p − c_j) for a rotation
  * (units mm/mm and mm/rad). Checked against central finite differences in tests/engine/jacobian.test.ts.
  */
-import { MOTION_ROTATION, MOTION_TRANSLATION, forwardKinematics, setParameters, type ArmData, type ArmModel } from './kinematics';
+import { forwardKinematics, setParameters, type ArmData, type ArmModel } from './kinematics';
+
+// Local copies of kinematics' MOTION_TRANSLATION / MOTION_ROTATION: imported bindings can be getters
+// after transpilation (tsx), which costs a call per use inside the per-pose loops.
+const TRANSLATION = 1;
+const ROTATION = 2;
 
 /**
  * Columns `cols` of the 3 × P point Jacobian of the last forwardKinematics call, into `out` interleaved
@@ -18,13 +23,13 @@ export function pointJacobian(model: ArmModel, data: ArmData, cols: ArrayLike<nu
     const j = cols[k];
     const o = 3 * j;
     const kind = motion[j];
-    if (kind === MOTION_ROTATION) {
+    if (kind === ROTATION) {
       const ux = ax[o], uy = ax[o + 1], uz = ax[o + 2];
       const rx = px - pv[o], ry = py - pv[o + 1], rz = pz - pv[o + 2];
       out[3 * k] = uy * rz - uz * ry;
       out[3 * k + 1] = uz * rx - ux * rz;
       out[3 * k + 2] = ux * ry - uy * rx;
-    } else if (kind === MOTION_TRANSLATION) {
+    } else if (kind === TRANSLATION) {
       out[3 * k] = ax[o];
       out[3 * k + 1] = ax[o + 1];
       out[3 * k + 2] = ax[o + 2];
@@ -69,8 +74,9 @@ export function poseBuffers(model: ArmModel, poses: { q: ArrayLike<number>; x: n
 export function predictPoints(model: ArmModel, data: ArmData, v: ArrayLike<number>, poses: PoseBuffers, out: Float64Array, errors?: Float64Array): void {
   setParameters(model, data, v);
   const n = model.n, pt = data.point, m = poses.measured;
+  const fk = forwardKinematics;
   for (let i = 0; i < poses.count; i++) {
-    forwardKinematics(model, data, poses.q, i * n);
+    fk(model, data, poses.q, i * n);
     out[3 * i] = pt[0];
     out[3 * i + 1] = pt[1];
     out[3 * i + 2] = pt[2];
@@ -108,6 +114,7 @@ export function accumulateNormalEquations(
   const p = active.length, n = model.n, pt = data.point, m = poses.measured, w = poses.weights;
   const motion = model.motion, ax = data.axis, pv = data.pivot;
   const R = 3 * BLOCK, Jb = work.Jb, rb = work.rb;
+  const fk = forwardKinematics;
   A.fill(0);
   g.fill(0);
   let cost = 0;
@@ -115,7 +122,7 @@ export function accumulateNormalEquations(
   for (let i = 0; i < poses.count; i++) {
     const wi = w[i];
     if (wi === 0) continue;
-    forwardKinematics(model, data, poses.q, i * n, true);
+    fk(model, data, poses.q, i * n, true);
     const sw = wi === 1 ? 1 : Math.sqrt(wi);
     const px = pt[0], py = pt[1], pz = pt[2];
     const r0 = px - m[3 * i], r1 = py - m[3 * i + 1], r2 = pz - m[3 * i + 2];
@@ -126,13 +133,13 @@ export function accumulateNormalEquations(
       const o = 3 * j;
       const q = k * R + rows;
       const kind = motion[j];
-      if (kind === MOTION_ROTATION) {
+      if (kind === ROTATION) {
         const ux = ax[o], uy = ax[o + 1], uz = ax[o + 2];
         const dx = px - pv[o], dy = py - pv[o + 1], dz = pz - pv[o + 2];
         Jb[q] = sw * (uy * dz - uz * dy);
         Jb[q + 1] = sw * (uz * dx - ux * dz);
         Jb[q + 2] = sw * (ux * dy - uy * dx);
-      } else if (kind === MOTION_TRANSLATION) {
+      } else if (kind === TRANSLATION) {
         Jb[q] = sw * ax[o]; Jb[q + 1] = sw * ax[o + 1]; Jb[q + 2] = sw * ax[o + 2];
       } else {
         Jb[q] = 0; Jb[q + 1] = 0; Jb[q + 2] = 0;
