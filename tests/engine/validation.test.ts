@@ -136,3 +136,42 @@ describe('outliers, robust loss, exclusion and cross-validation in a fit', () =>
     expect(nominalCheck.stats.rms).toBeGreaterThan(0.5);
   });
 });
+
+describe('fit options', () => {
+  const poses = synthSession(truth, 80, 0.02, 84);
+
+  it('identifies only the chosen groups and says why the others are fixed', () => {
+    const rep = fitSession(nominal, poses, { groups: ['offsets', 'tool'] });
+    const ids = rep.parameters.filter((p) => p.status === 'identified');
+    expect(ids.every((p) => p.group === 'offsets' || p.group === 'tool')).toBe(true);
+    expect(ids.length).toBeGreaterThan(3);
+    const a2 = rep.parameters.find((p) => p.key === 'J2.a')!;
+    expect(a2.status).toBe('fixed');
+    expect(a2.reason).toBe('not in the chosen parameter groups');
+    expect(rep.parameters.find((p) => p.key === 'base.x')!.reason).toMatch(/registered base/);
+    // Fewer parameters explain less of the invented errors than the full set.
+    expect(rep.statistics.fit.after.rms).toBeGreaterThan(fitSession(nominal, poses).statistics.fit.after.rms);
+  });
+
+  it('reports progress, and an unconverged stop when the iteration limit is hit', () => {
+    const seen: number[] = [];
+    const rep = fitSession(nominal, poses, { maxIterations: 1, onIteration: (it) => seen.push(it.iteration) });
+    expect(seen).toEqual([0, 1]);
+    expect(rep.converged).toBe(false);
+    expect(rep.stopReason).toMatch(/iteration limit/);
+    expect(rep.options).not.toHaveProperty('onIteration');
+  });
+
+  it('refuses bad options with the field named', () => {
+    expect(() => fitSession(nominal, poses, { holdout: 0.95 })).toThrow(/field holdout: hold-out fraction 0.95 is out of range \(expected a number from 0 to 0.9\)/);
+    expect(() => fitSession(nominal, poses, { kFold: 1 })).toThrow(/field kFold/);
+    expect(() => fitSession(nominal, poses, { groups: ['lengths', 'wrong' as never] })).toThrow(/unknown parameter group "wrong"/);
+  });
+
+  it('a Cauchy loss converges on clean data to nearly the plain fit', () => {
+    const plain = fitSession(nominal, poses);
+    const cauchy = fitSession(nominal, poses, { robust: 'cauchy', robustScaleMm: 0.1 });
+    expect(cauchy.converged).toBe(true);
+    expect(Math.abs(cauchy.statistics.fit.after.rms - plain.statistics.fit.after.rms)).toBeLessThan(0.003);
+  });
+});
