@@ -1,4 +1,4 @@
-import { useState } from 'react';
+import { useEffect, useState } from 'react';
 import { api } from '../../lib/shared/api-client';
 import { fmt } from '../fleet/format';
 
@@ -18,6 +18,9 @@ function AlertItem({ alert, showSerial, onDone }: { alert: AlertView; showSerial
   const [comment, setComment] = useState('');
   const [error, setError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
+  // Disabled until hydrated, so a native form submit never happens before the handler exists.
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
   async function acknowledge(e: React.FormEvent) {
     e.preventDefault();
     setBusy(true);
@@ -43,9 +46,9 @@ function AlertItem({ alert, showSerial, onDone }: { alert: AlertView; showSerial
         <form onSubmit={acknowledge} className="flex flex-col gap-2" aria-label={`Acknowledge alert on ${alert.serial} v${alert.version}`}>
           <label className="field">
             <span>Comment (required: what was checked or done)</span>
-            <textarea className="input" name="comment" required value={comment} onChange={(e) => setComment(e.target.value)} />
+            <textarea className="input" name="comment" required disabled={!hydrated} value={comment} onChange={(e) => setComment(e.target.value)} />
           </label>
-          <button type="submit" className="btn self-start" disabled={busy}>Acknowledge</button>
+          <button type="submit" className="btn self-start" disabled={busy || !hydrated}>Acknowledge</button>
           {error && <p className="notice notice-error" role="alert">✕ {error}</p>}
         </form>
       ) : (

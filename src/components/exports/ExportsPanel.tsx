@@ -81,6 +81,9 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
   const [status, setStatus] = useState<{ kind: 'ok' | 'error'; text: string } | null>(null);
   const [busy, setBusy] = useState(false);
   const [logKey, setLogKey] = useState(0);
+  // Until the island hydrates a tick would be lost (the server-rendered box has no handler): stay disabled.
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
   const shown = useMemo(() => {
     const f = filter.trim().toLowerCase();
     return f ? units.filter((u) => `${u.serial} ${u.modelName} ${u.site}`.toLowerCase().includes(f)) : units;
@@ -124,7 +127,7 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
           <h2>Units with an approved parameter set</h2>
           <label className="field max-w-md">
             <span>Filter (serial number, arm model, site)</span>
-            <input className="input" name="filter" value={filter} onChange={(e) => setFilter(e.target.value)} />
+            <input className="input" name="filter" disabled={!hydrated} value={filter} onChange={(e) => setFilter(e.target.value)} />
           </label>
           <div className="overflow-x-auto">
             <table className="data-table">
@@ -133,7 +136,7 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
                 {shown.length === 0 && <tr><td colSpan={7} className="text-ink-soft">No unit matches.</td></tr>}
                 {shown.map((u) => (
                   <tr key={u.serial} data-export-unit={u.serial}>
-                    <td><input type="checkbox" className="h-6 w-6" aria-label={`Pick ${u.serial}`} checked={picked.includes(u.serial)} onChange={() => toggle(u.serial)} /></td>
+                    <td><input type="checkbox" className="h-6 w-6" aria-label={`Pick ${u.serial}`} checked={picked.includes(u.serial)} disabled={!hydrated} onChange={() => toggle(u.serial)} /></td>
                     <td className="font-semibold">{u.serial}{u.needsAttention && <span className="badge ml-2 text-attention">▲ drift alert open</span>}</td>
                     <td>{u.modelName}</td>
                     <td>{u.site}</td>
