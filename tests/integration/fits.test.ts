@@ -6,7 +6,9 @@ import { eq } from 'drizzle-orm';
 import PgBoss from 'pg-boss';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { auditLog, fits } from '../../src/db/schema';
+import { readFileSync } from 'node:fs';
 import { DEMO, signedIn, type Client } from '../support/http';
+import { startAppInstance } from '../support/services';
 import { createFixture, testDb, waitForFit, type Fixture } from './fit-fixtures';
 
 let engineer: Client;
@@ -161,3 +163,52 @@ describe('job queue', () => {
     expect(entries.filter((e) => e.action === 'fit.fitted')).toHaveLength(1);
   });
 });
+
+describe('a crashed run', () => {
+  it('is run again from scratch when its job is retried', async () => {
+    // A fit a worker had claimed (running, attempt 1) when it died; the retried job arrives.
+    const db = testDb();
+    const [row] = await db
+      .insert(fits)
+      .values({ sessionId: fx.sessionId, unitId: fx.unitId, state: 'running', attempts: 1, startedAt: new Date(Date.now() - 60_000), settings: { groups: ['lengths', 'base', 'tool'] }, progress: { iteration: 2, rmsMm: 0.5, cost: 1 } })
+      .returning();
+    const boss = new PgBoss({ connectionString: process.env.DATABASE_URL!, supervise: false, schedule: false, migrate: false, max: 1 });
+    await boss.start();
+    await boss.send('fit', { fitId: row!.id }, { singletonKey: row!.id });
+    await boss.stop({ graceful: false, wait: true, close: true });
+    const { fit } = await waitForFit(engineer, row!.id);
+    expect(fit.state).toBe('fitted');
+    expect(fit.attempts).toBe(2);
+    expect(new Date(fit.startedAt).getTime()).toBeGreaterThan(row!.startedAt!.getTime());
+    expect(fit.progress.iteration).toBe(fit.report.iterations.at(-1).iteration);
+    const entries = await db.select().from(auditLog).where(eq(auditLog.entityId, row!.id));
+    expect(entries.map((e) => e.action)).toEqual(['fit.fitted']);
+    expect(entries[0]!.details).toMatchObject({ attempt: 2 });
+  });
+});
+
+describe('worker process (npm run worker)', () => {
+  it('starts on the shared queue, runs fits on threads, and stops cleanly on SIGTERM', async () => {
+    const worker = await startAppInstance({ WORKER_CONCURRENCY: '2' }, { entry: 'node_modules/tsx/dist/cli.mjs', args: ['scripts/worker.ts'], waitForPort: false });
+    const deadline = Date.now() + 30_000;
+    let log = '';
+    while (!log.includes('fit worker ready') && Date.now() < deadline) {
+      await new Promise((r) => setTimeout(r, 250));
+      log = readFileSync(worker.logFile, 'utf8');
+    }
+    expect(log).toContain('"msg":"fit worker ready"');
+    expect(log).toContain('"engine":"thread"');
+    // Fits still finish with two workers on the queue (the app's and this one), each exactly once.
+    const ids = await Promise.all(
+      [1, 2, 3, 4].map(async () => (await engineer.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: { groups: ['lengths', 'base', 'tool'] } })).body.id as string),
+    );
+    for (const id of ids) {
+      const { fit } = await waitForFit(engineer, id);
+      expect(fit.state).toBe('fitted');
+      expect(fit.attempts).toBe(1);
+    }
+    const stopped = await worker.stop('SIGTERM');
+    expect(stopped).toMatchObject({ stopped: true, code: 0 });
+  });
+});
+

@@ -451,7 +451,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
                         <td>
                           <input
                             type="checkbox"
-                            className="h-5 w-5"
+                            className="h-5 w-5 accent-accent"
                             aria-label={`Exclude ${label}`}
                             checked={picked.includes(label)}
                             disabled={!canRefit}

@@ -52,7 +52,7 @@ export default function FitStarter({ sessionId, hasSplit, poseCount }: Props) {
         <div className="flex flex-wrap gap-x-5 gap-y-1">
           {GROUP_ORDER.map((g) => (
             <label key={g} className="flex min-h-10 items-center gap-2">
-              <input type="checkbox" className="h-5 w-5" checked={groups.includes(g)} onChange={() => toggle(g)} name="groups" value={g} />
+              <input type="checkbox" className="h-5 w-5 accent-accent" checked={groups.includes(g)} onChange={() => toggle(g)} name="groups" value={g} />
               {GROUP_LABEL[g]}
             </label>
           ))}
@@ -87,12 +87,12 @@ export default function FitStarter({ sessionId, hasSplit, poseCount }: Props) {
       <div className="flex flex-wrap gap-x-6 gap-y-1">
         {hasSplit && (
           <label className="flex min-h-10 items-center gap-2">
-            <input type="checkbox" className="h-5 w-5" checked={useSplitColumn} onChange={(e) => setUseSplitColumn(e.target.checked)} />
+            <input type="checkbox" className="h-5 w-5 accent-accent" checked={useSplitColumn} onChange={(e) => setUseSplitColumn(e.target.checked)} />
             Hold out the poses the file marks “validate”
           </label>
         )}
         <label className="flex min-h-10 items-center gap-2">
-          <input type="checkbox" className="h-5 w-5" checked={robust} onChange={(e) => setRobust(e.target.checked)} />
+          <input type="checkbox" className="h-5 w-5 accent-accent" checked={robust} onChange={(e) => setRobust(e.target.checked)} />
           Robust loss (down-weights large residuals)
         </label>
       </div>
