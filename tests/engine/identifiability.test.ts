@@ -46,10 +46,21 @@ describe('identifiability', () => {
     for (const p of rep.parameters.filter((q) => q.status === 'fixed')) expect(p.reason, p.key).toMatch(/\w{3,}/);
     for (const k of ['J1.d', 'J2.d', 'J3.d', 'J4.d']) expect(rep.parameters.find((p) => p.key === k)!.status, k).toBe('fixed');
     expect(fixed.length).toBeGreaterThanOrEqual(6);
+    const reason = (k: string) => rep.parameters.find((p) => p.key === k)!.reason;
+    expect(reason('J2.d')).toBe('redundant with base z: with parallel joint axes, J2.d shifts the rest of the arm along the common axis, as the base frame does');
+    expect(reason('tool.z')).toBe('redundant with base z: with all joint axes parallel, tool.z shifts every measured point along the common axis, as the base frame does');
     expect(rep.converged).toBe(true);
     // The fit still explains the data: RMS on held-out poses near the noise (σ√3 ≈ 0.035 mm for 3-D).
     expect(rep.statistics.holdout!.after.rms).toBeLessThan(0.06);
     expect(rep.statistics.holdout!.after.rms).toBeLessThan(rep.statistics.holdout!.before.rms / 5);
+  });
+
+  it('a tool point on the last axis: turning that joint does not move the point', () => {
+    const g = { ...sixAxisDh(), tool: { x: 0, y: 0, z: 135, rx: 0, ry: 0, rz: 0 } };
+    const rep = fitSession(g, synthSession(perturbed(g, 68), 60, 0.02, 69));
+    expect(rep.parameters.find((p) => p.key === 'J6.theta')!.reason).toBe(
+      'no effect: J6.theta does not move the measured point on these poses (the measured point lies on the axis of J6)',
+    );
   });
 
   it('a joint the poses never move leaves its offset undeterminable, with a reason', () => {

@@ -62,6 +62,10 @@ export function selectIdentifiable(
     dmax = Math.max(dmax, d[j]);
   }
   const order = candidates.map((_, j) => j).sort((a, b) => priority(candidates[a], n) - priority(candidates[b], n));
+  // A revolute joint whose zero-offset column vanishes turns the point about itself: the point is on its axis.
+  const pointOnAxis = candidates
+    .filter((c, j) => c.owner === 'joint' && c.name === 'theta' && geometry.joints[c.jointIndex!].type === 'revolute' && d[j] <= ZERO_COLUMN * dmax)
+    .map((c) => geometry.joints[c.jointIndex!].name);
   const kept: number[] = [];
   // Rows of the lower-triangular factor of S restricted to the kept set, in kept order.
   const L: number[][] = [];
@@ -70,7 +74,9 @@ export function selectIdentifiable(
   for (const j of order) {
     const info = candidates[j];
     if (d[j] <= ZERO_COLUMN * dmax) {
-      fixed.push({ candidate: j, fixed: { info, reason: `no effect: ${info.key} does not move the measured point on these poses`, relatedKeys: [] } });
+      const onAxis = info.name === 'theta' && pointOnAxis.includes(geometry.joints[info.jointIndex!].name)
+        ? ` (the measured point lies on the axis of ${geometry.joints[info.jointIndex!].name})` : '';
+      fixed.push({ candidate: j, fixed: { info, reason: `no effect: ${info.key} does not move the measured point on these poses${onAxis}`, relatedKeys: [] } });
       continue;
     }
     const k = kept.length;
@@ -96,7 +102,7 @@ export function selectIdentifiable(
         .filter((e) => e.w > 0.05 * cmax)
         .sort((x, z) => z.w - x.w)
         .map((e) => candidates[kept[e.a]]);
-      fixed.push({ candidate: j, fixed: { info, reason: explain(info, related, geometry, stillJoints), relatedKeys: related.map((r) => r.key) } });
+      fixed.push({ candidate: j, fixed: { info, reason: explain(info, related, geometry, stillJoints, pointOnAxis), relatedKeys: related.map((r) => r.key) } });
       continue;
     }
     const row = Array.from(y);
@@ -131,27 +137,37 @@ function list(infos: ParameterInfo[]): string {
  * A plain-words reason for a parameter fixed at nominal, from the relation detected. `stillJoints` names
  * joints whose readings barely change over the poses (their links then act as one rigid body).
  */
-export function explain(info: ParameterInfo, related: ParameterInfo[], g: ArmGeometry, stillJoints: string[] = []): string {
+export function explain(
+  info: ParameterInfo, related: ParameterInfo[], g: ArmGeometry, stillJoints: string[] = [], pointOnAxis: string[] = [],
+): string {
   const n = g.joints.length;
   const key = info.key;
   const allBase = related.length > 0 && related.every((r) => r.owner === 'base');
   const allTool = related.length > 0 && related.every((r) => r.owner === 'tool');
   const head = `redundant with ${list(related)}`;
+  const i = info.jointIndex ?? 0;
+  // Joint axes 1 … i+1 all parallel (so joint i+1's axis is parallel to the first joint's).
+  const parallelUpTo = (k: number) => Array.from({ length: k }, (_, m) => axesParallel(g, m)).every(Boolean);
+  const allParallel = parallelUpTo(n - 1);
   if (info.owner === 'joint' && allBase) {
-    if (info.jointIndex === 0 && info.name === 'd' && g.joints[0].type === 'revolute') return `${head}: ${key} moves the whole arm along the base axis`;
-    if (info.jointIndex === 0 && info.name === 'theta' && g.joints[0].type === 'revolute') return `${head}: ${key} turns the whole arm about the base axis`;
+    if (i === 0 && info.name === 'd' && g.joints[0].type === 'revolute') return `${head}: ${key} moves the whole arm along the base axis`;
+    if (i === 0 && info.name === 'theta' && g.joints[0].type === 'revolute') return `${head}: ${key} turns the whole arm about the base axis`;
+    if (info.name === 'd' && parallelUpTo(i)) return `${head}: with parallel joint axes, ${key} shifts the rest of the arm along the common axis, as the base frame does`;
     return `${head}: ${key} is a fixed offset of the whole arm, which the base frame already describes`;
   }
+  if (info.owner === 'tool' && allBase) {
+    if (allParallel) return `${head}: with all joint axes parallel, ${key} shifts every measured point along the common axis, as the base frame does`;
+    return `${head}: on these poses ${key} shifts every measured point the same way the base frame does`;
+  }
   if (info.owner === 'joint' && allTool) {
-    if (info.jointIndex === n - 1) return `${head}: ${key} comes after the last joint's motion, so it only shifts the tool point, which the tool point already describes`;
+    if (i === n - 1) return `${head}: ${key} comes after the last joint's motion, so it only shifts the tool point, which the tool point already describes`;
     return `${head}: ${key} only shifts the tool point in the flange frame, which the tool point already describes`;
   }
   if (info.owner === 'joint') {
-    const i = info.jointIndex ?? 0;
     const joint = g.joints[i];
     const parallel = axesParallel(g, i - 1) || axesParallel(g, i);
     if (joint.type === 'prismatic') {
-      return `${head}: ${key} belongs to the prismatic joint ${joint.name}, whose motion along its axis the data cannot separate from these parameters`;
+      return `${head}: the prismatic joint ${joint.name} only slides along its axis, so ${key} acts on the points as these parameters do`;
     }
     if (info.name === 'd' && parallel) {
       return `${head}: with consecutive parallel joint axes, ${key} and these parameters shift the rest of the arm along the same direction`;
@@ -160,10 +176,10 @@ export function explain(info: ParameterInfo, related: ParameterInfo[], g: ArmGeo
       return `${head}: with consecutive parallel joint axes, ${key} and these parameters turn the rest of the arm about the same direction`;
     }
   }
-  const still = stillJoints.length
-    ? `; ${stillJoints.join(', ')} ${stillJoints.length > 1 ? 'do' : 'does'} not move on these poses, which merges links`
-    : '';
-  return `${head}: on these poses ${key} changes the measured points only in the way a combination of them does, so the data cannot tell them apart${still}`;
+  const notes: string[] = [];
+  if (stillJoints.length) notes.push(`${stillJoints.join(', ')} ${stillJoints.length > 1 ? 'do' : 'does'} not move on these poses, which merges links`);
+  if (pointOnAxis.length) notes.push(`the measured point lies on the axis of ${pointOnAxis.join(', ')}, so turning ${pointOnAxis.length > 1 ? 'them' : 'it'} does not move the point`);
+  return `${head}: on these poses ${key} changes the measured points only in the way a combination of them does, so the data cannot tell them apart${notes.map((x) => `; ${x}`).join('')}`;
 }
 
 export interface Observability {
