@@ -328,6 +328,8 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
   const [busy, setBusy] = useState(false);
   const [error, setError] = useState<ApiError | null>(null);
   const [message, setMessage] = useState<string | null>(null);
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
 
   const waiting = fit.state === 'queued' || fit.state === 'running';
   useEffect(() => {
@@ -454,7 +456,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
                             className="h-5 w-5 accent-accent"
                             aria-label={`Exclude ${label}`}
                             checked={picked.includes(label)}
-                            disabled={!canRefit}
+                            disabled={!canRefit || !hydrated}
                             onChange={(e) => setPicked((cur) => (e.target.checked ? [...cur, label] : cur.filter((x) => x !== label)))}
                           />
                         </td>

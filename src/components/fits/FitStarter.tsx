@@ -1,4 +1,4 @@
-import { useState } from 'react';
+import { useEffect, useState } from 'react';
 import { api, type ApiError } from '../../lib/shared/api-client';
 import { GROUP_LABEL, GROUP_ORDER } from './format';
 
@@ -20,6 +20,9 @@ export default function FitStarter({ sessionId, hasSplit, poseCount }: Props) {
   const [exclude, setExclude] = useState('');
   const [busy, setBusy] = useState(false);
   const [error, setError] = useState<ApiError | null>(null);
+  // Until the island is hydrated a click would submit the form natively (a GET with the settings in the URL).
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
 
   const toggle = (g: string) => setGroups((cur) => (cur.includes(g) ? cur.filter((x) => x !== g) : GROUP_ORDER.filter((x) => x === g || cur.includes(x))));
 
@@ -112,7 +115,7 @@ export default function FitStarter({ sessionId, hasSplit, poseCount }: Props) {
         </div>
       )}
       <div>
-        <button type="submit" className="btn" disabled={busy || groups.length === 0}>
+        <button type="submit" className="btn" disabled={!hydrated || busy || groups.length === 0}>
           {busy ? 'Starting…' : `Run the fit on ${poseCount} poses`}
         </button>
       </div>

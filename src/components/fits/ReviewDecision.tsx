@@ -1,4 +1,4 @@
-import { useState } from 'react';
+import { useEffect, useState } from 'react';
 import { api, type ApiError } from '../../lib/shared/api-client';
 import SafetyNotice from '../SafetyNotice';
 
@@ -16,6 +16,9 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
   const [busy, setBusy] = useState(false);
   const [error, setError] = useState<ApiError | null>(null);
   const [done, setDone] = useState<string | null>(null);
+  // A tick before hydration would be lost; the box is usable once the island runs.
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
 
   async function decide(action: 'approve' | 'reject') {
     setBusy(true);
@@ -52,7 +55,7 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
         <>
           <SafetyNotice />
           <label className="flex min-h-10 items-center gap-2">
-            <input type="checkbox" className="h-5 w-5 accent-accent" checked={read} onChange={(e) => setRead(e.target.checked)} />I have read this
+            <input type="checkbox" className="h-5 w-5 accent-accent" checked={read} disabled={!hydrated} onChange={(e) => setRead(e.target.checked)} />I have read this
           </label>
         </>
       )}
