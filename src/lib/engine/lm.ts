@@ -14,7 +14,10 @@
  *     rejected ones multiply it by ν (ν doubling);
  *   - stop when the scaled gradient ‖D⁻¹g‖∞ / ‖r‖ ≤ gradientTolerance (MINPACK's gtol: cosine between the
  *     residual and every column), the relative cost reduction ≤ costTolerance, the scaled step
- *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance), no step lowers the cost, or maxIterations;
+ *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance), no step lowers the cost, or maxIterations; and, when
+ *     the residual degrees of freedom are given, once the Gauss–Newton step would move no parameter by
+ *     more than `significance` (default 1 %) of its standard error;
+ *   - without reweighting, a trial point's normal equations come from the same pass as its cost;
  *   - robust losses by iteratively reweighted least squares: the problem's `reweight(x)` recomputes the
  *     weights once per accepted iteration (Holland & Welsch 1977).
  */
