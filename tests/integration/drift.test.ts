@@ -30,8 +30,12 @@ describe('tolerance rules', () => {
     expect(toleranceFor({ group: 'offsets', unit: 'deg' }, DEFAULT_TOLERANCES)).toBe(0.02);
     // A prismatic joint's zero is a length (mm): the lengths tolerance applies.
     expect(toleranceFor({ group: 'offsets', unit: 'mm' }, DEFAULT_TOLERANCES)).toBe(0.2);
-    expect(toleranceFor({ group: 'base', unit: 'mm' }, DEFAULT_TOLERANCES)).toBe(1);
-    expect(toleranceFor({ group: 'base', unit: 'deg' }, DEFAULT_TOLERANCES)).toBe(0.02);
+    // The base frame is where the tracker stood: not checked unless a tolerance is set for it.
+    expect(toleranceFor({ group: 'base', unit: 'mm' }, DEFAULT_TOLERANCES)).toBeNull();
+    expect(toleranceFor({ group: 'base', unit: 'deg' }, DEFAULT_TOLERANCES)).toBeNull();
+    const fixedTracker = { ...DEFAULT_TOLERANCES, base: 1 };
+    expect(toleranceFor({ group: 'base', unit: 'mm' }, fixedTracker)).toBe(1);
+    expect(toleranceFor({ group: 'base', unit: 'deg' }, fixedTracker)).toBe(0.02);
   });
 });
 

@@ -8,7 +8,7 @@ export interface AlertView {
   modelName: string;
   version: number;
   createdAt: string;
-  details: { key: string; change: number; tolerance: number; unit: string }[];
+  details: { key: string; change: number; tolerance: number | null; unit: string }[];
   acknowledgedAt: string | null;
   acknowledgeComment: string | null;
   acknowledgedByName: string | null;
@@ -39,7 +39,7 @@ function AlertItem({ alert, showSerial, onDone }: { alert: AlertView; showSerial
       </p>
       <ul className="text-sm">
         {alert.details.map((d) => (
-          <li key={d.key}>{d.key}: changed by <span className="num">{fmt(d.change, d.unit, true)} {d.unit}</span> (tolerance ±{d.tolerance} {d.unit})</li>
+          <li key={d.key}>{d.key}: changed by <span className="num">{fmt(d.change, d.unit, true)} {d.unit}</span> ({d.tolerance === null ? 'not checked' : `tolerance ±${d.tolerance} ${d.unit}`})</li>
         ))}
       </ul>
       {open ? (

@@ -20,7 +20,7 @@ export interface DriftParameterView {
   group: string;
   unit: 'mm' | 'deg';
   nominal: number | null;
-  tolerance: number;
+  tolerance: number | null;
   points: DriftPointView[];
 }
 
@@ -84,7 +84,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
       {p && (
         <section className="card flex flex-col gap-3" aria-label={`History of ${p.key}`}>
           <h2>{p.key}{p.joint ? ` (${p.joint})` : ''} over time</h2>
-          <p className="text-sm text-ink-soft">Nominal {fmt(p.nominal, p.unit)} {p.unit} · tolerance for a change between versions ±{p.tolerance} {p.unit}</p>
+          <p className="text-sm text-ink-soft">Nominal {fmt(p.nominal, p.unit)} {p.unit} · {p.tolerance === null ? 'not checked for drift (base frame: where the tracker stood)' : `tolerance for a change between versions ±${p.tolerance} ${p.unit}`}</p>
           <History p={p} />
           <div className="flex gap-2">
             <button
@@ -128,7 +128,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
                     <td><button type="button" className="min-h-10 underline" onClick={() => setSelected(x.key)}>{x.key}</button></td>
                     <td className="num">{fmt(last?.value, x.unit)} {x.unit}</td>
                     <td className="num">{fmt(last?.change, x.unit, true)} {x.unit}</td>
-                    <td className="num">±{x.tolerance} {x.unit}</td>
+                    <td className="num">{x.tolerance === null ? 'not checked' : `±${x.tolerance} ${x.unit}`}</td>
                     <td>{last?.exceeded ? <span className="badge text-attention">▲ beyond tolerance</span> : last?.change === null ? '— first version' : <span className="text-ink-soft">● within</span>}</td>
                   </tr>
                 );

@@ -1,26 +1,27 @@
 import { useState } from 'react';
 import { api } from '../../lib/shared/api-client';
 
-type Tolerances = { lengths: number; twists: number; offsets: number; beta: number; base: number; tool: number };
+type Tolerances = { lengths: number; twists: number; offsets: number; beta: number; base: number | null; tool: number };
 
 const FIELDS: { key: keyof Tolerances; label: string; unit: string }[] = [
   { key: 'lengths', label: 'Lengths (a, d)', unit: 'mm' },
   { key: 'twists', label: 'Twists (alpha)', unit: 'deg' },
   { key: 'offsets', label: 'Zero offsets (theta)', unit: 'deg' },
   { key: 'beta', label: 'Beta', unit: 'deg' },
-  { key: 'base', label: 'Base frame position', unit: 'mm' },
+  { key: 'base', label: 'Base frame position (empty: not checked)', unit: 'mm' },
   { key: 'tool', label: 'Tool point', unit: 'mm' },
 ];
 
 /** Drift tolerances of an arm model; editable by engineers and admins (the PUT route enforces it too). */
 export default function TolerancesEditor({ modelId, initial, defaults, canEdit }: { modelId: string; initial: Tolerances; defaults: boolean; canEdit: boolean }) {
-  const [values, setValues] = useState<Record<keyof Tolerances, string>>(() => Object.fromEntries(FIELDS.map((f) => [f.key, String(initial[f.key])])) as Record<keyof Tolerances, string>);
+  const [values, setValues] = useState<Record<keyof Tolerances, string>>(() => Object.fromEntries(FIELDS.map((f) => [f.key, initial[f.key] === null ? '' : String(initial[f.key])])) as Record<keyof Tolerances, string>);
   const [isDefault, setIsDefault] = useState(defaults);
   const [message, setMessage] = useState<{ kind: 'ok' | 'error'; text: string; fields?: string[] } | null>(null);
 
   async function save(e: React.FormEvent) {
     e.preventDefault();
-    const body = Object.fromEntries(FIELDS.map((f) => [f.key, values[f.key].trim() === '' ? undefined : Number(values[f.key])]));
+    // An empty base field means: leave the base frame out of drift checks.
+    const body = Object.fromEntries(FIELDS.map((f) => [f.key, values[f.key].trim() === '' ? (f.key === 'base' ? null : undefined) : Number(values[f.key])]));
     const r = await api<{ tolerances: Tolerances; defaults: boolean }>(`/api/arm-models/${modelId}/tolerances`, { method: 'PUT', json: body });
     if (r.error) {
       setMessage({ kind: 'error', text: [r.error.error, ...r.error.errors.map((x) => `${x.field ?? ''}: ${x.message}`)].join(' '), fields: r.error.errors.map((x) => x.field ?? '') });
@@ -35,7 +36,7 @@ export default function TolerancesEditor({ modelId, initial, defaults, canEdit }
       <h2>Drift tolerances</h2>
       <p className="text-sm text-ink-soft">
         An approved set whose change from the unit's previous version exceeds one of these raises a drift alert. {isDefault ? 'These are the defaults.' : ''}
-        {' '}A prismatic joint's zero uses the lengths tolerance; base rotations use the twists tolerance.
+        {' '}A prismatic joint's zero uses the lengths tolerance; base rotations use the twists tolerance. Leave the base frame empty unless the tracker has a fixed mount in the cell: otherwise its position changes every visit.
       </p>
       <div className="grid gap-3 sm:grid-cols-3">
         {FIELDS.map((f) => (

@@ -4,13 +4,17 @@ import type { ArmGeometry } from '../../lib/engine/types';
 import { createdAt, id } from './columns';
 import { users } from './users';
 
-/** Drift tolerances per parameter group (mm for lengths/base/tool position, deg for angles). */
+/**
+ * Drift tolerances per parameter group (mm for lengths/base/tool position, deg for angles). `base: null`
+ * leaves the base frame out of drift checks: it is where the tracker stood, which differs every visit unless
+ * the tracker has a fixed mount in the cell.
+ */
 export interface GroupTolerances {
   lengths: number;
   twists: number;
   offsets: number;
   beta: number;
-  base: number;
+  base: number | null;
   tool: number;
 }
 

@@ -10,8 +10,8 @@ const bool = z
 
 const schema = z.object({
   OFFSETRY_MODE: z.enum(['demo', 'production']).default('demo'),
-  DATABASE_URL: z.string().url().startsWith('postgres', 'must be a postgres:// URL'),
-  S3_ENDPOINT: z.string().url().optional(),
+  DATABASE_URL: z.string().regex(/^postgres(ql)?:\/\/\S+$/, 'must be a postgres:// URL'),
+  S3_ENDPOINT: z.url().optional(),
   S3_REGION: z.string().min(1).default('us-east-1'),
   S3_BUCKET: z.string().min(3),
   S3_ACCESS_KEY_ID: z.string().min(1),
@@ -23,9 +23,9 @@ const schema = z.object({
   SMTP_USER: z.string().optional(),
   SMTP_PASS: z.string().optional(),
   MAIL_FROM: z.string().min(3).default('Offsetry <no-reply@offsetry.local>'),
-  MAIL_FAKE_API_URL: z.string().url().optional(),
+  MAIL_FAKE_API_URL: z.url().optional(),
   AUTH_SECRET: z.string().min(32, 'must be at least 32 characters (generate one with openssl rand -base64 33)'),
-  PUBLIC_BASE_URL: z.string().url().default('http://127.0.0.1:4321'),
+  PUBLIC_BASE_URL: z.url().default('http://127.0.0.1:4321'),
   DEMO_PASSWORD: z.string().min(8).default('offsetry-demo'),
   /** Largest session file accepted, bytes. */
   MAX_UPLOAD_BYTES: z.coerce.number().int().positive().default(50 * 1024 * 1024),

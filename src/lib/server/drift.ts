@@ -15,8 +15,12 @@ import { parameterValues, mergedOrder, type ParameterValue } from './parameter-v
 export type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
 type Conn = Db | Tx;
 
-/** Defaults until a metrology engineer sets the model's own (mm for lengths/base/tool, deg for angles). */
-export const DEFAULT_TOLERANCES: GroupTolerances = { lengths: 0.2, twists: 0.02, offsets: 0.02, beta: 0.02, base: 1, tool: 0.2 };
+/**
+ * Defaults until a metrology engineer sets the model's own (mm for lengths/base/tool, deg for angles). The base
+ * frame is not checked by default: each session registers the tracker where it stood that day, so the base
+ * changes by metres between visits without the arm changing at all.
+ */
+export const DEFAULT_TOLERANCES: GroupTolerances = { lengths: 0.2, twists: 0.02, offsets: 0.02, beta: 0.02, base: null, tool: 0.2 };
 
 const positive = (what: string, unit: string) =>
   z.number({ error: `${what} must be a number (${unit})` }).finite().positive(`${what} must be greater than 0 ${unit}`).max(1000, `${what} must be at most 1000 ${unit}`);
@@ -26,16 +30,18 @@ export const tolerancesSchema = z.strictObject({
   twists: positive('twists', 'deg'),
   offsets: positive('offsets', 'deg'),
   beta: positive('beta', 'deg'),
-  base: positive('base', 'mm'),
+  // null: the base frame is left out of drift checks (a tracker without a fixed mount in the cell).
+  base: positive('base', 'mm').nullable(),
   tool: positive('tool', 'mm'),
 });
 
 /**
  * The tolerance that applies to one parameter. Each group's tolerance is in the group's natural unit; a
  * parameter whose unit differs from it uses the lengths (mm) or twists (deg) tolerance instead: a prismatic
- * joint's zero (group offsets, in mm) and the base rotations (group base, in deg).
+ * joint's zero (group offsets, in mm) and the base rotations (group base, in deg). null: not checked.
  */
-export function toleranceFor(p: { group: ParameterGroup; unit: 'mm' | 'deg' }, t: GroupTolerances): number {
+export function toleranceFor(p: { group: ParameterGroup; unit: 'mm' | 'deg' }, t: GroupTolerances): number | null {
+  if (p.group === 'base' && t.base === null) return null;
   const natural: Record<ParameterGroup, 'mm' | 'deg'> = { lengths: 'mm', twists: 'deg', offsets: 'deg', beta: 'deg', base: 'mm', tool: 'mm' };
   if (natural[p.group] === p.unit) return t[p.group];
   return p.unit === 'mm' ? t.lengths : t.twists;
@@ -49,7 +55,8 @@ export interface ParameterChange {
   previous: number;
   value: number;
   change: number;
-  tolerance: number;
+  /** null: this parameter is not checked for drift (base frame without a tolerance). */
+  tolerance: number | null;
   exceeded: boolean;
 }
 
@@ -62,7 +69,7 @@ export function compareGeometries(before: ArmGeometry, after: ArmGeometry, t: Gr
     if (!q) continue;
     const change = p.value - q.value;
     const tolerance = toleranceFor(p, t);
-    out.push({ key: p.key, joint: p.joint, group: p.group, unit: p.unit, previous: q.value, value: p.value, change, tolerance, exceeded: Math.abs(change) > tolerance });
+    out.push({ key: p.key, joint: p.joint, group: p.group, unit: p.unit, previous: q.value, value: p.value, change, tolerance, exceeded: tolerance !== null && Math.abs(change) > tolerance });
   }
   return out;
 }
@@ -119,9 +126,9 @@ export async function checkDriftOnApproval(tx: Conn, options: DriftCheckOptions)
   if (!previous) return null;
   const model = await unitModel(options.unitId, tx);
   if (!model) throw new Error(`unit ${options.unitId} not found`);
-  const beyond = compareGeometries(previous.geometry, current.geometry, model.tolerances).filter((c) => c.exceeded);
+  const beyond = compareGeometries(previous.geometry, current.geometry, model.tolerances).filter((c) => c.exceeded); // exceeded ⇒ the parameter has a tolerance
   if (!beyond.length) return null;
-  const details = beyond.map((c) => ({ key: c.key, change: c.change, tolerance: c.tolerance, unit: c.unit }));
+  const details = beyond.map((c) => ({ key: c.key, change: c.change, tolerance: c.tolerance!, unit: c.unit }));
   const [alert] = await tx.insert(driftAlerts).values({ unitId: options.unitId, parameterSetId: current.id, previousSetId: previous.id, details }).returning();
   await tx.update(units).set({ needsAttention: true }).where(eq(units.id, options.unitId));
   await audit(tx, {
@@ -232,7 +239,8 @@ export interface DriftParameter {
   group: ParameterGroup;
   unit: 'mm' | 'deg';
   nominal: number | null;
-  tolerance: number;
+  /** null: not checked for drift. */
+  tolerance: number | null;
   points: DriftPoint[];
 }
 
@@ -279,7 +287,7 @@ export async function unitDrift(serial: string, options: { includeFits?: boolean
       const change = prev === undefined ? null : v.value - prev;
       points.push({
         kind: 'set', id: s.id, version: s.version, state: s.state, at: iso(s.approvedAt), value: v.value,
-        standardError: s.standardErrors[p.key] ?? null, change, exceeded: change !== null && Math.abs(change) > tolerance,
+        standardError: s.standardErrors[p.key] ?? null, change, exceeded: change !== null && tolerance !== null && Math.abs(change) > tolerance,
       });
       prev = v.value;
     });
