@@ -63,7 +63,7 @@ const SITES = [
   ['Quillan Packaging', 'Palletiser 2'],
 ] as const;
 
-interface DemoUnit {
+export interface DemoUnit {
   serial: string;
   model: ArmGeometry;
   site: readonly [string, string];
@@ -73,7 +73,7 @@ interface DemoUnit {
   drift: number;
 }
 
-const UNITS: DemoUnit[] = [
+export const UNITS: DemoUnit[] = [
   ...['LCS-R6-0101', 'LCS-R6-0102', 'LCS-R6-0103', 'LCS-R6-0104', 'LCS-R6-0105', 'LCS-R6-0106', 'LCS-R6-0107', 'LCS-R6-0108'].map((serial, k) => ({
     serial,
     model: R6,

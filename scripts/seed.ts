@@ -28,8 +28,10 @@ console.log(`seed: ${DEMO_USERS.length} demo users ready`);
 if (!process.argv.includes('--users-only')) {
   const scenario = new URL('./demo-scenario.ts', import.meta.url);
   if (existsSync(scenario)) {
-    const mod = (await import(scenario.href)) as { seedScenario: (db: ReturnType<typeof createDb>) => Promise<string> };
+    const mod = (await import(scenario.href)) as { seedScenario: (db: ReturnType<typeof createDb>) => Promise<string>; UNITS: { serial: string }[] };
     console.log('seed: ' + (await mod.seedScenario(db)));
+    const history = (await import(new URL('./demo-history.ts', import.meta.url).href)) as typeof import('./demo-history');
+    console.log('seed: ' + (await history.seedHistory(db, mod.UNITS.map((u) => u.serial))));
   }
 }
 await db.$client.end();
