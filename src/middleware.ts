@@ -1,3 +1,4 @@
+import type { APIContext } from 'astro';
 import { defineMiddleware, sequence } from 'astro:middleware';
 import { getSession } from 'auth-astro/server';
 import { randomUUID } from 'node:crypto';
@@ -115,6 +116,26 @@ const resolveUser = defineMiddleware(async (context, next) => {
   return next();
 });
 
+/**
+ * The last step before an API endpoint. PostgreSQL cannot store a NUL character in text, so a query
+ * parameter holding one is refused here rather than failing inside a query. A path the table matched but
+ * Astro's router did not (e.g. an encoded "/" in a parameter) gets Astro's HTML 404 page; an API client
+ * gets JSON instead.
+ */
+async function apiNext(context: APIContext, next: () => Promise<Response>) {
+  for (const [name, value] of context.url.searchParams) {
+    if (name.includes('\0') || value.includes('\0')) {
+      const field = name.replaceAll('\0', '\\0').slice(0, 60);
+      return json({ error: 'Invalid query.', errors: [{ field, message: `${field} contains a NUL character` }] }, 400);
+    }
+  }
+  const response = await next();
+  if (response.status === 404 && !(response.headers.get('content-type') ?? '').includes('json')) {
+    return json({ error: `Nothing found at ${context.url.pathname}.` }, 404);
+  }
+  return response;
+}
+
 /** Enforce the access table for every API route and page. */
 const guard = defineMiddleware(async (context, next) => {
   const path = context.url.pathname;
@@ -127,12 +148,12 @@ const guard = defineMiddleware(async (context, next) => {
     if (!access) {
       return json({ error: `Method ${context.request.method} is not allowed on ${path}.` }, 405, { allow: Object.keys(rule.methods).join(', ') });
     }
-    if (access === 'public') return next();
+    if (access === 'public') return apiNext(context, next);
     if (!user) return json({ error: 'Sign in or send an API token (Authorization: Bearer …).' }, 401);
     if (!allows(access, user.roles)) {
       return json({ error: `Your roles (${user.roles.join(', ')}) do not allow ${context.request.method} ${path}.`, allowedRoles: access }, 403);
     }
-    return next();
+    return apiNext(context, next);
   }
   const access = pageAccess(path);
   if (access === 'public') return next();

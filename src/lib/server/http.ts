@@ -30,14 +30,55 @@ export function zodProblems(err: z.ZodError, prefix = ''): FieldProblem[] {
 export async function readJson(request: Request, maxBytes = 1024 * 1024): Promise<{ ok: true; value: unknown } | { ok: false; response: Response }> {
   const length = Number(request.headers.get('content-length') ?? 0);
   if (length > maxBytes) return { ok: false, response: problems(413, `Request body over ${maxBytes} bytes.`) };
-  const text = await request.text();
-  if (text.length > maxBytes) return { ok: false, response: problems(413, `Request body over ${maxBytes} bytes.`) };
+  // Read chunk by chunk and stop at the cap: a chunked body (no content-length) is never buffered whole.
+  const chunks: Uint8Array[] = [];
+  let total = 0;
+  const reader = request.body?.getReader();
+  while (reader) {
+    const { done, value } = await reader.read();
+    if (done) break;
+    total += value.byteLength;
+    if (total > maxBytes) {
+      await reader.cancel().catch(() => undefined);
+      return { ok: false, response: problems(413, `Request body over ${maxBytes} bytes.`) };
+    }
+    chunks.push(value);
+  }
+  const text = Buffer.concat(chunks).toString('utf8');
   if (!text.trim()) return { ok: true, value: {} };
+  let value: unknown;
   try {
-    return { ok: true, value: JSON.parse(text) };
+    value = JSON.parse(text);
   } catch (e) {
     return { ok: false, response: problems(400, 'The request body is not valid JSON.', [{ message: (e as Error).message }]) };
   }
+  // PostgreSQL cannot store a NUL character in text; name the field instead of failing in a query.
+  const nul = nulPath(value, '');
+  if (nul !== undefined) {
+    return { ok: false, response: problems(400, 'The request body holds a NUL character.', [{ field: nul || undefined, message: `${nul || 'the body'} contains a NUL character (\\u0000)` }]) };
+  }
+  return { ok: true, value };
+}
+
+/** Dotted path of the first string (value or key) holding U+0000, or undefined when there is none. */
+function nulPath(value: unknown, path: string): string | undefined {
+  if (typeof value === 'string') return value.includes('\0') ? path : undefined;
+  if (Array.isArray(value)) {
+    for (let i = 0; i < value.length; i++) {
+      const found = nulPath(value[i], path ? `${path}.${i}` : String(i));
+      if (found !== undefined) return found;
+    }
+    return undefined;
+  }
+  if (value && typeof value === 'object') {
+    for (const [k, v] of Object.entries(value)) {
+      const here = path ? `${path}.${k}` : k;
+      if (k.includes('\0')) return here.replaceAll('\0', '\\0');
+      const found = nulPath(v, here);
+      if (found !== undefined) return found;
+    }
+  }
+  return undefined;
 }
 
 /** Errors that mean "PostgreSQL (or another backing service) is away right now", answered with 503. */

@@ -6,7 +6,8 @@ import { isUuid, json, problems, readJson, zodProblems } from '../../../../lib/s
 export const GET: APIRoute = async ({ params, url }) => {
   if (!isUuid(params.id)) return problems(404, 'No such session.');
   const page = Number(url.searchParams.get('page') ?? 1);
-  if (!Number.isInteger(page) || page < 1) return problems(400, 'Invalid query.', [{ field: 'page', message: 'page must be a whole number ≥ 1' }]);
+  // The upper bound keeps the OFFSET inside PostgreSQL's bigint (a 40-digit page would fail in the query).
+  if (!Number.isInteger(page) || page < 1 || page > 100_000) return problems(400, 'Invalid query.', [{ field: 'page', message: 'page must be a whole number from 1 to 100000' }]);
   return json(await listFits({ session: params.id, page }));
 };
 
