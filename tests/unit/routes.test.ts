@@ -21,6 +21,10 @@ describe('access table matching', () => {
     expect(pageAccess('/signinx')).toBe('signed-in');
     expect(pageAccess('/invite/abc')).toBe('public');
     expect(pageAccess('/')).toBe('signed-in');
+    expect(pageAccess('/units/ABC-1')).toHaveLength(5);
+    expect(pageAccess('/units/ABC-1/compare')).not.toContain('service');
+    expect(pageAccess('/units/ABC-1/drift')).toEqual(['quality', 'engineer', 'admin']);
+    expect(pageAccess('/unitsx')).toBe('signed-in');
   });
 
   it('allows by any held role', () => {

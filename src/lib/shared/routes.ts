@@ -78,6 +78,9 @@ export const PAGE_RULES: readonly { prefix: string; roles: Access }[] = [
   { prefix: '/exports', roles: ['service', 'quality', 'admin'] },
   { prefix: '/arm-models', roles: ENGINEERING },
   { prefix: '/units', roles: ALL },
+  // Unit sub-pages show what their API routes show, to the same roles.
+  { prefix: '/units/[serial]/compare', roles: ENGINEERING },
+  { prefix: '/units/[serial]/drift', roles: FLEET_VIEWERS },
   { prefix: '/account', roles: 'signed-in' },
 ];
 
@@ -92,11 +95,16 @@ export function matchApiRoute(pathname: string): RouteRule | undefined {
   return compiled.find((c) => c.regex.test(pathname))?.rule;
 }
 
+const pageRules = PAGE_RULES.map((r) => {
+  const body = r.prefix.replace(/\/$/, '').split('/').map((seg) => (/^\[[^\]]+\]$/.test(seg) ? '[^/]+' : seg.replace(/[.*+?^${}()|\\]/g, '\\$&'))).join('/');
+  // A prefix covers itself and everything below it (a trailing slash: only what is below).
+  return { ...r, regex: new RegExp('^' + body + (r.prefix.endsWith('/') ? '/' : '(/|$)')), depth: r.prefix.split('/').length };
+});
+
 export function pageAccess(pathname: string): Access {
-  let best: { prefix: string; roles: Access } | undefined;
-  for (const rule of PAGE_RULES) {
-    const hit = pathname === rule.prefix || pathname.startsWith(rule.prefix.endsWith('/') ? rule.prefix : rule.prefix + '/') || (rule.prefix.endsWith('/') && pathname.startsWith(rule.prefix));
-    if (hit && (!best || rule.prefix.length > best.prefix.length)) best = rule;
+  let best: (typeof pageRules)[number] | undefined;
+  for (const rule of pageRules) {
+    if (rule.regex.test(pathname) && (!best || rule.depth > best.depth || (rule.depth === best.depth && rule.prefix.length > best.prefix.length))) best = rule;
   }
   return best?.roles ?? 'signed-in';
 }
