@@ -6,7 +6,7 @@
  * new session id; then the session row, every pose and the audit entry go in one transaction. If the
  * transaction fails the object is deleted again; if S3 fails no row is written.
  */
-import { PutObjectCommand } from '@aws-sdk/client-s3';
+import { CopyObjectCommand, PutObjectCommand } from '@aws-sdk/client-s3';
 import { and, asc, count, desc, eq, sql } from 'drizzle-orm';
 import { createHash, randomUUID } from 'node:crypto';
 import { createReadStream, createWriteStream, type WriteStream } from 'node:fs';
@@ -105,7 +105,7 @@ export const sessionMetaSchema = z.strictObject({
 export type SessionMeta = z.output<typeof sessionMetaSchema>;
 
 /** Expected form of each field, for the problem list. */
-const FIELD_EXPECTED: Record<string, string> = {
+export const FIELD_EXPECTED: Record<string, string> = {
   unit: 'the serial number of a registered unit',
   measuredOn: 'a date YYYY-MM-DD, not in the future',
   ambientC: 'a temperature in °C from −20 to 60, decimal point',
@@ -241,14 +241,14 @@ async function* capped(body: AsyncIterable<Uint8Array>, limit: number): AsyncGen
   }
 }
 
-interface UnitTarget {
+export interface UnitTarget {
   id: string;
   serial: string;
   modelRevisionId: string;
   geometry: ArmGeometry;
 }
 
-async function unitForUpload(serial: string, database: Db): Promise<UnitTarget | undefined> {
+export async function unitForUpload(serial: string, database: Db): Promise<UnitTarget | undefined> {
   const [row] = await database
     .select({ id: units.id, serial: units.serial, modelRevisionId: units.modelRevisionId, geometry: armModelRevisions.geometry })
     .from(units)
@@ -259,6 +259,16 @@ async function unitForUpload(serial: string, database: Db): Promise<UnitTarget |
 
 const problemsOf = (ps: InputProblem[]): UploadProblem[] =>
   ps.map((p) => ({ file: p.file, line: p.line, column: p.column, message: p.message, expected: p.expected }));
+
+const parseOptions = (geometry: ArmGeometry, name: string, maxBytes: number) => ({
+  fileName: name,
+  geometry,
+  // Outside-limit readings are reported by us (with the override hint), so the parser keeps those rows.
+  allowOutsideLimits: true,
+  maxProblems: MAX_LISTED_PROBLEMS,
+  // One byte more than ours, so our counter (which also stops the spool) fires first.
+  maxBytes: maxBytes + 1,
+});
 
 // ---- the upload --------------------------------------------------------------------------------------
 
@@ -304,15 +314,6 @@ export async function createSession(request: Request, user: Uploader, database: 
     unitLooked = serial;
     if (SERIAL_PATTERN.test(serial) && serial.length <= 64) unitTarget = await unitForUpload(serial, database);
   };
-  const parseOptions = (geometry: ArmGeometry, name: string) => ({
-    fileName: name,
-    geometry,
-    // Outside-limit readings are reported by us (with the override hint), so the parser keeps those rows.
-    allowOutsideLimits: true,
-    maxProblems: MAX_LISTED_PROBLEMS,
-    // One byte more than ours, so our counter (which also stops the spool) fires first.
-    maxBytes: maxBytes + 1,
-  });
 
   try {
     try {
@@ -338,7 +339,7 @@ export async function createSession(request: Request, user: Uploader, database: 
           await lookUpUnit();
           if (unitTarget && !fileNameProblem(fileName)) {
             // The unit came first (as our form sends it): parse while the bytes arrive.
-            parse = parseSessionCsv(source(), parseOptions(unitTarget.geometry, fileName));
+            parse = parseSessionCsv(source(), parseOptions(unitTarget.geometry, fileName, maxBytes));
             // The parser reads to the end unless the file is refused; then the reader skips the rest.
             await parse.catch(() => undefined);
           } else {
@@ -382,89 +383,129 @@ export async function createSession(request: Request, user: Uploader, database: 
       ]);
     }
     await spool.finish();
-
-    // ---- metadata ----
-    const meta = sessionMetaSchema.safeParse(Object.fromEntries([...fields].filter(([k]) => k !== 'file')));
-    if (!meta.success) {
-      for (const issue of meta.error.issues) {
-        const field = issue.path.map(String).join('.') || undefined;
-        formProblems.push({ field, message: issue.message, expected: field ? FIELD_EXPECTED[field] : undefined });
-      }
-    }
-    if (!fileSeen) formProblems.push({ field: 'file', message: 'no session file was sent', expected: 'the session CSV in the "file" field' });
-    else {
-      const bad = fileNameProblem(fileName!);
-      if (bad) formProblems.push({ field: 'file', message: bad, expected: 'a plain file name such as session-2024-05-01.csv' });
-    }
-    if (meta.success) {
-      await lookUpUnit();
-      if (!unitTarget) formProblems.push({ field: 'unit', message: `no unit with serial number "${meta.data.unit}" is registered`, expected: FIELD_EXPECTED.unit });
-    }
-    if (formProblems.length || !meta.success || !unitTarget) {
-      return refuse(400, `The upload was refused: ${formProblems.length} problem${formProblems.length === 1 ? '' : 's'} with the form; nothing was stored.`, formProblems);
-    }
-
-    // ---- the file ----
-    parse ??= parseSessionCsv(spool.read(), parseOptions(unitTarget.geometry, fileName!));
-    let parsed: Awaited<typeof parse>;
-    try {
-      parsed = await parse;
-    } catch (e) {
-      if (e instanceof TooLarge) return refuse(413, `The session file is larger than the limit of ${formatBytes(maxBytes)}; nothing was stored.`);
-      throw e;
-    }
-    if (!parsed.ok) {
-      const n = parsed.problems.length;
-      return refuse(
-        400,
-        `${fileName}: the session file was refused with ${n}${parsed.truncated ? '+' : ''} problem${n === 1 ? '' : 's'}${parsed.truncated ? ` (only the first ${n} are listed; fix these and upload again to see the rest)` : ''}; nothing was stored.`,
-        problemsOf(parsed.problems),
-        { truncated: parsed.truncated },
-      );
-    }
-    const sha256 = hash.digest('hex');
-
-    // ---- the same file again? ----
-    const [dup] = await database
-      .select({ id: sessions.id, measuredOn: sessions.measuredOn })
-      .from(sessions)
-      .where(and(eq(sessions.unitId, unitTarget.id), eq(sessions.fileSha256, sha256)));
-    if (dup) {
-      return refuse(409, `This file was already uploaded for unit ${unitTarget.serial} (the session measured on ${dup.measuredOn}); nothing new was stored.`, [], {
-        existing: { id: dup.id, url: sessionUrl(dup.id) },
-      });
-    }
-
-    // ---- joint limits ----
-    if (parsed.outsideLimits.length && !meta.data.allowOutsideLimits) {
-      const listed = parsed.outsideLimits.slice(0, MAX_LISTED_PROBLEMS);
-      return refuse(
-        400,
-        `${fileName}: ${parsed.outsideLimits.length} joint reading${parsed.outsideLimits.length === 1 ? ' is' : 's are'} outside the model's limits. Check the readings; if they are right, upload again with the outside-limits override (allowOutsideLimits=true). Nothing was stored.`,
-        problemsOf(listed),
-        { outsideLimits: true, truncated: parsed.outsideLimits.length > listed.length },
-      );
-    }
-
-    const stored = await storeSession(
-      {
-        unit: unitTarget,
-        meta: { ...meta.data, technician: meta.data.technician || user.name },
-        fileName: fileName!,
-        body: () => spool.body(),
-        bytes: spool.size,
-        sha256,
-        parsed,
-        outsideLimitsOverride: meta.data.allowOutsideLimits && parsed.outsideLimits.length > 0,
-        actorId: user.id,
-      },
+    return await checkAndStore(
+      { fields, formProblems, fileName, unitTarget, parse, reread: () => spool.read(), sha256: () => hash.digest('hex'), bytes: spool.size, body: () => spool.body() },
+      user,
       database,
     );
-    if (!stored.ok) return stored;
-    return { ok: true, status: 201, body: stored.body };
   } finally {
     await spool.dispose();
   }
+}
+
+/** What an upload brought, however it arrived: a multipart body, or an object put through a presigned URL. */
+export interface ReceivedUpload {
+  /** The metadata fields as sent (text). */
+  fields: Map<string, string>;
+  /** Problems with the form found while reading it. */
+  formProblems: UploadProblem[];
+  /** The file's name; undefined when no file was sent. */
+  fileName: string | undefined;
+  /** The unit looked up while the body arrived (its field came before the file). */
+  unitTarget?: UnitTarget;
+  /** The parse started while the bytes arrived, if any. */
+  parse?: ReturnType<typeof parseSessionCsv>;
+  /** The bytes again, for a parse that had to wait for the metadata. */
+  reread: () => AsyncIterable<Buffer>;
+  sha256: () => string;
+  bytes: number;
+  /** The bytes for the object store (StoreSessionInput.body). */
+  body: () => Buffer | Readable;
+  /** Store by a server-side copy of this object instead of writing `body` (StoreSessionInput.copyFrom). */
+  copyFrom?: StoreSessionInput['copyFrom'];
+}
+
+/**
+ * The checks every upload goes through once its bytes are in (metadata, file name, unit, CSV, duplicate,
+ * joint limits), then storeSession. Shared by the multipart upload and the presigned upload.
+ */
+export async function checkAndStore(received: ReceivedUpload, user: Uploader, database: Db = sharedDb()): Promise<CreateSessionResult> {
+  const maxBytes = config().MAX_UPLOAD_BYTES;
+  const { fields, formProblems, fileName } = received;
+  const fileSeen = fileName !== undefined;
+
+  // ---- metadata ----
+  const meta = sessionMetaSchema.safeParse(Object.fromEntries([...fields].filter(([k]) => k !== 'file')));
+  if (!meta.success) {
+    for (const issue of meta.error.issues) {
+      const field = issue.path.map(String).join('.') || undefined;
+      formProblems.push({ field, message: issue.message, expected: field ? FIELD_EXPECTED[field] : undefined });
+    }
+  }
+  if (!fileSeen) formProblems.push({ field: 'file', message: 'no session file was sent', expected: 'the session CSV in the "file" field' });
+  else {
+    const bad = fileNameProblem(fileName!);
+    if (bad) formProblems.push({ field: 'file', message: bad, expected: 'a plain file name such as session-2024-05-01.csv' });
+  }
+  let unitTarget: UnitTarget | undefined;
+  if (meta.success) {
+    // The unit found while the body arrived, or looked up now (its field came after the file).
+    unitTarget = received.unitTarget?.serial === meta.data.unit ? received.unitTarget : await unitForUpload(meta.data.unit, database);
+    if (!unitTarget) formProblems.push({ field: 'unit', message: `no unit with serial number "${meta.data.unit}" is registered`, expected: FIELD_EXPECTED.unit });
+  }
+  if (formProblems.length || !meta.success || !unitTarget) {
+    return refuse(400, `The upload was refused: ${formProblems.length} problem${formProblems.length === 1 ? '' : 's'} with the form; nothing was stored.`, formProblems);
+  }
+
+  // ---- the file ----
+  const parse = received.parse ?? parseSessionCsv(received.reread(), parseOptions(unitTarget.geometry, fileName!, maxBytes));
+  let parsed: Awaited<typeof parse>;
+  try {
+    parsed = await parse;
+  } catch (e) {
+    if (e instanceof TooLarge) return refuse(413, `The session file is larger than the limit of ${formatBytes(maxBytes)}; nothing was stored.`);
+    throw e;
+  }
+  if (!parsed.ok) {
+    const n = parsed.problems.length;
+    return refuse(
+      400,
+      `${fileName}: the session file was refused with ${n}${parsed.truncated ? '+' : ''} problem${n === 1 ? '' : 's'}${parsed.truncated ? ` (only the first ${n} are listed; fix these and upload again to see the rest)` : ''}; nothing was stored.`,
+      problemsOf(parsed.problems),
+      { truncated: parsed.truncated },
+    );
+  }
+  const sha256 = received.sha256();
+
+  // ---- the same file again? ----
+  const [dup] = await database
+    .select({ id: sessions.id, measuredOn: sessions.measuredOn })
+    .from(sessions)
+    .where(and(eq(sessions.unitId, unitTarget.id), eq(sessions.fileSha256, sha256)));
+  if (dup) {
+    return refuse(409, `This file was already uploaded for unit ${unitTarget.serial} (the session measured on ${dup.measuredOn}); nothing new was stored.`, [], {
+      existing: { id: dup.id, url: sessionUrl(dup.id) },
+    });
+  }
+
+  // ---- joint limits ----
+  if (parsed.outsideLimits.length && !meta.data.allowOutsideLimits) {
+    const listed = parsed.outsideLimits.slice(0, MAX_LISTED_PROBLEMS);
+    return refuse(
+      400,
+      `${fileName}: ${parsed.outsideLimits.length} joint reading${parsed.outsideLimits.length === 1 ? ' is' : 's are'} outside the model's limits. Check the readings; if they are right, upload again with the outside-limits override (allowOutsideLimits=true). Nothing was stored.`,
+      problemsOf(listed),
+      { outsideLimits: true, truncated: parsed.outsideLimits.length > listed.length },
+    );
+  }
+
+  const stored = await storeSession(
+    {
+      unit: unitTarget,
+      meta: { ...meta.data, technician: meta.data.technician || user.name },
+      fileName: fileName!,
+      body: received.body,
+      copyFrom: received.copyFrom,
+      bytes: received.bytes,
+      sha256,
+      parsed,
+      outsideLimitsOverride: meta.data.allowOutsideLimits && parsed.outsideLimits.length > 0,
+      actorId: user.id,
+    },
+    database,
+  );
+  if (!stored.ok) return stored;
+  return { ok: true, status: 201, body: stored.body };
 }
 
 export interface StoreSessionInput {
@@ -473,6 +514,11 @@ export interface StoreSessionInput {
   fileName: string;
   /** The raw bytes (called once, when the object is written). */
   body: () => Buffer | Readable;
+  /**
+   * An object already in the bucket holding exactly these bytes (a presigned upload's staging object): it
+   * is copied inside the store instead of sending `body`. `etag` pins the copy to the version that was checked.
+   */
+  copyFrom?: { key: string; etag?: string };
   bytes: number;
   sha256: string;
   parsed: ParsedSession;
@@ -494,16 +540,30 @@ export async function storeSession(input: StoreSessionInput, database: Db = shar
   ].slice(0, 500);
 
   try {
-    await s3().send(
-      new PutObjectCommand({
-        Bucket: bucket(),
-        Key: key,
-        Body: input.body(),
-        ContentLength: input.bytes,
-        ContentType: 'text/csv',
-        Metadata: { sha256: input.sha256, 'session-id': id },
-      }),
-    );
+    if (input.copyFrom) {
+      await s3().send(
+        new CopyObjectCommand({
+          Bucket: bucket(),
+          Key: key,
+          CopySource: `${bucket()}/${input.copyFrom.key.split('/').map(encodeURIComponent).join('/')}`,
+          CopySourceIfMatch: input.copyFrom.etag,
+          MetadataDirective: 'REPLACE',
+          ContentType: 'text/csv',
+          Metadata: { sha256: input.sha256, 'session-id': id },
+        }),
+      );
+    } else {
+      await s3().send(
+        new PutObjectCommand({
+          Bucket: bucket(),
+          Key: key,
+          Body: input.body(),
+          ContentLength: input.bytes,
+          ContentType: 'text/csv',
+          Metadata: { sha256: input.sha256, 'session-id': id },
+        }),
+      );
+    }
   } catch (e) {
     log('warn', 'session upload: S3 put failed', { key, error: String(e) });
     return {
@@ -579,7 +639,7 @@ export async function storeSession(input: StoreSessionInput, database: Db = shar
   return { ok: true, body: { id, url: sessionUrl(id), poseCount: input.parsed.poses.length, warnings } };
 }
 
-function formatBytes(b: number): string {
+export function formatBytes(b: number): string {
   if (b >= 1024 * 1024) return `${+(b / (1024 * 1024)).toFixed(1)} MiB`;
   if (b >= 1024) return `${+(b / 1024).toFixed(1)} KiB`;
   return `${b} bytes`;
