@@ -243,9 +243,15 @@ export class ArmLeastSquares implements LeastSquaresProblem {
 }
 
 function subset(pb: PoseBuffers, n: number, idx: number[]): PoseBuffers {
-  const out: PoseBuffers = { count: idx.length, q: new Float64Array(idx.length * n), measured: new Float64Array(idx.length * 3), weights: new Float64Array(idx.length) };
+  const m = idx.length;
+  const out: PoseBuffers = {
+    count: m, q: new Float64Array(m * n), cq: new Float64Array(m * n), sq: new Float64Array(m * n),
+    measured: new Float64Array(m * 3), weights: new Float64Array(m),
+  };
   idx.forEach((i, k) => {
     out.q.set(pb.q.subarray(i * n, i * n + n), k * n);
+    out.cq.set(pb.cq.subarray(i * n, i * n + n), k * n);
+    out.sq.set(pb.sq.subarray(i * n, i * n + n), k * n);
     out.measured.set(pb.measured.subarray(3 * i, 3 * i + 3), 3 * k);
     out.weights[k] = pb.weights[i];
   });
@@ -370,7 +376,7 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
     const ma: [number, number, number] = [all.measured[3 * i] - after[3 * i], all.measured[3 * i + 1] - after[3 * i + 1], all.measured[3 * i + 2] - after[3 * i + 2]];
     let s: number | null = null;
     if (lev) {
-      fk(model, data, all.q, i * n, true);
+      fk(model, data, all.q, i * n, true, undefined, all.cq, all.sq);
       jac(model, data, active, J);
       // Robust weights scale a fit pose's information; the studentisation uses the unweighted residual.
       s = studentise(ma, J, lev, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);

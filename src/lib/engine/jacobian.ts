@@ -5,7 +5,7 @@
  * (measurement frame). Its column is u_j for a translation and u_j × (p − c_j) for a rotation
  * (units mm/mm and mm/rad). Checked against central finite differences in tests/engine/jacobian.test.ts.
  */
-import { forwardKinematics, setParameters, type ArmData, type ArmModel } from './kinematics';
+import { forwardKinematics, jointTrig, setParameters, type ArmData, type ArmModel } from './kinematics';
 
 // Local copies of kinematics' MOTION_TRANSLATION / MOTION_ROTATION: imported bindings can be getters
 // after transpilation (tsx), which costs a call per use inside the per-pose loops.
@@ -48,6 +48,9 @@ export function pointJacobian(model: ArmModel, data: ArmData, cols: ArrayLike<nu
 export interface PoseBuffers {
   count: number;
   q: Float64Array;
+  /** cos and sin of q (computed once; forward kinematics then needs no trigonometry per pose). */
+  cq: Float64Array;
+  sq: Float64Array;
   measured: Float64Array;
   weights: Float64Array;
 }
@@ -64,7 +67,7 @@ export function poseBuffers(model: ArmModel, poses: { q: ArrayLike<number>; x: n
     measured[3 * i + 2] = p.z;
     weights[i] = p.weight ?? 1;
   });
-  return { count, q, measured, weights };
+  return { count, q, ...jointTrig(q), measured, weights };
 }
 
 /**
@@ -76,7 +79,7 @@ export function predictPoints(model: ArmModel, data: ArmData, v: ArrayLike<numbe
   const n = model.n, pt = data.point, m = poses.measured;
   const fk = forwardKinematics;
   for (let i = 0; i < poses.count; i++) {
-    fk(model, data, poses.q, i * n);
+    fk(model, data, poses.q, i * n, false, undefined, poses.cq, poses.sq);
     out[3 * i] = pt[0];
     out[3 * i + 1] = pt[1];
     out[3 * i + 2] = pt[2];
@@ -122,7 +125,7 @@ export function accumulateNormalEquations(
   for (let i = 0; i < poses.count; i++) {
     const wi = w[i];
     if (wi === 0) continue;
-    fk(model, data, poses.q, i * n, true);
+    fk(model, data, poses.q, i * n, true, undefined, poses.cq, poses.sq);
     const sw = wi === 1 ? 1 : Math.sqrt(wi);
     const px = pt[0], py = pt[1], pz = pt[2];
     const r0 = px - m[3 * i], r1 = py - m[3 * i + 1], r2 = pz - m[3 * i + 2];

@@ -47,6 +47,9 @@ export interface ArmData {
   readonly sa: Float64Array;
   readonly cb: Float64Array;
   readonly sb: Float64Array;
+  /** cos/sin of theta_i for the current vector (used with per-pose cos/sin of q by angle addition). */
+  readonly ct: Float64Array;
+  readonly st: Float64Array;
   /** Base rotation (row-major 3×3) and origin in the measurement frame. */
   readonly baseR: Float64Array;
   /** Measured point of the last forwardKinematics call, measurement frame (mm). */
@@ -86,6 +89,8 @@ export function createArmData(model: ArmModel): ArmData {
     sa: new Float64Array(n),
     cb: new Float64Array(n),
     sb: new Float64Array(n),
+    ct: new Float64Array(n),
+    st: new Float64Array(n),
     baseR: new Float64Array(9),
     point: new Float64Array(3),
     axis: new Float64Array(3 * model.size),
@@ -105,6 +110,8 @@ export function setParameters(model: ArmModel, data: ArmData, v: ArrayLike<numbe
     data.sa[i] = Math.sin(dv[5 * i + 1]);
     data.cb[i] = Math.cos(dv[5 * i + 4]);
     data.sb[i] = Math.sin(dv[5 * i + 4]);
+    data.ct[i] = Math.cos(dv[5 * i + 3]);
+    data.st[i] = Math.sin(dv[5 * i + 3]);
   }
   const b = 5 * n;
   const cx = Math.cos(dv[b + 3]), sx = Math.sin(dv[b + 3]);
@@ -134,6 +141,8 @@ export function setParameters(model: ArmModel, data: ArmData, v: ArrayLike<numbe
  * Forward kinematics of one pose. q in internal units (rad for revolute, mm for prismatic), length n.
  * Fills data.point; with `derivatives` also every parameter's axis and pivot; with `frames` (length
  * 16·(n + 2)) the 4×4 row-major frames base, joint 1 … joint n, tool in the measurement frame.
+ * With `cq`, `sq` (cos and sin of every q at the same offsets, see jointTrig) the joint angle's cos/sin
+ * come from the angle-addition formulas instead of two transcendental calls per joint and pose.
  */
 export function forwardKinematics(
   model: ArmModel,
@@ -142,6 +151,8 @@ export function forwardKinematics(
   qOffset = 0,
   derivatives = false,
   frames?: Float64Array,
+  cq?: Float64Array,
+  sq?: Float64Array,
 ): void {
   const n = model.n;
   const v = data.v, ca = data.ca, sa = data.sa, cb = data.cb, sb = data.sb, pr = model.prismatic;
@@ -161,7 +172,19 @@ export function forwardKinematics(
     const phi = pr[i] ? v[p + 3] : v[p + 3] + qi;
     const dd = pr[i] ? v[p + 2] + qi : v[p + 2];
     const a = v[p];
-    const c = Math.cos(phi), s = Math.sin(phi);
+    let c: number, s: number;
+    if (pr[i]) {
+      c = data.ct[i];
+      s = data.st[i];
+    } else if (cq && sq) {
+      // cos(θ + q), sin(θ + q) by angle addition.
+      const cqi = cq[qOffset + i], sqi = sq[qOffset + i], cti = data.ct[i], sti = data.st[i];
+      c = cti * cqi - sti * sqi;
+      s = sti * cqi + cti * sqi;
+    } else {
+      c = Math.cos(phi);
+      s = Math.sin(phi);
+    }
     const cA = ca[i], sA = sa[i], cB = cb[i], sB = sb[i];
     if (dh) {
       if (derivatives) {
@@ -261,6 +284,16 @@ function writeFrame(
   f[o + 4] = xy; f[o + 5] = yy; f[o + 6] = zy; f[o + 7] = oy;
   f[o + 8] = xz; f[o + 9] = yz; f[o + 10] = zz; f[o + 11] = oz;
   f[o + 12] = 0; f[o + 13] = 0; f[o + 14] = 0; f[o + 15] = 1;
+}
+
+/** cos and sin of every joint value (internal units; prismatic entries unused) for forwardKinematics. */
+export function jointTrig(q: Float64Array): { cq: Float64Array; sq: Float64Array } {
+  const cq = new Float64Array(q.length), sq = new Float64Array(q.length);
+  for (let k = 0; k < q.length; k++) {
+    cq[k] = Math.cos(q[k]);
+    sq[k] = Math.sin(q[k]);
+  }
+  return { cq, sq };
 }
 
 /** Joint readings at the boundary (deg for revolute, mm for prismatic) → internal (rad, mm), into `out`. */
