@@ -93,14 +93,19 @@ const BLOCK = 32;
 /** Work buffers of accumulateNormalEquations for p parameters; allocate once, reuse. */
 export interface NormalWork {
   p: number;
+  /** p rounded up to a multiple of 3 (the 3×3 tiles); padding columns stay zero. */
+  pp: number;
   /** Block Jacobian, column-major by parameter: Jb[a·R + r], R = 3·BLOCK rows (√w-scaled). */
   Jb: Float64Array;
   /** Block residuals (√w-scaled). */
   rb: Float64Array;
+  /** Padded normal matrix pp×pp (upper tiles). */
+  Ap: Float64Array;
 }
 
 export function normalWork(p: number): NormalWork {
-  return { p, Jb: new Float64Array(p * 3 * BLOCK), rb: new Float64Array(3 * BLOCK) };
+  const pp = 3 * Math.ceil(p / 3);
+  return { p, pp, Jb: new Float64Array(pp * 3 * BLOCK), rb: new Float64Array(3 * BLOCK), Ap: new Float64Array(pp * pp) };
 }
 
 /**
@@ -118,7 +123,8 @@ export function accumulateNormalEquations(
   const motion = model.motion, ax = data.axis, pv = data.pivot;
   const R = 3 * BLOCK, Jb = work.Jb, rb = work.rb;
   const fk = forwardKinematics;
-  A.fill(0);
+  const pp = work.pp, Ap = work.Ap;
+  Ap.fill(0);
   g.fill(0);
   let cost = 0;
   let rows = 0;
@@ -150,42 +156,47 @@ export function accumulateNormalEquations(
     }
     rows += 3;
     if (rows === R) {
-      flushBlock(Jb, rb, rows, p, R, A, g);
+      flushBlock(Jb, rb, rows, p, pp, R, Ap, g);
       rows = 0;
     }
   }
-  if (rows > 0) flushBlock(Jb, rb, rows, p, R, A, g);
+  if (rows > 0) flushBlock(Jb, rb, rows, p, pp, R, Ap, g);
+  A.fill(0);
+  for (let a = 0; a < p; a++) for (let b = a; b < p; b++) A[a * p + b] = Ap[a * pp + b];
   return 0.5 * cost;
 }
 
 /**
- * A += JbᵀJb (upper triangle) and g += Jbᵀrb over the first `rows` rows of a block, in 2×2 register
- * tiles over (a, a+1) × (b, b+1): four products per four loads.
+ * Ap += JbᵀJb (upper tiles of the padded pp×pp matrix) and g += Jbᵀrb over the first `rows` rows of a
+ * block, in 3×3 register tiles: nine products per six loads. Padding columns of Jb are zero.
  */
-function flushBlock(Jb: Float64Array, rb: Float64Array, rows: number, p: number, R: number, A: Float64Array, g: Float64Array): void {
+function flushBlock(Jb: Float64Array, rb: Float64Array, rows: number, p: number, pp: number, R: number, Ap: Float64Array, g: Float64Array): void {
   for (let a = 0; a < p; a++) {
     const oa = a * R;
     let sg = 0;
     for (let r = 0; r < rows; r++) sg += Jb[oa + r] * rb[r];
     g[a] += sg;
   }
-  for (let a = 0; a < p; a += 2) {
-    const a2 = a + 1 < p;
-    const oa = a * R, oa1 = a2 ? oa + R : oa;
-    for (let b = a; b < p; b += 2) {
-      const b2 = b + 1 < p;
-      const ob = b * R, ob1 = b2 ? ob + R : ob;
-      let s00 = 0, s01 = 0, s10 = 0, s11 = 0;
+  for (let a = 0; a < pp; a += 3) {
+    const o0 = a * R, o1 = o0 + R, o2 = o1 + R;
+    for (let b = a; b < pp; b += 3) {
+      const q0 = b * R, q1 = q0 + R, q2 = q1 + R;
+      let s00 = 0, s01 = 0, s02 = 0, s10 = 0, s11 = 0, s12 = 0, s20 = 0, s21 = 0, s22 = 0;
       for (let r = 0; r < rows; r++) {
-        const x0 = Jb[oa + r], x1 = Jb[oa1 + r], y0 = Jb[ob + r], y1 = Jb[ob1 + r];
-        s00 += x0 * y0; s01 += x0 * y1; s10 += x1 * y0; s11 += x1 * y1;
+        const x0 = Jb[o0 + r], x1 = Jb[o1 + r], x2 = Jb[o2 + r];
+        const y0 = Jb[q0 + r], y1 = Jb[q1 + r], y2 = Jb[q2 + r];
+        s00 += x0 * y0; s01 += x0 * y1; s02 += x0 * y2;
+        s10 += x1 * y0; s11 += x1 * y1; s12 += x1 * y2;
+        s20 += x2 * y0; s21 += x2 * y1; s22 += x2 * y2;
       }
-      A[a * p + b] += s00;
-      if (b2) A[a * p + b + 1] += s01;
-      if (a2) { if (b > a) A[(a + 1) * p + b] += s10; if (b2) A[(a + 1) * p + b + 1] += s11; }
+      const r0 = a * pp + b, r1 = r0 + pp, r2 = r1 + pp;
+      Ap[r0] += s00; Ap[r0 + 1] += s01; Ap[r0 + 2] += s02;
+      Ap[r1] += s10; Ap[r1 + 1] += s11; Ap[r1 + 2] += s12;
+      Ap[r2] += s20; Ap[r2 + 1] += s21; Ap[r2 + 2] += s22;
     }
   }
 }
+
 /** Mirror the upper triangle of a p×p row-major matrix into the lower one. */
 export function symmetrize(A: Float64Array, p: number): void {
   for (let a = 0; a < p; a++) for (let b = a + 1; b < p; b++) A[b * p + a] = A[a * p + b];
