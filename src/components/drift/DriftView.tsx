@@ -107,7 +107,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
                   <td className="num">{fmt(x.value, p.unit)}</td>
                   <td className="num">{fmt(x.standardError, p.unit)}</td>
                   <td className="num">{fmt(x.change, p.unit, true)}</td>
-                  <td>{x.exceeded ? <span className="badge text-attention">▲ beyond tolerance</span> : x.change === null ? '—' : <span className="text-ink-soft">● within</span>}</td>
+                  <td>{x.exceeded ? <span className="badge text-attention">▲ beyond tolerance</span> : x.change === null ? '—' : p.tolerance === null ? <span className="text-ink-soft">◌ not checked</span> : <span className="text-ink-soft">● within</span>}</td>
                 </tr>
               ))}
             </tbody>
@@ -129,7 +129,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
                     <td className="num">{fmt(last?.value, x.unit)} {x.unit}</td>
                     <td className="num">{fmt(last?.change, x.unit, true)} {x.unit}</td>
                     <td className="num">{x.tolerance === null ? 'not checked' : `±${x.tolerance} ${x.unit}`}</td>
-                    <td>{last?.exceeded ? <span className="badge text-attention">▲ beyond tolerance</span> : last?.change === null ? '— first version' : <span className="text-ink-soft">● within</span>}</td>
+                    <td>{last?.exceeded ? <span className="badge text-attention">▲ beyond tolerance</span> : last?.change === null ? '— first version' : x.tolerance === null ? <span className="text-ink-soft">◌ not checked</span> : <span className="text-ink-soft">● within</span>}</td>
                   </tr>
                 );
               })}
