@@ -24,7 +24,7 @@ export const fits = pgTable(
     engineVersion: text(),
     /** SHA-256 of the session file and of the nominal geometry, so a fit can be reproduced. */
     inputChecksums: jsonb().$type<{ sessionFile: string; nominalGeometry: string }>(),
-    progress: jsonb().$type<{ iteration: number; rmsMm: number; cost: number } | null>(),
+    progress: jsonb().$type<{ iteration: number; rmsMm: number; cost: number; worker?: string } | null>(),
     report: jsonb().$type<Record<string, unknown>>(),
     calibrated: jsonb().$type<ArmGeometry>(),
     error: text(),

@@ -10,6 +10,7 @@
  * at once with the problems in plain words: retrying would not change the answer.
  */
 import { and, eq, inArray, lt, sql } from 'drizzle-orm';
+import { hostname } from 'node:os';
 import PgBoss from 'pg-boss';
 import { z } from 'zod';
 import { armModelRevisions, fits, sessionPoses, sessions } from '../../db/schema';
@@ -25,6 +26,8 @@ import { log } from './log';
 import { sha256 } from './tokens';
 
 export const FIT_QUEUE = 'fit';
+/** Which process ran a fit (fit.fitted audit details, job log lines): WORKER_NAME, else host and pid. */
+export const WORKER_ID = process.env.WORKER_NAME || `${hostname()}:${process.pid}`;
 export const FIT_RETRY_LIMIT = 3;
 
 /**
@@ -157,12 +160,12 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
   const nominal = session.geometry as ArmGeometry;
 
   // Progress: the latest iteration, written at most every 200 ms, one write at a time.
-  let latest: { iteration: number; rmsMm: number; cost: number } | undefined;
+  let latest: { iteration: number; rmsMm: number; cost: number; worker: string } | undefined;
   let lastWrite = 0;
   let writing: Promise<unknown> = Promise.resolve();
   let busy = false;
   const onIteration = (it: { iteration: number; rmsMm: number; cost: number }) => {
-    latest = { iteration: it.iteration, rmsMm: it.rmsMm, cost: it.cost };
+    latest = { iteration: it.iteration, rmsMm: it.rmsMm, cost: it.cost, worker: WORKER_ID };
     const now = Date.now();
     if (busy || now - lastWrite < 200) return;
     busy = true;
@@ -201,7 +204,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
         calibrated: safe.calibrated,
         engineVersion: report.engineVersion,
         inputChecksums: { sessionFile: session.fileSha256, nominalGeometry: sha256(serializeGeometry(nominal)) },
-        progress: { iteration: last?.iteration ?? 0, rmsMm: report.statistics.fit.after.rms, cost: last?.cost ?? 0 },
+        progress: { iteration: last?.iteration ?? 0, rmsMm: report.statistics.fit.after.rms, cost: last?.cost ?? 0, worker: WORKER_ID },
         durationMs,
         finishedAt: sql`now()`,
         error: null,
@@ -221,6 +224,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
         engineVersion: report.engineVersion,
         durationMs,
         attempt: claimed.attempts,
+        worker: WORKER_ID,
       },
     });
     return true;
@@ -234,7 +238,7 @@ async function handle(job: PgBoss.JobWithMetadata<FitJob>): Promise<{ outcome: R
   const database = sharedDb();
   try {
     const outcome = await runFit(fitId, database);
-    log('info', 'fit job', { fitId, outcome, attempt: job.retryCount + 1, engine: engineMode() });
+    log('info', 'fit job', { fitId, outcome, attempt: job.retryCount + 1, engine: engineMode(), worker: WORKER_ID });
     return { outcome };
   } catch (err) {
     const message = String((err as Error)?.message ?? err);
