@@ -28,10 +28,31 @@ interface Props {
 
 type State =
   | { kind: 'idle' }
-  | { kind: 'uploading'; sent: number; total: number }
+  | { kind: 'hashing' }
+  | { kind: 'uploading'; sent: number; total: number; direct: boolean }
   | { kind: 'checking' }
   | { kind: 'refused'; status: number; body: Refusal }
   | { kind: 'done'; url: string };
+
+/**
+ * Files above this size go straight to the file store by a presigned URL (POST /api/sessions/uploads), so
+ * the app never holds their bytes; smaller ones, and any file when the server or the browser cannot do
+ * that, go through the app as multipart.
+ */
+const PRESIGNED_ABOVE_BYTES = 5 * 1024 * 1024;
+
+const hex = (buf: ArrayBuffer) => Array.from(new Uint8Array(buf), (b) => b.toString(16).padStart(2, '0')).join('');
+
+async function postJson(path: string, body: unknown): Promise<{ status: number; body: any }> {
+  const res = await fetch(path, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify(body) });
+  let parsed: any = { error: res.statusText };
+  try {
+    parsed = await res.json();
+  } catch {
+    // keep the status text
+  }
+  return { status: res.status, body: parsed };
+}
 
 const formatBytes = (b: number) => (b >= 1048576 ? `${(b / 1048576).toFixed(1)} MiB` : b >= 1024 ? `${(b / 1024).toFixed(1)} KiB` : `${b} bytes`);
 
@@ -54,21 +75,83 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
     },
   });
 
-  function submit(e?: React.FormEvent) {
+  function finish(status: number, parsed: Refusal & { url?: string }) {
+    if (status === 201 && parsed.url) {
+      setState({ kind: 'done', url: parsed.url });
+      location.href = parsed.url;
+    } else setState({ kind: 'refused', status, body: parsed });
+  }
+
+  /** PUT the file to a presigned URL with progress; resolves with the status (0: not reachable, e.g. CORS). */
+  function putFile(url: string, headers: Record<string, string>, f: File): Promise<number> {
+    return new Promise((resolve) => {
+      const xhr = new XMLHttpRequest();
+      xhr.open('PUT', url);
+      for (const [k, v] of Object.entries(headers)) xhr.setRequestHeader(k, v);
+      xhr.upload.onprogress = (ev) => setState({ kind: 'uploading', sent: ev.loaded, total: ev.lengthComputable ? ev.total : f.size, direct: true });
+      xhr.onerror = () => resolve(0);
+      xhr.onload = () => resolve(xhr.status);
+      setState({ kind: 'uploading', sent: 0, total: f.size, direct: true });
+      xhr.send(f);
+    });
+  }
+
+  /**
+   * The presigned path: hash, ask for an upload URL, PUT, complete. Returns false when the server or the
+   * store cannot take it that way (the caller then sends the file through the app).
+   */
+  async function presignedUpload(f: File, meta: Record<string, string>): Promise<boolean> {
+    setState({ kind: 'hashing' });
+    let sha256: string;
+    try {
+      sha256 = hex(await crypto.subtle.digest('SHA-256', await f.arrayBuffer()));
+    } catch {
+      return false;
+    }
+    let started;
+    try {
+      started = await postJson('/api/sessions/uploads', { ...meta, fileName: f.name, bytes: f.size, sha256 });
+    } catch {
+      return false;
+    }
+    // 501: presigned uploads are off on this server; 404/405: an older server without the route.
+    if ([404, 405, 501].includes(started.status)) return false;
+    if (started.status !== 201) {
+      finish(started.status, started.body);
+      return true;
+    }
+    const put = await putFile(started.body.url, started.body.headers ?? {}, f);
+    if (put < 200 || put >= 300) return false;
+    setState({ kind: 'checking' });
+    const { unit: _unit, ...rest } = meta;
+    try {
+      const done = await postJson('/api/sessions/uploads', { ...rest, uploadId: started.body.uploadId, complete: true });
+      finish(done.status, done.body);
+    } catch {
+      setState({ kind: 'refused', status: 0, body: { error: 'The server could not be reached. Check the connection and upload again.' } });
+    }
+    return true;
+  }
+
+  async function submit(e?: React.FormEvent) {
     e?.preventDefault();
     const form = formRef.current;
     if (!form || !file) return;
     const fields = new FormData(form);
+    const meta: Record<string, string> = {};
+    for (const name of ['unit', 'measuredOn', 'technician', 'instrument', 'ambientC', 'target', 'notes']) meta[name] = String(fields.get(name) ?? '');
+    meta.allowOutsideLimits = override ? 'true' : 'false';
+    if (file.size > PRESIGNED_ABOVE_BYTES && globalThis.crypto?.subtle && (await presignedUpload(file, meta))) return;
+
     const body = new FormData();
     // The unit goes first so the server can check the CSV against the unit's model while it arrives.
-    for (const name of ['unit', 'measuredOn', 'technician', 'instrument', 'ambientC', 'target', 'notes']) body.append(name, String(fields.get(name) ?? ''));
-    body.append('allowOutsideLimits', override ? 'true' : 'false');
+    for (const [name, value] of Object.entries(meta)) body.append(name, value);
     body.append('file', file, file.name);
 
     const xhr = new XMLHttpRequest();
     xhr.open('POST', '/api/sessions');
     xhr.responseType = 'text';
-    xhr.upload.onprogress = (ev) => setState({ kind: 'uploading', sent: ev.loaded, total: ev.lengthComputable ? ev.total : file.size });
+    xhr.upload.onprogress = (ev) => setState({ kind: 'uploading', sent: ev.loaded, total: ev.lengthComputable ? ev.total : file.size, direct: false });
     xhr.upload.onload = () => setState({ kind: 'checking' });
     xhr.onerror = () => setState({ kind: 'refused', status: 0, body: { error: 'The server could not be reached. Check the connection and upload again.' } });
     xhr.onload = () => {
@@ -78,16 +161,13 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
       } catch {
         // keep the status text
       }
-      if (xhr.status === 201 && parsed.url) {
-        setState({ kind: 'done', url: parsed.url });
-        location.href = parsed.url;
-      } else setState({ kind: 'refused', status: xhr.status, body: parsed });
+      finish(xhr.status, parsed);
     };
-    setState({ kind: 'uploading', sent: 0, total: file.size });
+    setState({ kind: 'uploading', sent: 0, total: file.size, direct: false });
     xhr.send(body);
   }
 
-  const busy = state.kind === 'uploading' || state.kind === 'checking' || state.kind === 'done';
+  const busy = state.kind === 'hashing' || state.kind === 'uploading' || state.kind === 'checking' || state.kind === 'done';
   const refusal = state.kind === 'refused' ? state.body : undefined;
 
   return (
@@ -175,11 +255,16 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
         {!file && <span className="text-ink-soft">Choose a file first.</span>}
       </div>
 
+      {state.kind === 'hashing' && (
+        <p role="status" className="notice">
+          ◌ Computing the file's checksum before the upload…
+        </p>
+      )}
       {state.kind === 'uploading' && (
-        <div role="status" aria-live="polite" className="flex flex-col gap-1">
+        <div role="status" aria-live="polite" className="flex flex-col gap-1" data-upload-path={state.direct ? 'presigned' : 'app'}>
           <progress className="h-3 w-full" max={state.total || 1} value={state.sent} />
           <span className="text-ink-soft">
-            Uploading: {formatBytes(state.sent)} of {formatBytes(state.total)} ({state.total ? Math.round((100 * state.sent) / state.total) : 0} %)
+            Uploading{state.direct ? ' straight to the file store' : ''}: {formatBytes(state.sent)} of {formatBytes(state.total)} ({state.total ? Math.round((100 * state.sent) / state.total) : 0} %)
           </span>
         </div>
       )}
