@@ -12,7 +12,7 @@ import { armModelRevisions, armModels, sessionPoses, sessions, units } from '../
 import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb } from '../../src/lib/server/db';
 import { DEMO, signedIn, uniq, type Client } from '../support/http';
-import { serviceEnv } from '../support/services';
+import { serviceEnv, startAppInstance } from '../support/services';
 
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
@@ -235,5 +235,21 @@ describe('starting an upload', () => {
     expect(done.status).toBe(400);
     expect(done.body.errors[0].field).toBe('sha256');
     await expectNothingStored(unit);
+  });
+});
+
+describe('turned off', () => {
+  it('answers 501 with presigned: false, so the form sends the file through the app instead', async () => {
+    const app = await startAppInstance({ S3_PRESIGNED_UPLOADS: 'false' });
+    try {
+      const client = await signedIn(DEMO.technician, undefined, app.url);
+      const unit = await newUnit();
+      const res = await start(client, { unit: unit.serial, fileName: 'visit.csv', bytes: goodFile.byteLength, sha256: sha(goodFile) });
+      expect(res.status).toBe(501);
+      expect(res.body).toMatchObject({ presigned: false, error: expect.stringMatching(/POST \/api\/sessions/) });
+      await expectNothingStored(unit);
+    } finally {
+      await app.stop();
+    }
   });
 });
