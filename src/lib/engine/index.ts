@@ -12,6 +12,7 @@ export * from './identifiability';
 export * from './uncertainty';
 export * from './stats';
 export * from './validation';
+export { jointRanges, workspaceDifference, type WorkspaceDifference } from './workspace';
 export * from './fit';
 export * from './planner';
 export * from './geometry';

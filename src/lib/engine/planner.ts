@@ -14,7 +14,7 @@ import { compileArm, createArmData, forwardKinematics, jointsToInternal, type Ar
 import { pointJacobian } from './jacobian';
 import { candidateParameters, characteristicLength, type ParameterInfo } from './parameters';
 import { observability, selectIdentifiable, subMatrix } from './identifiability';
-import { seededRandom } from './validation';
+import { jointRanges, seededRandom } from './workspace';
 
 export interface PlanOptions {
   /** Number of poses K. */
@@ -39,14 +39,10 @@ export interface PoseSetQuality {
   warnings: string[];
 }
 
-/** Default travel when a joint lists no limits: a full turn, or ±100 mm for a prismatic joint. */
-function limits(g: ArmGeometry): [number, number][] {
-  return g.joints.map((j) => [j.min ?? (j.type === 'prismatic' ? -100 : -180), j.max ?? (j.type === 'prismatic' ? 100 : 180)]);
-}
 
 function randomConfigurations(g: ArmGeometry, count: number, seed: number): number[][] {
   const r = seededRandom(seed);
-  const lim = limits(g);
+  const lim = jointRanges(g);
   return Array.from({ length: count }, () => lim.map(([lo, hi]) => lo + (hi - lo) * r()));
 }
 
@@ -218,7 +214,7 @@ export function poseSetQuality(geometry: ArmGeometry, qs: number[][], groups: Pa
   const p = ids.length;
   if (qs.length < p) warnings.push(`${qs.length} poses are fewer than the ${p} parameters they should determine: measure at least ${p} poses (two to three times as many is common practice)`);
   else if (qs.length < 2 * p) warnings.push(`${qs.length} poses for ${p} parameters leaves little redundancy: two to three times as many poses as parameters is common practice`);
-  const lim = limits(geometry);
+  const lim = jointRanges(geometry);
   geometry.joints.forEach((j, k) => {
     let lo = Infinity, hi = -Infinity;
     for (const q of qs) { lo = Math.min(lo, q[k]); hi = Math.max(hi, q[k]); }

@@ -15,20 +15,11 @@
 import type { SessionPose } from './types';
 import { EngineInputError } from './types';
 import { choleskyInPlace } from './lm';
+import { seededRandom } from './workspace';
+
+export { seededRandom };
 
 export type PoseRole = 'fit' | 'holdout' | 'excluded';
-
-/** Seeded uniform generator in [0, 1) (mulberry32). */
-export function seededRandom(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 function shuffled<T>(items: T[], random: () => number): T[] {
   const a = items.slice();

@@ -16,7 +16,7 @@
 import { and, asc, eq, inArray } from 'drizzle-orm';
 import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics';
 import { armModelRevisions, armModels, fits, parameterSets, sessions, units, users } from '../../db/schema';
-import { compileArm, createArmData, forwardKinematics, jointsToInternal } from '../engine/kinematics';
+import { jointRanges, workspaceDifference } from '../engine/workspace';
 import type { ArmGeometry, ParameterGroup } from '../engine/types';
 import { db as sharedDb, type Db } from './db';
 import { mergedOrder, parameterValues } from './parameter-values';
@@ -57,47 +57,14 @@ export function outsideOthers(values: number[], i: number): { outside: boolean; 
   return { outside: dev > SIGMA_LIMIT * s.sd && dev > FLAG_FLOOR, lower: s.lower!, upper: s.upper! };
 }
 
-/** Seeded uniform generator (mulberry32), so the sampled configurations are the same on every call. */
-function mulberry32(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
-
 /**
  * Predicted position error of the nominal geometry against the calibrated one: |p_nominal(q) − p_calibrated(q)|
- * at seeded joint configurations within the nominal's limits (joints without limits: ±180° revolute,
- * 0…100 mm prismatic). Both in the robot base frame: the base is dropped from both, since a calibrated base
+ * at seeded joint configurations within the nominal's limits (the engine's `jointRanges`). Both in the robot base frame: the base is dropped from both, since a calibrated base
  * is where the tracker stood, not a property of the arm. The tool point is kept (it is the measured point).
  */
 export function positionError(nominal: ArmGeometry, calibrated: ArmGeometry, samples = POSITION_SAMPLES, seed = POSITION_SEED) {
-  const strip = (g: ArmGeometry): ArmGeometry => ({ ...g, base: undefined });
-  const mA = compileArm(strip(nominal)), mB = compileArm(strip(calibrated));
-  if (mA.n !== mB.n) throw new Error(`nominal has ${mA.n} joints, calibrated ${mB.n}`);
-  const dA = createArmData(mA), dB = createArmData(mB);
-  const r = mulberry32(seed);
-  const q = new Array<number>(mA.n);
-  const qi = new Float64Array(mA.n);
-  let max = 0, sum2 = 0;
-  for (let k = 0; k < samples; k++) {
-    nominal.joints.forEach((j, i) => {
-      const lo = j.min ?? (j.type === 'prismatic' ? 0 : -180);
-      const hi = j.max ?? (j.type === 'prismatic' ? 100 : 180);
-      q[i] = lo + (hi - lo) * r();
-    });
-    jointsToInternal(mA, q, qi);
-    forwardKinematics(mA, dA, qi);
-    forwardKinematics(mB, dB, qi);
-    const e = Math.hypot(dA.point[0]! - dB.point[0]!, dA.point[1]! - dB.point[1]!, dA.point[2]! - dB.point[2]!);
-    if (e > max) max = e;
-    sum2 += e * e;
-  }
-  return { maxMm: max, rmsMm: Math.sqrt(sum2 / samples) };
+  const d = workspaceDifference(nominal, calibrated, jointRanges(nominal), { samples, seed });
+  return { maxMm: d.maxMm, rmsMm: d.rmsMm };
 }
 
 export interface FleetParameter extends SpreadStats {
