@@ -212,16 +212,17 @@ export async function getUnit(serial: string, database: Db = sharedDb()): Promis
     .where(eq(units.serial, serial));
   if (!row) return undefined;
   const unitId = row.u.id;
-  const [[s], [f], [p], [latest], [current]] = await Promise.all([
-    database.select({ n: count() }).from(sessions).where(eq(sessions.unitId, unitId)),
-    database.select({ n: count() }).from(fits).where(eq(fits.unitId, unitId)),
-    database.select({ n: count() }).from(parameterSets).where(eq(parameterSets.unitId, unitId)),
-    database.select({ n: sql<number>`max(${armModelRevisions.revision})`.mapWith(Number) }).from(armModelRevisions).where(eq(armModelRevisions.modelId, row.m.id)),
-    database
-      .select({ id: parameterSets.id, version: parameterSets.version, approvedAt: parameterSets.approvedAt })
-      .from(parameterSets)
-      .where(and(eq(parameterSets.unitId, unitId), eq(parameterSets.state, 'current'))),
-  ]);
+  // One round trip for the counts, the model's newest revision and the current set.
+  const [extra] = await database
+    .select({
+      sessions: sql<number>`(select count(*) from ${sessions} where ${sessions.unitId} = ${unitId})`.mapWith(Number),
+      fits: sql<number>`(select count(*) from ${fits} where ${fits.unitId} = ${unitId})`.mapWith(Number),
+      parameterSets: sql<number>`(select count(*) from ${parameterSets} where ${parameterSets.unitId} = ${unitId})`.mapWith(Number),
+      latestRevision: sql<number>`(select max(${armModelRevisions.revision}) from ${armModelRevisions} where ${armModelRevisions.modelId} = ${row.m.id})`.mapWith(Number),
+      current: sql<{ id: string; version: number; approvedAt: string } | null>`(select json_build_object('id', ps.id, 'version', ps.version, 'approvedAt', ps.approved_at) from parameter_sets ps where ps.unit_id = ${unitId} and ps.state = 'current')`,
+    })
+    .from(sql`(select 1) as one`);
+  const current = extra?.current;
   return {
     id: unitId,
     serial: row.u.serial,
@@ -231,10 +232,10 @@ export async function getUnit(serial: string, database: Db = sharedDb()): Promis
     notes: row.u.notes,
     needsAttention: row.u.needsAttention,
     createdAt: row.u.createdAt.toISOString(),
-    model: { id: row.m.id, name: row.m.name, manufacturer: row.m.manufacturer, latestRevision: latest?.n ?? row.r.revision },
+    model: { id: row.m.id, name: row.m.name, manufacturer: row.m.manufacturer, latestRevision: extra?.latestRevision ?? row.r.revision },
     revision: { id: row.r.id, revision: row.r.revision, geometry: row.r.geometry },
-    currentParameterSet: current ? { id: current.id, version: current.version, approvedAt: current.approvedAt.toISOString() } : null,
-    counts: { sessions: s?.n ?? 0, fits: f?.n ?? 0, parameterSets: p?.n ?? 0 },
+    currentParameterSet: current ? { id: current.id, version: current.version, approvedAt: new Date(current.approvedAt).toISOString() } : null,
+    counts: { sessions: extra?.sessions ?? 0, fits: extra?.fits ?? 0, parameterSets: extra?.parameterSets ?? 0 },
   };
 }
 
