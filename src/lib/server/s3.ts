@@ -3,6 +3,10 @@ import { getSignedUrl } from '@aws-sdk/s3-request-presigner';
 import type { Readable } from 'node:stream';
 import { config } from './config';
 
+// The SDK is pinned to a release that supports Node.js 20 (later ones need 22); its notice about future
+// releases repeats in every process's log without telling operators anything they can act on here.
+process.env.AWS_SDK_JS_NODE_VERSION_SUPPORT_WARNING_DISABLED ??= 'true';
+
 let client: S3Client | undefined;
 
 /**
