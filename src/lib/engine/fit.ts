@@ -244,17 +244,23 @@ export class ArmLeastSquares implements LeastSquaresProblem {
 
 function subset(pb: PoseBuffers, n: number, idx: number[]): PoseBuffers {
   const m = idx.length;
+  // Every pose in order (no hold-out, nothing excluded): share the read-only buffers; the weights are
+  // copied because a robust fit rewrites them in place.
+  if (m === pb.count && idx.every((i, k) => i === k)) return { ...pb, weights: Float64Array.from(pb.weights) };
   const out: PoseBuffers = {
     count: m, q: new Float64Array(m * n), cq: new Float64Array(m * n), sq: new Float64Array(m * n),
     measured: new Float64Array(m * 3), weights: new Float64Array(m),
   };
-  idx.forEach((i, k) => {
-    out.q.set(pb.q.subarray(i * n, i * n + n), k * n);
-    out.cq.set(pb.cq.subarray(i * n, i * n + n), k * n);
-    out.sq.set(pb.sq.subarray(i * n, i * n + n), k * n);
-    out.measured.set(pb.measured.subarray(3 * i, 3 * i + 3), 3 * k);
+  for (let k = 0; k < m; k++) {
+    const i = idx[k];
+    for (let j = 0; j < n; j++) {
+      out.q[k * n + j] = pb.q[i * n + j];
+      out.cq[k * n + j] = pb.cq[i * n + j];
+      out.sq[k * n + j] = pb.sq[i * n + j];
+    }
+    for (let c = 0; c < 3; c++) out.measured[3 * k + c] = pb.measured[3 * i + c];
     out.weights[k] = pb.weights[i];
-  });
+  }
   return out;
 }
 
@@ -288,10 +294,13 @@ function stillJoints(g: ArmGeometry, poses: SessionPose[], idx: number[]): strin
   }).map((j) => j.name);
 }
 
-function labelOrLine(poses: SessionPose[]): (p: SessionPose) => string {
+/** Flagged fit and hold-out poses: the label, or line:N when the label repeats (label counts only when some pose is flagged). */
+function outlierNames(poses: SessionPose[], reports: PoseResidual[], roles: PoseRole[]): string[] {
+  const flagged = poses.filter((_, i) => reports[i].outlier && roles[i] !== 'excluded');
+  if (flagged.length === 0) return [];
   const counts = new Map<string, number>();
   for (const p of poses) counts.set(p.label, (counts.get(p.label) ?? 0) + 1);
-  return (p) => (counts.get(p.label) === 1 ? p.label : `line:${p.line}`);
+  return flagged.map((p) => (counts.get(p.label) === 1 ? p.label : `line:${p.line}`));
 }
 
 export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: FitOptions = {}): FitReport {
@@ -365,27 +374,45 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   const before = new Float64Array(3 * all.count), after = new Float64Array(3 * all.count);
   const errBefore = new Float64Array(all.count), errAfter = new Float64Array(all.count);
   predictPoints(model, data, v0, all, before, errBefore);
-  predictPoints(model, data, v, all, after, errAfter);
-  setParameters(model, data, v);
-  const tmp = new Float64Array(3 * p);
   const lev = unc.covariance ? leverageFactor(A, p) : null;
-  const fk = forwardKinematics, jac = pointJacobian, studentise = standardisedResidual;
-  const name = labelOrLine(poses);
-  const poseReports: PoseResidual[] = poses.map((pose, i) => {
-    const mb: [number, number, number] = [all.measured[3 * i] - before[3 * i], all.measured[3 * i + 1] - before[3 * i + 1], all.measured[3 * i + 2] - before[3 * i + 2]];
-    const ma: [number, number, number] = [all.measured[3 * i] - after[3 * i], all.measured[3 * i + 1] - after[3 * i + 1], all.measured[3 * i + 2] - after[3 * i + 2]];
-    let s: number | null = null;
-    if (lev) {
+  // Standardised residuals (NaN = none). With a leverage factor, one pass at the solution gives both the
+  // predicted point and its Jacobian, so the calibrated points need no separate prediction pass.
+  const standardised = new Float64Array(all.count).fill(NaN);
+  if (lev) {
+    setParameters(model, data, v);
+    const tmp = new Float64Array(3 * p);
+    const e = new Float64Array(3);
+    const fk = forwardKinematics, jac = pointJacobian, studentise = standardisedResidual;
+    const pt = data.point, mm = all.measured;
+    for (let i = 0; i < all.count; i++) {
       fk(model, data, all.q, i * n, true, undefined, all.cq, all.sq);
+      const px = pt[0], py = pt[1], pz = pt[2];
+      after[3 * i] = px; after[3 * i + 1] = py; after[3 * i + 2] = pz;
+      e[0] = mm[3 * i] - px; e[1] = mm[3 * i + 1] - py; e[2] = mm[3 * i + 2] - pz;
+      errAfter[i] = Math.hypot(e[0], e[1], e[2]);
       jac(model, data, active, J);
       // Robust weights scale a fit pose's information; the studentisation uses the unweighted residual.
-      s = studentise(ma, J, lev, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);
+      const s = studentise(e, J, lev, p, unc.sigma, roles[i] === 'fit' ? -1 : 1, tmp);
+      if (s !== null) standardised[i] = s;
     }
-    return {
-      label: pose.label, line: pose.line, role: roles[i], before: mb, after: ma,
-      errorBefore: errBefore[i], errorAfter: errAfter[i], standardised: s, outlier: s !== null && s > o.outlierThreshold,
+  } else {
+    predictPoints(model, data, v, all, after, errAfter);
+  }
+  const threshold = o.outlierThreshold;
+  const meas = all.measured;
+  const poseReports: PoseResidual[] = new Array(all.count);
+  for (let i = 0; i < all.count; i++) {
+    const pose = poses[i];
+    const x = meas[3 * i], y = meas[3 * i + 1], z = meas[3 * i + 2];
+    const si = standardised[i];
+    const s = si === si ? si : null;
+    poseReports[i] = {
+      label: pose.label, line: pose.line, role: roles[i],
+      before: [x - before[3 * i], y - before[3 * i + 1], z - before[3 * i + 2]],
+      after: [x - after[3 * i], y - after[3 * i + 1], z - after[3 * i + 2]],
+      errorBefore: errBefore[i], errorAfter: errAfter[i], standardised: s, outlier: s !== null && s > threshold,
     };
-  });
+  }
   const pick = (idx: number[], e: Float64Array) => errorStats(idx.map((i) => e[i]));
   let crossValidation: FitReport['statistics']['crossValidation'] = null;
   if (o.kFold >= 2) {
@@ -453,7 +480,7 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
       crossValidation,
     },
     poses: poseReports,
-    outliers: poses.filter((_, i) => poseReports[i].outlier && roles[i] !== 'excluded').map(name),
+    outliers: outlierNames(poses, poseReports, roles),
     residualSigmaMm: unc.sigma,
     registration: { registered: !nominal.base, rmsMm: registrationRms },
     timing: { totalMs: 0, registrationMs, identificationMs, uncertaintyMs, validationMs },

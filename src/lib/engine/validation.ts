@@ -7,7 +7,7 @@
  * same side, so repeat visits never leak between fit and hold-out).
  *
  * Standardised residual of a pose with 3-D residual e (mm), point Jacobian J_i (3×p) and
- * C = (JᵀWJ)⁻¹: the leverage block H_i = J_i C J_iᵀ (computed by triangular solves) gives Var(e) = σ²(I − H_i) for a fit pose and
+ * C = (JᵀWJ)⁻¹: the leverage block H_i = J_i C J_iᵀ (through the inverse Cholesky factor) gives Var(e) = σ²(I − H_i) for a fit pose and
  * σ²(I + H_i) for a pose not in the fit (Cook & Weisberg, "Residuals and Influence in Regression", 1982,
  * internally studentised residuals and prediction errors). We report s = √(eᵀ(I ∓ H_i)⁻¹e / 3) / σ, the RMS
  * of the three studentised coordinates, so s ≈ 1 for an ordinary pose.
@@ -82,14 +82,29 @@ export function kFoldAssignment(labels: string[], k: number, seed: number): numb
 
 /**
  * Factor for leverages: with A = JᵀWJ = D·S·D (D = √diag A) and S = LLᵀ, the leverage block of a pose is
- * H = J A⁻¹ Jᵀ = WᵀW with W = L⁻¹ D⁻¹ Jᵀ (triangular solves, no inverse). Returns null when A is singular.
+ * H = J A⁻¹ Jᵀ = WᵀW with W = L⁻¹ D⁻¹ Jᵀ. The lower-triangular G = L⁻¹ D⁻¹ is formed once (p³/6, by
+ * forward substitution on the identity), so each pose costs three independent triangular products instead
+ * of three dependent triangular solves. Returns null when A is singular.
  */
-export function leverageFactor(A: Float64Array, p: number): { L: Float64Array; d: Float64Array } | null {
+export function leverageFactor(A: Float64Array, p: number): { L: Float64Array; d: Float64Array; G: Float64Array } | null {
   const d = new Float64Array(p);
   for (let j = 0; j < p; j++) d[j] = Math.sqrt(A[j * p + j]) || 1;
   const L = new Float64Array(p * p);
   for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = A[b * p + a] / (d[a] * d[b]);
-  return choleskyInPlace(L, p) ? { L, d } : null;
+  if (!choleskyInPlace(L, p)) return null;
+  // Column c of L⁻¹ by forward substitution (zero above the diagonal), then scaled by 1/d_c.
+  const G = new Float64Array(p * p);
+  for (let c = 0; c < p; c++) {
+    G[c * p + c] = 1 / L[c * p + c];
+    for (let i = c + 1; i < p; i++) {
+      let s = 0;
+      const li = i * p;
+      for (let k = c; k < i; k++) s -= L[li + k] * G[k * p + c];
+      G[li + c] = s / L[li + i];
+    }
+  }
+  for (let i = 0; i < p; i++) for (let c = 0; c <= i; c++) G[i * p + c] /= d[c];
+  return { L, d, G };
 }
 
 /**
@@ -98,33 +113,33 @@ export function leverageFactor(A: Float64Array, p: number): { L: Float64Array; d
  * Returns null when I − H is singular (a pose with leverage 1, which alone determines some parameter).
  */
 export function standardisedResidual(
-  e: ArrayLike<number>, J: Float64Array, f: { L: Float64Array; d: Float64Array }, p: number, sigma: number, sign: 1 | -1, tmp: Float64Array,
+  e: ArrayLike<number>, J: Float64Array, f: { G: Float64Array }, p: number, sigma: number, sign: 1 | -1, tmp: Float64Array,
 ): number | null {
-  const L = f.L, d = f.d;
-  // W (3 columns of length p, at tmp[r·p + i]) = L⁻¹ D⁻¹ Jᵀ.
-  for (let r = 0; r < 3; r++) {
-    const o = r * p;
-    for (let i = 0; i < p; i++) {
-      let s = J[3 * i + r] / d[i];
-      const li = i * p;
-      for (let k = 0; k < i; k++) s -= L[li + k] * tmp[o + k];
-      tmp[o + i] = s / L[li + i];
+  const G = f.G;
+  // W (3 columns of length p, at tmp[r·p + i]) = G Jᵀ; H = WᵀW accumulated on the way.
+  let h00 = 0, h01 = 0, h02 = 0, h11 = 0, h12 = 0, h22 = 0;
+  for (let i = 0; i < p; i++) {
+    const gi = i * p;
+    let w0 = 0, w1 = 0, w2 = 0;
+    for (let k = 0; k <= i; k++) {
+      const g = G[gi + k];
+      w0 += g * J[3 * k];
+      w1 += g * J[3 * k + 1];
+      w2 += g * J[3 * k + 2];
     }
+    tmp[i] = w0; tmp[p + i] = w1; tmp[2 * p + i] = w2;
+    h00 += w0 * w0; h01 += w0 * w1; h02 += w0 * w2;
+    h11 += w1 * w1; h12 += w1 * w2; h22 += w2 * w2;
   }
-  const M = [0, 0, 0, 0, 0, 0, 0, 0, 0];
-  for (let r = 0; r < 3; r++) {
-    for (let c = r; c < 3; c++) {
-      let h = 0;
-      for (let i = 0; i < p; i++) h += tmp[r * p + i] * tmp[c * p + i];
-      M[3 * r + c] = M[3 * c + r] = (r === c ? 1 : 0) + sign * h;
-    }
-  }
+  const m0 = 1 + sign * h00, m1 = sign * h01, m2 = sign * h02, m4 = 1 + sign * h11, m5 = sign * h12, m8 = 1 + sign * h22;
+  const m3 = m1, m6 = m2, m7 = m5;
   // Solve M x = e by Cramer's rule (3×3).
-  const det = M[0] * (M[4] * M[8] - M[5] * M[7]) - M[1] * (M[3] * M[8] - M[5] * M[6]) + M[2] * (M[3] * M[7] - M[4] * M[6]);
+  const det = m0 * (m4 * m8 - m5 * m7) - m1 * (m3 * m8 - m5 * m6) + m2 * (m3 * m7 - m4 * m6);
   if (!(Math.abs(det) > 1e-12) || !(sigma > 0)) return null;
-  const x0 = (e[0] * (M[4] * M[8] - M[5] * M[7]) - M[1] * (e[1] * M[8] - M[5] * e[2]) + M[2] * (e[1] * M[7] - M[4] * e[2])) / det;
-  const x1 = (M[0] * (e[1] * M[8] - M[5] * e[2]) - e[0] * (M[3] * M[8] - M[5] * M[6]) + M[2] * (M[3] * e[2] - e[1] * M[6])) / det;
-  const x2 = (M[0] * (M[4] * e[2] - e[1] * M[7]) - M[1] * (M[3] * e[2] - e[1] * M[6]) + e[0] * (M[3] * M[7] - M[4] * M[6])) / det;
-  const q = e[0] * x0 + e[1] * x1 + e[2] * x2;
+  const e0 = e[0], e1 = e[1], e2 = e[2];
+  const x0 = (e0 * (m4 * m8 - m5 * m7) - m1 * (e1 * m8 - m5 * e2) + m2 * (e1 * m7 - m4 * e2)) / det;
+  const x1 = (m0 * (e1 * m8 - m5 * e2) - e0 * (m3 * m8 - m5 * m6) + m2 * (m3 * e2 - e1 * m6)) / det;
+  const x2 = (m0 * (m4 * e2 - e1 * m7) - m1 * (m3 * e2 - e1 * m6) + e0 * (m3 * m7 - m4 * m6)) / det;
+  const q = e0 * x0 + e1 * x1 + e2 * x2;
   return Math.sqrt(Math.max(q, 0) / 3) / sigma;
 }
