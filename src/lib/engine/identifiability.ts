@@ -240,16 +240,26 @@ export function symmetricEigenvalues(S: Float64Array, p: number): Float64Array {
         const theta = (a[j * p + j] - a[i * p + i]) / (2 * aij);
         const t = (theta >= 0 ? 1 : -1) / (Math.abs(theta) + Math.sqrt(theta * theta + 1));
         const c = 1 / Math.sqrt(t * t + 1), s = t * c;
+        // A ← Jᵀ A J: columns i, j then rows i, j. Outside the 2×2 block the column and the row updates
+        // touch different entries, so they share one loop; the block itself keeps the columns-then-rows order.
+        const pi = i * p, pj = j * p;
         for (let k = 0; k < p; k++) {
-          const aki = a[k * p + i], akj = a[k * p + j];
-          a[k * p + i] = c * aki - s * akj;
-          a[k * p + j] = s * aki + c * akj;
+          if (k === i || k === j) continue;
+          const pk = k * p;
+          const aki = a[pk + i], akj = a[pk + j];
+          a[pk + i] = c * aki - s * akj;
+          a[pk + j] = s * aki + c * akj;
+          const aik = a[pi + k], ajk = a[pj + k];
+          a[pi + k] = c * aik - s * ajk;
+          a[pj + k] = s * aik + c * ajk;
         }
-        for (let k = 0; k < p; k++) {
-          const aik = a[i * p + k], ajk = a[j * p + k];
-          a[i * p + k] = c * aik - s * ajk;
-          a[j * p + k] = s * aik + c * ajk;
-        }
+        const aii = a[pi + i], aij2 = a[pi + j], aji = a[pj + i], ajj = a[pj + j];
+        const cii = c * aii - s * aij2, cij = s * aii + c * aij2;
+        const cji = c * aji - s * ajj, cjj = s * aji + c * ajj;
+        a[pi + i] = c * cii - s * cji;
+        a[pj + i] = s * cii + c * cji;
+        a[pi + j] = c * cij - s * cjj;
+        a[pj + j] = s * cij + c * cjj;
       }
     }
   }

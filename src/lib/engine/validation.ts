@@ -118,7 +118,27 @@ export function standardisedResidual(
   const G = f.G;
   // W (3 columns of length p, at tmp[r·p + i]) = G Jᵀ; H = WᵀW accumulated on the way.
   let h00 = 0, h01 = 0, h02 = 0, h11 = 0, h12 = 0, h22 = 0;
-  for (let i = 0; i < p; i++) {
+  // Rows i and i + 1 of W together (each Jacobian entry loaded once for both); same sums, same order.
+  let i = 0;
+  for (; i + 1 < p; i += 2) {
+    const gi = i * p, gn = gi + p;
+    let w0 = 0, w1 = 0, w2 = 0, v0 = 0, v1 = 0, v2 = 0;
+    for (let k = 0; k <= i; k++) {
+      const g = G[gi + k], h = G[gn + k];
+      const j0 = J[3 * k], j1 = J[3 * k + 1], j2 = J[3 * k + 2];
+      w0 += g * j0; w1 += g * j1; w2 += g * j2;
+      v0 += h * j0; v1 += h * j1; v2 += h * j2;
+    }
+    const h = G[gn + i + 1], k3 = 3 * (i + 1);
+    v0 += h * J[k3]; v1 += h * J[k3 + 1]; v2 += h * J[k3 + 2];
+    tmp[i] = w0; tmp[p + i] = w1; tmp[2 * p + i] = w2;
+    tmp[i + 1] = v0; tmp[p + i + 1] = v1; tmp[2 * p + i + 1] = v2;
+    h00 += w0 * w0; h01 += w0 * w1; h02 += w0 * w2;
+    h11 += w1 * w1; h12 += w1 * w2; h22 += w2 * w2;
+    h00 += v0 * v0; h01 += v0 * v1; h02 += v0 * v2;
+    h11 += v1 * v1; h12 += v1 * v2; h22 += v2 * v2;
+  }
+  for (; i < p; i++) {
     const gi = i * p;
     let w0 = 0, w1 = 0, w2 = 0;
     for (let k = 0; k <= i; k++) {
