@@ -165,11 +165,14 @@ export function checkInputs(geometry: ArmGeometry, poses: SessionPose[]): void {
       problems.push({ line: p.line, column: 'q', message: `pose "${p.label}" has ${p.q.length} joint values but the geometry has ${n} joints`, expected: `${n} joint values` });
       continue;
     }
-    p.q.forEach((v, k) => {
+    for (let k = 0; k < n; k++) {
+      const v = p.q[k];
       if (!Number.isFinite(v)) problems.push({ line: p.line, column: `q${k + 1}`, message: `joint value ${v} is not a finite number`, expected: 'a number' });
-    });
-    for (const c of ['x', 'y', 'z'] as const) {
-      if (!Number.isFinite(p[c])) problems.push({ line: p.line, column: c, message: `measured ${c} ${p[c]} is not a finite number`, expected: 'a number in mm' });
+    }
+    if (!(Number.isFinite(p.x) && Number.isFinite(p.y) && Number.isFinite(p.z))) {
+      for (const c of ['x', 'y', 'z'] as const) {
+        if (!Number.isFinite(p[c])) problems.push({ line: p.line, column: c, message: `measured ${c} ${p[c]} is not a finite number`, expected: 'a number in mm' });
+      }
     }
   }
   if (problems.length) throw new EngineInputError(problems);
