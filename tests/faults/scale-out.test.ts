@@ -21,7 +21,7 @@ const started: AppInstance[] = [];
 async function startWorker(name: string): Promise<AppInstance> {
   const worker = await startAppInstance(
     { WORKER_NAME: name, WORKER_CONCURRENCY: '2' },
-    { entry: 'node_modules/tsx/dist/cli.mjs', args: ['scripts/worker.ts'], waitForPort: false },
+    { entry: 'scripts/worker.mjs', waitForPort: false },
   );
   started.push(worker);
   const deadline = Date.now() + 30_000;

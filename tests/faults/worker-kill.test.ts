@@ -24,7 +24,7 @@ const started: AppInstance[] = [];
 async function startWorker(name: string, concurrency: number): Promise<AppInstance> {
   const worker = await startAppInstance(
     { ...QUICK_QUEUE, WORKER_NAME: name, WORKER_CONCURRENCY: String(concurrency) },
-    { entry: 'node_modules/tsx/dist/cli.mjs', args: ['scripts/worker.ts'], waitForPort: false },
+    { entry: 'scripts/worker.mjs', waitForPort: false },
   );
   started.push(worker);
   const deadline = Date.now() + 30_000;

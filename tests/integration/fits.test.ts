@@ -189,7 +189,7 @@ describe('a crashed run', () => {
 
 describe('worker process (npm run worker)', () => {
   it('starts on the shared queue, runs fits on threads, and stops cleanly on SIGTERM', async () => {
-    const worker = await startAppInstance({ WORKER_CONCURRENCY: '2' }, { entry: 'node_modules/tsx/dist/cli.mjs', args: ['scripts/worker.ts'], waitForPort: false });
+    const worker = await startAppInstance({ WORKER_CONCURRENCY: '2' }, { entry: 'scripts/worker.mjs', waitForPort: false });
     const deadline = Date.now() + 30_000;
     let log = '';
     while (!log.includes('fit worker ready') && Date.now() < deadline) {
