@@ -23,6 +23,7 @@ import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine
 import { audit } from './audit';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
+import { pageTotal, windowTotal } from './paging';
 import { isServiceUnavailable } from './http';
 import { log } from './log';
 import { multipartBoundary, MultipartError, readMultipart } from './multipart';
@@ -672,17 +673,35 @@ export interface SessionSummary {
 
 export async function listSessions(query: SessionListQuery, database: Db = sharedDb()): Promise<{ sessions: SessionSummary[]; total: number; page: number; pageSize: number }> {
   const where = query.unit ? eq(units.serial, query.unit) : undefined;
-  const [rows, [total]] = await Promise.all([
-    database
-      .select({ s: sessions, serial: units.serial })
-      .from(sessions)
-      .innerJoin(units, eq(units.id, sessions.unitId))
-      .where(where)
-      .orderBy(desc(sessions.measuredOn), desc(sessions.createdAt), asc(sessions.id))
-      .limit(query.pageSize)
-      .offset((query.page - 1) * query.pageSize),
-    database.select({ n: count() }).from(sessions).innerJoin(units, eq(units.id, sessions.unitId)).where(where),
-  ]);
+  const rows = await database
+    // Only the listed columns: the list never needs the stored warnings' text or the file key.
+    .select({
+      s: {
+        id: sessions.id,
+        measuredOn: sessions.measuredOn,
+        technician: sessions.technician,
+        instrument: sessions.instrument,
+        fileName: sessions.fileName,
+        poseCount: sessions.poseCount,
+        hasSplit: sessions.hasSplit,
+        repeatGroups: sessions.repeatGroups,
+        outsideLimitsOverride: sessions.outsideLimitsOverride,
+        warningCount: sql<number>`jsonb_array_length(${sessions.warnings})`.mapWith(Number),
+        createdAt: sessions.createdAt,
+      },
+      serial: units.serial,
+      total: windowTotal(),
+    })
+    .from(sessions)
+    .innerJoin(units, eq(units.id, sessions.unitId))
+    .where(where)
+    .orderBy(desc(sessions.measuredOn), desc(sessions.createdAt), asc(sessions.id))
+    .limit(query.pageSize)
+    .offset((query.page - 1) * query.pageSize);
+  const total = await pageTotal(rows, query.page, async () => {
+    const [c] = await database.select({ n: count() }).from(sessions).innerJoin(units, eq(units.id, sessions.unitId)).where(where);
+    return c?.n ?? 0;
+  });
   return {
     sessions: rows.map(({ s, serial }) => ({
       id: s.id,
@@ -696,10 +715,10 @@ export async function listSessions(query: SessionListQuery, database: Db = share
       hasSplit: s.hasSplit,
       repeatGroups: s.repeatGroups,
       outsideLimitsOverride: s.outsideLimitsOverride,
-      warningCount: s.warnings.length,
+      warningCount: s.warningCount,
       createdAt: s.createdAt.toISOString(),
     })),
-    total: total?.n ?? 0,
+    total,
     page: query.page,
     pageSize: query.pageSize,
   };

@@ -12,6 +12,7 @@ import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine
 import { audit } from './audit';
 import type { FieldProblem } from './http';
 import { db as sharedDb, type Db } from './db';
+import { pageTotal, windowTotal } from './paging';
 
 /**
  * zod issues as field problems, naming unknown keys one by one (zod reports them as one issue at the
@@ -111,34 +112,38 @@ export async function listUnits(query: UnitListQuery, database: Db = sharedDb())
     createdAt: units.createdAt,
   }[query.sort];
   const order = query.dir === 'asc' ? asc(column) : desc(column);
-  const [rows, [total]] = await Promise.all([
-    database
-      .select({
-        serial: units.serial,
-        modelId: armModels.id,
-        model: armModels.name,
-        revision: armModelRevisions.revision,
-        site: units.site,
-        cell: units.cell,
-        commissionedOn: units.commissionedOn,
-        needsAttention: units.needsAttention,
-        createdAt: units.createdAt,
-      })
+  const rows = await database
+    .select({
+      serial: units.serial,
+      modelId: armModels.id,
+      model: armModels.name,
+      revision: armModelRevisions.revision,
+      site: units.site,
+      cell: units.cell,
+      commissionedOn: units.commissionedOn,
+      needsAttention: units.needsAttention,
+      createdAt: units.createdAt,
+      total: windowTotal(),
+    })
+    .from(units)
+    .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
+    .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
+    .where(cond)
+    // Serial breaks ties so pages never overlap.
+    .orderBy(order, asc(units.serial))
+    .limit(query.pageSize)
+    .offset((query.page - 1) * query.pageSize);
+  const total = await pageTotal(rows, query.page, async () => {
+    const [c] = await database
+      .select({ n: count() })
       .from(units)
       .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
       .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
-      .where(cond)
-      // Serial breaks ties so pages never overlap.
-      .orderBy(order, asc(units.serial))
-      .limit(query.pageSize)
-      .offset((query.page - 1) * query.pageSize),
-    database
-      .select({ n: count() })
-      .from(units)
-      .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId)).innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId)).where(cond),
-  ]);
-  const items: UnitRow[] = rows.map((r) => ({ ...r, createdAt: r.createdAt.toISOString() }));
-  return { items, total: total?.n ?? 0, page: query.page, pageSize: query.pageSize };
+      .where(cond);
+    return c?.n ?? 0;
+  });
+  const items: UnitRow[] = rows.map(({ total: _total, ...r }) => ({ ...r, createdAt: r.createdAt.toISOString() }));
+  return { items, total, page: query.page, pageSize: query.pageSize };
 }
 
 export type RegisterResult =
