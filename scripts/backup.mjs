@@ -1,6 +1,6 @@
 #!/usr/bin/env node
 // Back up Offsetry: a pg_dump of DATABASE_URL (custom format) and the list of every S3 object the database
-// refers to, each checked in the bucket. See docs/operations.md, "Backups".
+// refers to, each checked in the bucket. See the README, "Backups".
 //
 //   node scripts/backup.mjs [--out DIR] [--no-check]
 //     --out DIR    where to write (default .data/backups/<UTC time>); created, must be empty if it exists

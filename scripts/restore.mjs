@@ -1,5 +1,5 @@
 #!/usr/bin/env node
-// Restore a backup made by scripts/backup.mjs into an EMPTY database. See docs/operations.md, "Backups".
+// Restore a backup made by scripts/backup.mjs into an EMPTY database. See the README, "Backups".
 //
 //   node scripts/restore.mjs --from DIR [--database-url URL] [--check-objects]
 //     --from DIR         the backup folder (database.dump and objects.json)

@@ -38,7 +38,7 @@ if (problems.length) {
     [
       `serve: the configuration is incomplete (${problems.length} problem${problems.length === 1 ? '' : 's'}); the server was not started:`,
       ...problems.map((p) => `  - ${p}`),
-      'Set these environment variables (see docs/operations.md) and start again.',
+      'Set these environment variables (see the README, "Operations") and start again.',
     ].join('\n'),
   );
   process.exit(EX_CONFIG);

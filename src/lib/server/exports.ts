@@ -1,6 +1,6 @@
 /**
  * Export bundles of approved parameter sets for a controller: the arm geometry JSON, a flat CSV of the
- * parameters, a URDF and a manifest with the SHA-256 of each file (structure: docs/export-files.md).
+ * parameters, a URDF and a manifest with the SHA-256 of each file (structure: README, "Export files").
  * One set as a single file, or a batch as a zip with one folder per unit plus a top-level manifest.
  * Every export is written to export_log (who, kind, format, serial + version + set id of each item).
  */

@@ -175,7 +175,7 @@ export function geometryToUrdf(g: ArmGeometry, options: UrdfOptions = {}): strin
       lines.push('    <axis xyz="0 0 1"/>');
       if (j.type !== 'continuous') {
         // effort and velocity are required attributes of <limit>; Offsetry carries geometry only, so they are 0
-        // and the integrator fills in the drive's values (docs/export-files.md).
+        // and the integrator fills in the drive's values (README, "Export files").
         const bounds = (j.lower !== undefined ? ` lower="${num(j.lower)}"` : '') + (j.upper !== undefined ? ` upper="${num(j.upper)}"` : '');
         lines.push(`    <limit${bounds} effort="0" velocity="0"/>`);
       }
