@@ -3,7 +3,7 @@
  * the S3 fake's presigned URL (a cross-origin request with a CORS preflight, allowed by the fake's bucket
  * CORS rule), and the upload form sends a file above 5 MB that way instead of through the app.
  */
-import { GetObjectCommand, ListObjectsV2Command, S3Client } from '@aws-sdk/client-s3';
+import { GetObjectCommand, ListObjectsV2Command } from '@aws-sdk/client-s3';
 import { eq } from 'drizzle-orm';
 import { createHash } from 'node:crypto';
 import { readFileSync } from 'node:fs';
@@ -16,17 +16,11 @@ import { createDb } from '../../src/lib/server/db';
 import { launchBrowser, signInPage } from '../support/browser';
 import { BASE_URL, DEMO, uniq } from '../support/http';
 import { serviceEnv } from '../support/services';
+import { testS3 } from '../support/s3';
 
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
-const s3 = new S3Client({
-  endpoint: env.s3.endpoint,
-  region: env.s3.region,
-  credentials: { accessKeyId: env.s3.accessKeyId, secretAccessKey: env.s3.secretAccessKey },
-  forcePathStyle: true,
-  requestChecksumCalculation: 'WHEN_REQUIRED',
-  responseChecksumValidation: 'WHEN_REQUIRED',
-});
+const s3 = testS3();
 const nominal = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
 const truth = JSON.parse(readFileSync('test-data/vx-620-true.json', 'utf8')) as ArmGeometry;
 const goodFile = readFileSync('test-data/vx-620-session.csv');

@@ -3,7 +3,7 @@
  * row and no object remain, and the same upload succeeds once the store is back — without restarting the app.
  * (Fault tests run one file at a time: this one stops the run's shared S3 fake.)
  */
-import { ListObjectsV2Command, S3Client } from '@aws-sdk/client-s3';
+import { ListObjectsV2Command } from '@aws-sdk/client-s3';
 import { eq, sql } from 'drizzle-orm';
 import { readFileSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -12,17 +12,11 @@ import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb } from '../../src/lib/server/db';
 import { DEMO, signedIn, uniq, type Client } from '../support/http';
 import { serviceEnv, startS3, stopS3 } from '../support/services';
+import { testS3 } from '../support/s3';
 
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
-const s3 = new S3Client({
-  endpoint: env.s3.endpoint,
-  region: env.s3.region,
-  credentials: { accessKeyId: env.s3.accessKeyId, secretAccessKey: env.s3.secretAccessKey },
-  forcePathStyle: true,
-  requestChecksumCalculation: 'WHEN_REQUIRED',
-  responseChecksumValidation: 'WHEN_REQUIRED',
-});
+const s3 = testS3();
 const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
 const csv = readFileSync('test-data/vx-620-session.csv');
 

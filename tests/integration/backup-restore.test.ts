@@ -7,7 +7,7 @@
  * A database of its own, because the shared test database holds fixture sessions written straight into
  * SQL without objects (tests/integration/fit-fixtures.ts); here "every session" can be checked literally.
  */
-import { GetObjectCommand, HeadObjectCommand, S3Client } from '@aws-sdk/client-s3';
+import { GetObjectCommand, HeadObjectCommand } from '@aws-sdk/client-s3';
 import { spawn } from 'node:child_process';
 import { createHash } from 'node:crypto';
 import { cpSync, existsSync, readFileSync, writeFileSync } from 'node:fs';
@@ -18,6 +18,7 @@ import { createDb, type Db } from '../../src/lib/server/db';
 import { upsertUserWithPassword } from '../../src/lib/server/users';
 import { Client, uniq } from '../support/http';
 import { serviceEnv, startAppInstance, type AppInstance } from '../support/services';
+import { testS3 } from '../support/s3';
 
 const root = resolve(new URL('../..', import.meta.url).pathname);
 const env = serviceEnv();
@@ -33,14 +34,7 @@ const targetName = `backup_dst_${tag}`;
 const sourceUrl = dbUrl(sourceName);
 const targetUrl = dbUrl(targetName);
 const backupDir = join(env.runDir, `backup-${tag}`);
-const s3 = new S3Client({
-  endpoint: env.s3.endpoint,
-  region: env.s3.region,
-  credentials: { accessKeyId: env.s3.accessKeyId, secretAccessKey: env.s3.secretAccessKey },
-  forcePathStyle: true,
-  requestChecksumCalculation: 'WHEN_REQUIRED',
-  responseChecksumValidation: 'WHEN_REQUIRED',
-});
+const s3 = testS3();
 
 function run(cmd: string, args: string[], extraEnv: Record<string, string> = {}): Promise<{ code: number | null; out: string }> {
   return new Promise((done) => {

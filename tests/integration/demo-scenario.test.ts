@@ -3,7 +3,7 @@
  * idempotent, and its sessions look like the brief says: 3–4 visits per unit over two years, 60–80 poses
  * plus repeat visits, a split column on most, and nominal errors well above tracker noise.
  */
-import { ListObjectsV2Command, S3Client } from '@aws-sdk/client-s3';
+import { ListObjectsV2Command } from '@aws-sdk/client-s3';
 import { eq, inArray } from 'drizzle-orm';
 import { afterAll, describe, expect, it } from 'vitest';
 import { sessions, units } from '../../src/db/schema';
@@ -11,6 +11,7 @@ import { createDb } from '../../src/lib/server/db';
 import { sessionCheck } from '../../src/lib/server/sessions';
 import { seedScenario } from '../../scripts/demo-scenario';
 import { serviceEnv } from '../support/services';
+import { testS3 } from '../support/s3';
 
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
@@ -47,10 +48,7 @@ describe('demo scenario', () => {
     // Each session's object is in the bucket under its unit and id.
     const s0 = rows[0]!;
     const unit0 = demoUnits.find((u) => u.id === s0.unitId)!;
-    const listed = await new S3Client({
-      endpoint: env.s3.endpoint, region: env.s3.region, forcePathStyle: true,
-      credentials: { accessKeyId: env.s3.accessKeyId, secretAccessKey: env.s3.secretAccessKey },
-    }).send(new ListObjectsV2Command({ Bucket: env.s3.bucket, Prefix: `sessions/${unit0.serial}/` }));
+    const listed = await testS3().send(new ListObjectsV2Command({ Bucket: env.s3.bucket, Prefix: `sessions/${unit0.serial}/` }));
     expect((listed.Contents ?? []).map((o) => o.Key)).toContain(s0.fileKey);
 
     // The nominal model is off by tenths of a millimetre per parameter: errors well above the 0.01–0.03 mm noise.

@@ -3,7 +3,7 @@
  * goes by a presigned PUT straight to the store, the completion runs the same checks as the direct upload,
  * and every refusal leaves nothing behind — no session row, no object at a session key, no staging object.
  */
-import { GetObjectCommand, ListObjectsV2Command, PutObjectCommand, S3Client } from '@aws-sdk/client-s3';
+import { GetObjectCommand, ListObjectsV2Command, PutObjectCommand } from '@aws-sdk/client-s3';
 import { eq, sql } from 'drizzle-orm';
 import { createHash } from 'node:crypto';
 import { readFileSync } from 'node:fs';
@@ -13,17 +13,11 @@ import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb } from '../../src/lib/server/db';
 import { DEMO, signedIn, uniq, type Client } from '../support/http';
 import { serviceEnv, startAppInstance } from '../support/services';
+import { testS3 } from '../support/s3';
 
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
-const s3 = new S3Client({
-  endpoint: env.s3.endpoint,
-  region: env.s3.region,
-  credentials: { accessKeyId: env.s3.accessKeyId, secretAccessKey: env.s3.secretAccessKey },
-  forcePathStyle: true,
-  requestChecksumCalculation: 'WHEN_REQUIRED',
-  responseChecksumValidation: 'WHEN_REQUIRED',
-});
+const s3 = testS3();
 
 const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
 const goodFile = readFileSync('test-data/vx-620-session.csv');

@@ -146,7 +146,7 @@ describe('cross-site state changes with the session cookie are refused', () => {
 
   it.each(unsafe.map((c) => [`${c.method} ${c.pattern}`, c]))('%s from another origin, from "null" and with no origin', async (_n, c) => {
     const path = samplePath(c.pattern);
-    for (const headers of [{ origin: 'http://evil.example' }, { origin: 'null' }, { origin: '', 'sec-fetch-site': 'cross-site' }, { origin: '' }]) {
+    for (const headers of <Record<string, string>[]>[{ origin: 'http://evil.example' }, { origin: 'null' }, { origin: '', 'sec-fetch-site': 'cross-site' }, { origin: '' }]) {
       const res = await cookie.admin.json(path, { method: c.method, json: {}, headers });
       expect(res.status, `${JSON.stringify(headers)}: ${JSON.stringify(res.body)}`).toBe(403);
       expect(res.body.error).toMatch(/Cross-site request refused/);

@@ -3,7 +3,7 @@
  * upload is refused with line, column and message, and leaves nothing behind (no row, no object); good
  * files are stored byte for byte; the same file twice is recognised; S3 failure answers 503 and a retry works.
  */
-import { ListObjectsV2Command, S3Client } from '@aws-sdk/client-s3';
+import { ListObjectsV2Command } from '@aws-sdk/client-s3';
 import { eq, sql } from 'drizzle-orm';
 import { createHash } from 'node:crypto';
 import { readFileSync } from 'node:fs';
@@ -16,17 +16,11 @@ import type { ArmGeometry, SessionPose } from '../../src/lib/engine/types';
 import { createDb } from '../../src/lib/server/db';
 import { DEMO, signedIn, uniq, type Client } from '../support/http';
 import { serviceEnv, startAppInstance, type AppInstance } from '../support/services';
+import { testS3 } from '../support/s3';
 
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
-const s3 = new S3Client({
-  endpoint: env.s3.endpoint,
-  region: env.s3.region,
-  credentials: { accessKeyId: env.s3.accessKeyId, secretAccessKey: env.s3.secretAccessKey },
-  forcePathStyle: true,
-  requestChecksumCalculation: 'WHEN_REQUIRED',
-  responseChecksumValidation: 'WHEN_REQUIRED',
-});
+const s3 = testS3();
 
 const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
 const goodFile = readFileSync('test-data/vx-620-session.csv');
