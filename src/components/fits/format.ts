@@ -19,14 +19,4 @@ export const GROUP_LABEL: Record<string, string> = {
 };
 export const GROUP_ORDER = ['lengths', 'twists', 'offsets', 'beta', 'base', 'tool'];
 
-/** CSV download of a table shown on screen (the numbers behind a chart). */
-export function downloadCsv(name: string, header: string[], rows: (string | number | null)[][]) {
-  const cell = (c: string | number | null) => (c === null ? '' : typeof c === 'string' && /[",\n]/.test(c) ? `"${c.replace(/"/g, '""')}"` : String(c));
-  const text = [header.join(','), ...rows.map((r) => r.map(cell).join(','))].join('\n') + '\n';
-  const url = URL.createObjectURL(new Blob([text], { type: 'text/csv' }));
-  const a = document.createElement('a');
-  a.href = url;
-  a.download = name;
-  a.click();
-  setTimeout(() => URL.revokeObjectURL(url), 1000);
-}
+export { downloadCsv } from '../csv-download';

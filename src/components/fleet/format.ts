@@ -20,19 +20,4 @@ export function sigmaBackground(z: number | null | undefined): string | undefine
   return `color-mix(in srgb, ${colour} ${pct}%, white)`;
 }
 
-/** A CSV download of rows (the numbers behind a chart, one click away). */
-export function downloadCsv(fileName: string, header: string[], rows: (string | number | null | undefined)[][]) {
-  const cell = (v: string | number | null | undefined) => {
-    const s = v === null || v === undefined ? '' : String(v);
-    return /[",\r\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
-  };
-  const text = [header, ...rows].map((r) => r.map(cell).join(',')).join('\r\n') + '\r\n';
-  const url = URL.createObjectURL(new Blob([text], { type: 'text/csv' }));
-  const a = document.createElement('a');
-  a.href = url;
-  a.download = fileName;
-  document.body.appendChild(a);
-  a.click();
-  a.remove();
-  setTimeout(() => URL.revokeObjectURL(url), 1000);
-}
+export { downloadCsv } from '../csv-download';

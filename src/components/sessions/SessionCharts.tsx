@@ -1,5 +1,6 @@
 import { useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Legend, ReferenceLine, ResponsiveContainer, Scatter, ScatterChart, Tooltip, XAxis, YAxis } from 'recharts';
+import { downloadCsv } from '../csv-download';
 
 export interface ChartPoint {
   label: string;
@@ -27,15 +28,6 @@ const ACCENT = '#0f6e6e';
 const NOMINAL = '#8a94a6';
 const mm = (v: number) => v.toFixed(3);
 
-function downloadCsv(name: string, header: string[], rows: (string | number)[][]) {
-  const text = [header.join(','), ...rows.map((r) => r.map((c) => (typeof c === 'string' && /[",\n]/.test(c) ? `"${c.replace(/"/g, '""')}"` : String(c))).join(','))].join('\n') + '\n';
-  const url = URL.createObjectURL(new Blob([text], { type: 'text/csv' }));
-  const a = document.createElement('a');
-  a.href = url;
-  a.download = name;
-  a.click();
-  setTimeout(() => URL.revokeObjectURL(url), 1000);
-}
 
 function NumbersToggle({ shown, onToggle, onCsv, what }: { shown: boolean; onToggle: () => void; onCsv: () => void; what: string }) {
   return (
