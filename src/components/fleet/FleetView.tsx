@@ -213,6 +213,8 @@ export default function FleetView({ modelName, parameters, units, outside, posit
         <p className="text-sm text-ink-soft">
           A unit is out of limits when its deviation lies outside mean ± 3σ of the <em>other</em> units (sample σ, n − 1). With the unit
           itself included, no unit of a fleet of ten or fewer could ever leave ±3σ (Samuelson's inequality), so small fleets are judged this way.
+          With few units σ itself is uncertain: across a few dozen parameters, expect the odd flag by chance, and look for units flagged on
+          several parameters or again after the next calibration.
         </p>
       </section>
 
