@@ -30,10 +30,33 @@ export type PublicUser = ReturnType<typeof publicUser>;
 
 export const normaliseEmail = (e: string) => e.trim().toLowerCase();
 
+/**
+ * The two lookups every request makes (session user, bearer token), prepared once per database handle: the
+ * query is built once and PostgreSQL keeps its plan. Only the columns the checks need are read.
+ */
+const preparedByDb = new WeakMap<Db, ReturnType<typeof prepare>>();
+function prepare(database: Db) {
+  const person = { id: users.id, email: users.email, name: users.name, roles: users.roles, active: users.active, isDemo: users.isDemo };
+  return {
+    userById: database.select(person).from(users).where(eq(users.id, sql.placeholder('id'))).prepare('offsetry_user_by_id'),
+    tokenUser: database
+      .select({ t: { id: apiTokens.id, lastUsedAt: apiTokens.lastUsedAt }, u: person })
+      .from(apiTokens)
+      .innerJoin(users, eq(users.id, apiTokens.userId))
+      .where(and(eq(apiTokens.tokenHash, sql.placeholder('hash')), isNull(apiTokens.revokedAt)))
+      .prepare('offsetry_token_user'),
+  };
+}
+function prepared(database: Db) {
+  let p = preparedByDb.get(database);
+  if (!p) preparedByDb.set(database, (p = prepare(database)));
+  return p;
+}
+
 /** The user behind a session, re-read on every request so deactivation and role changes act at once. */
 export async function activeUserById(id: string, database: Db = sharedDb()): Promise<CurrentUser | undefined> {
   if (!z.uuid().safeParse(id).success) return undefined;
-  const [u] = await database.select().from(users).where(eq(users.id, id));
+  const [u] = await prepared(database).userById.execute({ id });
   if (!u || !u.active) return undefined;
   if (u.isDemo && config().OFFSETRY_MODE === 'production') return undefined;
   return { id: u.id, email: u.email, name: u.name, roles: u.roles, via: 'session' };
@@ -224,11 +247,7 @@ export async function revokeApiToken(userId: string, id: string, database: Db = 
 
 /** The active user behind a bearer token, or undefined for unknown / revoked tokens and inactive users. */
 export async function userByBearer(token: string, database: Db = sharedDb()): Promise<CurrentUser | undefined> {
-  const [row] = await database
-    .select({ t: apiTokens, u: users })
-    .from(apiTokens)
-    .innerJoin(users, eq(users.id, apiTokens.userId))
-    .where(and(eq(apiTokens.tokenHash, sha256(token)), isNull(apiTokens.revokedAt)));
+  const [row] = await prepared(database).tokenUser.execute({ hash: sha256(token) });
   if (!row || !row.u.active) return undefined;
   if (row.u.isDemo && config().OFFSETRY_MODE === 'production') return undefined;
   // Record use at most once a minute, so a busy script costs one read per request, not a write too.
