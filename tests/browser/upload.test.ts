@@ -8,7 +8,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { armModelRevisions, armModels, units } from '../../src/db/schema';
 import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb } from '../../src/lib/server/db';
-import { launchBrowser, signInPage, trackExternalRequests } from '../support/browser';
+import { islandsHydrated, launchBrowser, signInPage, trackExternalRequests } from '../support/browser';
 import { BASE_URL, DEMO, uniq } from '../support/http';
 import { serviceEnv } from '../support/services';
 
@@ -96,6 +96,27 @@ describe('session upload in the browser', () => {
     await page.locator('[data-override] input[type=checkbox]').check();
     await Promise.all([page.waitForURL(/\/sessions\/[0-9a-f-]{36}$/, { timeout: 30_000 }), again.click()]);
     await expect(page.locator('.notice-attention').first().textContent()).resolves.toMatch(/outside-limits override/);
+    await context.close();
+  });
+
+  it('keeps a file chosen before the form finished loading', async () => {
+    const context = await browser.newContext({ viewport: { width: 768, height: 1024 } });
+    const page = await context.newPage();
+    await signInPage(page, DEMO.technician);
+    // Hold back the upload island's script, as a slow connection in the cell would.
+    let release!: () => void;
+    const held = new Promise<void>((r) => (release = r));
+    await page.route(/\/_astro\/UploadForm[^/]*\.js$/, async (route) => {
+      await held;
+      await route.continue();
+    });
+    await page.goto(`${BASE_URL}/sessions/new?unit=${serial}`, { waitUntil: 'domcontentloaded' });
+    await page.locator('[data-file-input]').setInputFiles({ name: 'early.csv', mimeType: 'text/csv', buffer: goodFile });
+    expect(await page.locator('astro-island[ssr]').count()).toBeGreaterThan(0);
+    release();
+    await islandsHydrated(page);
+    const button = page.getByRole('button', { name: 'Upload session' });
+    await expect(button.isEnabled()).resolves.toBe(true);
     await context.close();
   });
 });

@@ -38,3 +38,8 @@ export async function signInPage(page: Page, email: string, password = DEMO_PASS
   await page.getByLabel('Password').fill(password);
   await Promise.all([page.waitForURL((u) => !u.pathname.startsWith('/signin'), { timeout: 20_000 }), page.getByRole('button', { name: 'Sign in' }).click()]);
 }
+
+/** Wait until every island on the page is hydrated (Astro drops the `ssr` attribute when one is). */
+export async function islandsHydrated(page: Page, timeout = 20_000) {
+  await page.waitForFunction(() => document.querySelectorAll('astro-island[ssr]').length === 0, undefined, { timeout });
+}

@@ -1,4 +1,4 @@
-import { useRef, useState } from 'react';
+import { useEffect, useRef, useState } from 'react';
 import { useDropzone } from 'react-dropzone';
 
 interface Problem {
@@ -63,7 +63,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
   const [override, setOverride] = useState(false);
   const formRef = useRef<HTMLFormElement>(null);
 
-  const { getRootProps, getInputProps, isDragActive } = useDropzone({
+  const { getRootProps, getInputProps, isDragActive, inputRef } = useDropzone({
     multiple: false,
     // No type filter here: the server reads the content and says precisely what is wrong with a non-CSV file.
     onDrop: (accepted) => {
@@ -74,6 +74,12 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
       }
     },
   });
+
+  // A file chosen before the page finished loading (a slow tablet in the cell) is taken on hydration.
+  useEffect(() => {
+    const early = inputRef.current?.files?.[0];
+    if (early) setFile((current) => current ?? early);
+  }, [inputRef]);
 
   function finish(status: number, parsed: Refusal & { url?: string }) {
     if (status === 201 && parsed.url) {
