@@ -19,6 +19,7 @@ import { fitSession, registerBase, writeBase } from '../src/lib/engine/fit';
 import { compileArm, createArmData, forwardKinematics, setParameters } from '../src/lib/engine/kinematics';
 import { pointJacobian, poseBuffers, predictPoints } from '../src/lib/engine/jacobian';
 import type { ArmGeometry, SessionPose } from '../src/lib/engine/types';
+import { seededRandom } from '../src/lib/engine/workspace';
 
 const quick = process.argv.includes('--quick');
 const SIZES = quick ? [60, 500, 5000] : [60, 500, 5000, 20000];
@@ -37,16 +38,7 @@ const nominal: ArmGeometry = {
   tool: { x: 12, y: -8, z: 135, rx: 0, ry: 0, rz: 0 },
 };
 
-function random(seed: number) {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+const random = seededRandom;
 
 function truthArm(): ArmGeometry {
   const r = random(7);

@@ -16,6 +16,7 @@ import { parseSessionCsv, sessionToCsv } from '../src/lib/engine/session-csv';
 import type { ArmGeometry, FrameSpec, SessionPose } from '../src/lib/engine/types';
 import type { Db } from '../src/lib/server/db';
 import { storeSession } from '../src/lib/server/sessions';
+import { seededRandom } from '../src/lib/engine/workspace';
 
 export const DEMO_COMPANY = 'Larkspur Cell Services';
 
@@ -95,16 +96,9 @@ export const UNITS: DemoUnit[] = [
 const TECHNICIANS = ['Tomás Reyes', 'Aiyana Brook', 'Jonas Feld'];
 const TRACKERS = ['tracker LT-07', 'tracker LT-11'];
 
-/** Mulberry32: a small seeded generator, so the same scenario (and the same file hashes) comes out each run. */
+/** The engine's seeded generator, so the same scenario (and the same file hashes) comes out each run. */
 function rng(seed: number) {
-  let s = seed >>> 0;
-  const next = () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
+  const next = seededRandom(seed);
   // Box–Muller for normal deviates.
   const normal = () => Math.sqrt(-2 * Math.log(1 - next())) * Math.cos(2 * Math.PI * next());
   return { next, normal, between: (a: number, b: number) => a + (b - a) * next() };

@@ -4,18 +4,10 @@
  */
 import type { ArmGeometry, SessionPose } from '../../src/lib/engine/types';
 import { forwardPoint } from '../../src/lib/engine/kinematics';
+import { seededRandom } from '../../src/lib/engine/workspace';
 
-/** Seeded uniform generator (mulberry32), so every test run sees the same data. */
-export function rng(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** Seeded uniform generator (the engine's mulberry32), so every test run sees the same data. */
+export const rng = seededRandom;
 
 export function gaussian(r: () => number): number {
   // Box–Muller.

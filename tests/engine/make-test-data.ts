@@ -14,21 +14,13 @@ import { forwardPoint } from '../../src/lib/engine/kinematics';
 import { serializeGeometry } from '../../src/lib/engine/geometry';
 import { sessionToCsv } from '../../src/lib/engine/session-csv';
 import type { ArmGeometry, SessionPose } from '../../src/lib/engine/types';
+import { seededRandom } from '../../src/lib/engine/workspace';
 
 export const ROOT = join(dirname(fileURLToPath(import.meta.url)), '..', '..', 'test-data');
 export const NOISE_MM = 0.02;
 
-/** Seeded uniform generator (mulberry32). */
-function rng(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** Seeded uniform generator (the engine's mulberry32). */
+const rng = seededRandom;
 function gauss(r: () => number): number {
   return Math.sqrt(-2 * Math.log(Math.max(r(), 1e-300))) * Math.cos(2 * Math.PI * r()); // Box–Muller
 }

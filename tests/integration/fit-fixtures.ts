@@ -10,6 +10,7 @@ import { forwardPoint } from '../../src/lib/engine/kinematics';
 import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb, type Db } from '../../src/lib/server/db';
 import { uniq } from '../support/http';
+import { seededRandom } from '../../src/lib/engine/workspace';
 
 let shared: Db | undefined;
 export function testDb(): Db {
@@ -58,17 +59,8 @@ export function trueTq6(): ArmGeometry {
   return g;
 }
 
-function rng(seed: number) {
-  // mulberry32 (public domain), seeded so each fixture is reproducible.
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+// The engine's seeded generator, so each fixture is reproducible.
+const rng = seededRandom;
 
 export interface Fixture {
   modelId: string;
