@@ -1,15 +1,6 @@
 import { useEffect, useState } from 'react';
+import type { PoseSetQuality as Quality } from '../../lib/engine/planner';
 import { api, type ApiError } from '../../lib/shared/api-client';
-
-interface Quality {
-  O1: number;
-  O3: number;
-  O4: number;
-  conditionNumber: number;
-  identifiable: number;
-  parameterCount: number;
-  warnings: string[];
-}
 
 interface Plan {
   count: number;

@@ -17,7 +17,7 @@ import type { Readable } from 'node:stream';
 import { z } from 'zod';
 import { armModelRevisions, armModels, sessionPoses as poseRows, sessions, units, users } from '../../db/schema';
 import { checkGeometry } from '../engine/fit';
-import { poseSetQuality } from '../engine/planner';
+import { poseSetQuality, type PoseSetQuality } from '../engine/planner';
 import { parseSessionCsv, type ParsedSession } from '../engine/session-csv';
 import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine/types';
 import { audit } from './audit';
@@ -869,15 +869,8 @@ export async function sessionCheck(id: string, database: Db = sharedDb()): Promi
   }
 }
 
-export interface SessionQuality {
-  O1: number;
-  O3: number;
-  O4: number;
-  conditionNumber: number;
-  identifiable: number;
-  parameterCount: number;
+export interface SessionQuality extends PoseSetQuality {
   poseCount: number;
-  warnings: string[];
   /** True when the engine warned: too few or poorly spread poses. */
   poor: boolean;
 }
