@@ -116,7 +116,8 @@ describe('session upload in the browser', () => {
     release();
     await islandsHydrated(page);
     const button = page.getByRole('button', { name: 'Upload session' });
-    await expect(button.isEnabled()).resolves.toBe(true);
+    // The island takes the early file in an effect after hydrating: give that render a moment.
+    await expect.poll(() => button.isEnabled(), { timeout: 10_000 }).toBe(true);
     await context.close();
   });
 });
