@@ -8,6 +8,9 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { launchBrowser, signInPage, trackExternalRequests } from '../support/browser';
 import { BASE_URL, DEMO, uniq } from '../support/http';
 
+// vitest's expect.poll gives up after 1 s; a server round trip under the parallel suite can take longer.
+const POLL = { timeout: 15_000 };
+
 let browser: Browser;
 beforeAll(async () => {
   browser = await launchBrowser();
@@ -37,13 +40,13 @@ describe('arm model form, unit registration, pose plan, unit list', () => {
     const toolZ = () => page.locator('[data-chain-table] tbody tr').last().locator('td').nth(3).textContent();
     const before = Number(await toolZ());
     await page.locator('[data-field="joints[2].a"]').fill('520');
-    await expect.poll(async () => Number(await toolZ()) - before).toBeCloseTo(50, 6);
+    await expect.poll(async () => Number(await toolZ()) - before, POLL).toBeCloseTo(50, 6);
 
     // A typo is flagged beside its field and the save is refused until it is fixed.
     await page.locator('[data-field="joints[1].alpha"]').fill('-9O');
     await page.locator('[data-field="joints[1].alpha"]').blur();
     const alphaCell = page.locator('[data-joint-row="1"] td').nth(4);
-    await expect.poll(() => alphaCell.textContent()).toContain('alpha (deg) must be a number');
+    await expect.poll(() => alphaCell.textContent(), POLL).toContain('alpha (deg) must be a number');
     await page.getByRole('button', { name: 'Create arm model' }).click();
     expect(new URL(page.url()).pathname).toBe('/arm-models/new');
     await page.locator('[data-field="joints[1].alpha"]').fill('-90');
@@ -112,10 +115,10 @@ describe('arm model form, unit registration, pose plan, unit list', () => {
     const serials = () => page.locator('[data-unit-row]').evaluateAll((rs) => rs.map((r) => r.getAttribute('data-unit-row')));
     expect(await serials()).toEqual([`${tag}-1`, `${tag}-2`, `${tag}-3`]);
     await page.locator('[data-sort="serial"]').click();
-    await expect.poll(serials).toEqual([`${tag}-3`, `${tag}-2`, `${tag}-1`]);
+    await expect.poll(serials, POLL).toEqual([`${tag}-3`, `${tag}-2`, `${tag}-1`]);
     expect(new URL(page.url()).searchParams.get('dir')).toBe('desc');
     await page.locator('[data-units-search]').fill(`${tag}-2`);
-    await expect.poll(serials).toEqual([`${tag}-2`]);
+    await expect.poll(serials, POLL).toEqual([`${tag}-2`]);
     expect(await page.locator('[data-units-count]').textContent()).toBe('1–1 of 1');
     await ctx.close();
   });
