@@ -36,7 +36,11 @@ afterAll(async () => {
   await db.$client.end();
 });
 
-/** A multipart body whose second half is held back until `release` resolves. */
+/**
+ * A multipart body whose second half is held back until `release` resolves. `firstHalfSent` resolves when the
+ * request has taken the head and the first half of the file and asks for more (the stream has no buffer of its
+ * own: highWaterMark 0), i.e. when that part has been handed to the connection.
+ */
 function slowMultipart(release: Promise<void>) {
   const boundary = '----offsetry-fault-' + Math.random().toString(36).slice(2);
   const field = (name: string, value: string) => `--${boundary}\r\ncontent-disposition: form-data; name="${name}"\r\n\r\n${value}\r\n`;
@@ -48,17 +52,24 @@ function slowMultipart(release: Promise<void>) {
   );
   const tail = new TextEncoder().encode(`\r\n--${boundary}--\r\n`);
   const half = Math.floor(csv.length / 2);
-  const body = new ReadableStream<Uint8Array>({
-    async start(controller) {
-      controller.enqueue(head);
-      controller.enqueue(csv.subarray(0, half));
-      await release;
-      controller.enqueue(csv.subarray(half));
-      controller.enqueue(tail);
-      controller.close();
+  let sent!: () => void;
+  const firstHalfSent = new Promise<void>((r) => (sent = r));
+  const parts = [head, csv.subarray(0, half)];
+  const body = new ReadableStream<Uint8Array>(
+    {
+      async pull(controller) {
+        const next = parts.shift();
+        if (next) return controller.enqueue(next);
+        sent();
+        await release;
+        controller.enqueue(csv.subarray(half));
+        controller.enqueue(tail);
+        controller.close();
+      },
     },
-  });
-  return { body, contentType: `multipart/form-data; boundary=${boundary}` };
+    { highWaterMark: 0 },
+  );
+  return { body, firstHalfSent, contentType: `multipart/form-data; boundary=${boundary}` };
 }
 
 async function leftovers() {
@@ -71,10 +82,10 @@ describe('S3 stopped during an upload', () => {
   it('answers 503 with a clear message, stores nothing, and the retry succeeds', async () => {
     let release!: () => void;
     const gate = new Promise<void>((r) => (release = r));
-    const { body, contentType } = slowMultipart(gate);
+    const { body, firstHalfSent, contentType } = slowMultipart(gate);
     const pending = tech.json<any>('/api/sessions', { method: 'POST', body, headers: { 'content-type': contentType }, duplex: 'half' } as RequestInit);
     // Half of the file is on its way; now the store goes away, then the rest of the file arrives.
-    await new Promise((r) => setTimeout(r, 300));
+    await firstHalfSent;
     await stopS3();
     release();
     const refused = await pending;
