@@ -14,7 +14,9 @@
  *     rejected ones multiply it by ν (ν doubling);
  *   - stop when the scaled gradient ‖D⁻¹g‖∞ / ‖r‖ ≤ gradientTolerance (MINPACK's gtol: cosine between the
  *     residual and every column), the relative cost reduction ≤ costTolerance, the scaled step
- *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance), no step lowers the cost, or maxIterations; and, when
+ *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance) (these are "converged"), or — "not converged", with the
+ *     reason — no step lowers the cost up to λ = 1e16, the normal equations cannot be factorised (or are
+ *     non-finite) at any damping, or maxIterations; and, when
  *     the residual degrees of freedom are given, once the Gauss–Newton step would move no parameter by
  *     more than `significance` (default 1 %) of its standard error;
  *   - without reweighting, a trial point's normal equations come from the same pass as its cost;
@@ -149,6 +151,11 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       const dj = Math.sqrt(Math.max(A[i * p + i], 0));
       if (dj > D[i]) D[i] = dj;
     }
+    // Non-finite normal equations (NaN in the data or the model) would pass the gradient test below
+    // vacuously: they end the solve as singular, never as converged.
+    let finite = Number.isFinite(cost);
+    for (let i = 0; i < p && finite; i++) finite = Number.isFinite(g[i]) && Number.isFinite(A[i * p + i]);
+    if (!finite) { stop = 'singular'; break; }
     let gmax = 0;
     const rnorm = Math.sqrt(2 * cost);
     for (let i = 0; i < p; i++) if (D[i] > 0) gmax = Math.max(gmax, Math.abs(g[i]) / D[i]);
