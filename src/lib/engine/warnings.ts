@@ -119,6 +119,23 @@ export const SPAN_FRACTION = 0.25;
 export const CONDITION_LIMIT = 1000;
 /** A length standard error above max(this, 2 × noise) mm is too large for a calibration. */
 export const LENGTH_SE_LIMIT_MM = 0.05;
+/** More strongly correlated pairs than this make the correlation note a warning (up to it: information). */
+export const CORRELATED_PAIRS_LIMIT = 3;
+
+/**
+ * Reach (mm) over which an angle parameter moves the tool point: the links from its joint to the end
+ * plus the tool offset (Σ |a| + |d| of that joint and the later ones + |tool|), at least 50 mm; the
+ * whole arm's characteristic length for the base.
+ */
+export function leverArm(g: ArmGeometry, key: string, characteristicLength: number): number {
+  const m = /^J(\d+)\./.exec(key);
+  if (!m) return characteristicLength;
+  let L = 0;
+  for (let k = Number(m[1]) - 1; k < g.joints.length; k++) L += Math.abs(g.joints[k].a) + Math.abs(g.joints[k].d);
+  const t = g.tool;
+  if (t) L += Math.hypot(t.x, t.y, t.z);
+  return Math.max(L, 50);
+}
 
 /**
  * Excitation warnings. Rules (each stated in its message):
@@ -126,9 +143,9 @@ export const LENGTH_SE_LIMIT_MM = 0.05;
  *   - condition number above 1000 (common practice treats 100–1000 as the edge of a well-posed calibration;
  *     from memory);
  *   - a length standard error above Lₘ = max(0.05 mm, 2 × noise), or an angle standard error above
- *     Lₘ / L rad with L the characteristic length of the arm (the angle moves the far end by Lₘ): the
- *     limits are specific to the arm's size and the instrument;
- *   - any pair of identified parameters with |r| > 0.95.
+ *     Lₘ / R rad with R the reach of the links after the angle's joint (leverArm: the angle then moves
+ *     the tool point by Lₘ): the limits are specific to the arm's geometry and the instrument;
+ *   - pairs of identified parameters with |r| > 0.95: information up to 3 pairs, a warning above.
  */
 export function excitationWarnings(x: ExcitationInput): FitWarning[] {
   const out: FitWarning[] = [];
@@ -163,21 +180,22 @@ export function excitationWarnings(x: ExcitationInput): FitWarning[] {
     });
   }
   const lengthLimit = Math.max(LENGTH_SE_LIMIT_MM, 2 * x.noiseMm);
-  const angleLimitDeg = lengthLimit / x.characteristicLength / DEG;
-  const big = x.parameters.filter((p) => p.standardError !== null && (p.unit === 'mm' ? p.standardError > lengthLimit : p.standardError > angleLimitDeg));
+  const limitOf = (p: { key: string; unit: 'mm' | 'deg' }) => (p.unit === 'mm' ? lengthLimit : lengthLimit / leverArm(g, p.key, x.characteristicLength) / DEG);
+  const big = x.parameters.filter((p) => p.standardError !== null && p.standardError > limitOf(p));
   if (big.length) {
-    const worst = big.slice().sort((a, b) => (b.standardError! / (b.unit === 'mm' ? lengthLimit : angleLimitDeg)) - (a.standardError! / (a.unit === 'mm' ? lengthLimit : angleLimitDeg)));
-    const shown = worst.slice(0, 6).map((p) => `${p.key} ± ${p.unit === 'mm' ? `${p.standardError!.toFixed(3)} mm` : `${p.standardError!.toFixed(4)}°`}`);
+    const worst = big.slice().sort((a, b) => b.standardError! / limitOf(b) - a.standardError! / limitOf(a));
+    const shown = worst.slice(0, 6).map((p) => `${p.key} ± ${p.unit === 'mm' ? `${p.standardError!.toFixed(3)} mm` : `${p.standardError!.toFixed(4)}° (limit ${limitOf(p).toFixed(4)}°)`}`);
     out.push({
       code: 'large-standard-errors', severity: 'warning', subjects: big.map((p) => p.key),
-      message: `${big.length} standard error${big.length === 1 ? ' is' : 's are'} above this arm's limits (rule: lengths above ${lengthLimit.toFixed(3)} mm, angles above ${angleLimitDeg.toFixed(4)}°, which moves the far end of a ${x.characteristicLength.toFixed(0)} mm arm by ${lengthLimit.toFixed(3)} mm): ${shown.join(', ')}${big.length > 6 ? ', …' : ''}.`,
+      message: `${big.length} standard error${big.length === 1 ? ' is' : 's are'} above this arm's limits (rule: lengths above ${lengthLimit.toFixed(3)} mm; an angle above the one that moves the tool point by ${lengthLimit.toFixed(3)} mm at the reach of the links after it): ${shown.join(', ')}${big.length > 6 ? ', …' : ''}.`,
       advice: `These parameters are poorly determined by the poses. ${still.length ? `Move ${still.join(', ')} more; ` : ''}add poses that vary the joints these parameters belong to. ${plan}`,
     });
   }
   if (x.highCorrelations.length) {
+    // A few pairs are normal (e.g. a wrist link's offset and length with a short tool); many are not.
     const shown = x.highCorrelations.slice(0, 5).map((h) => `${h.a}/${h.b} (r = ${h.r.toFixed(3)})`);
     out.push({
-      code: 'correlated-parameters', severity: x.highCorrelations.length > 3 ? 'warning' : 'info',
+      code: 'correlated-parameters', severity: x.highCorrelations.length > CORRELATED_PAIRS_LIMIT ? 'warning' : 'info',
       subjects: [...new Set(x.highCorrelations.flatMap((h) => [h.a, h.b]))],
       message: `${x.highCorrelations.length} pair${x.highCorrelations.length === 1 ? ' of parameters is' : 's of parameters are'} strongly correlated (rule: |r| > 0.95): ${shown.join(', ')}${x.highCorrelations.length > 5 ? ', …' : ''}. The poses hardly tell each pair apart, so errors in one are taken up by the other.`,
       advice: `Vary the joints these parameters belong to more independently of each other. ${plan}`,
