@@ -124,6 +124,7 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
   const b = new Float64Array(p);
   const ds = new Float64Array(p);
   const step = new Float64Array(p);
+  const retract = problem.retract?.bind(problem);
   const evaluations = { cost: 0, normal: 0 };
   const iterations: LmIteration[] = [];
   const report = (it: LmIteration) => {
@@ -212,7 +213,7 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
         predicted += b[i] * s + lambda * s * s;
       }
       predicted *= 0.5;
-      if (problem.retract) problem.retract(x, step, xn);
+      if (retract) retract(x, step, xn);
       const stepNorm = Math.sqrt(stepScaled2);
       let costN: number;
       if (fused) {
