@@ -41,6 +41,10 @@ export async function runFit(args: string[], io: Io): Promise<number> {
       report: { type: 'string' },
       holdout: { type: 'string' },
       seed: { type: 'string' },
+      loss: { type: 'string' },
+      'loss-scale-mm': { type: 'string' },
+      exclude: { type: 'string', multiple: true },
+      'noise-mm': { type: 'string' },
       'allow-outside-limits': { type: 'boolean' },
     },
     FIT_USAGE,
@@ -50,6 +54,12 @@ export async function runFit(args: string[], io: Io): Promise<number> {
   const outPath = required(o.out, '--out', FIT_USAGE);
   const holdout = numberOption(o.holdout, '--holdout', (v) => v >= 0 && v <= 0.9, 'a fraction from 0 to 0.9') ?? 0.2;
   const seed = numberOption(o.seed, '--seed', (v) => Number.isInteger(v), 'an integer') ?? 1;
+  const loss = o.loss === undefined ? 'none' : String(o.loss);
+  if (!['none', 'huber', 'cauchy'].includes(loss)) throw new CliError(`--loss: "${loss}" is not valid (expected huber, cauchy or none)\n\n${FIT_USAGE}`, 2);
+  const lossScale = numberOption(o['loss-scale-mm'], '--loss-scale-mm', (v) => v > 0, 'a positive length in mm');
+  if (lossScale !== undefined && loss === 'none') throw new CliError('--loss-scale-mm needs --loss huber or --loss cauchy', 2);
+  const noiseMm = numberOption(o['noise-mm'], '--noise-mm', (v) => v > 0, 'a positive length in mm (1 σ per coordinate)');
+  const exclude = parseExclude(o.exclude as string[] | undefined);
   const outFull = checkOutputPath(outPath, '--out');
   const reportFull = typeof o.report === 'string' ? checkOutputPath(o.report, '--report') : undefined;
   if (reportFull && reportFull === outFull) throw new CliError('--out and --report name the same file', 2);
@@ -62,7 +72,11 @@ export async function runFit(args: string[], io: Io): Promise<number> {
 
   let report: FitCliReport;
   try {
-    report = fitSession(nominal, session.poses, { holdout, seed, useSplitColumn: true });
+    report = fitSession(nominal, session.poses, {
+      holdout, seed, useSplitColumn: true, robust: loss as 'none' | 'huber' | 'cauchy', exclude,
+      ...(lossScale !== undefined ? { robustScaleMm: lossScale } : {}),
+      ...(noiseMm !== undefined ? { noiseMm } : {}),
+    });
   } catch (e) {
     if (e instanceof EngineInputError) {
       throw new CliError(problemsMessage(`cannot fit ${modelPath} to ${dataPath}:`, e.problems.map((p) => ({ ...p, file: p.file ?? dataPath }))));
@@ -80,6 +94,32 @@ export async function runFit(args: string[], io: Io): Promise<number> {
   for (const line of fitSummary(report, { modelPath, dataPath, hasSplit: session.hasSplit, holdout })) io.out(line);
   io.out(`Wrote ${outPath}${o.report ? ` and ${o.report}` : ''} (total ${ms(performance.now() - started)}).`);
   return EXIT_OK;
+}
+
+/** --exclude P12,P30 (repeatable): pose labels or line:N, comma-separated. */
+function parseExclude(values: string[] | undefined): string[] {
+  const out: string[] = [];
+  for (const v of values ?? []) {
+    for (const part of v.split(',')) {
+      const label = part.trim();
+      if (!label) throw new CliError(`--exclude: "${v}" has an empty pose label (expected labels or line:N, comma-separated)`, 2);
+      out.push(label);
+    }
+  }
+  return [...new Set(out)];
+}
+
+/** Structured notes ({ code, severity, message, advice }): the engine's warnings, or any verdicts beside them. */
+export interface NoteLike { code: string; severity: string; message: string; advice?: string }
+
+export function noteLines(title: string, notes: NoteLike[]): string[] {
+  if (!notes.length) return [];
+  const lines = [`${title}:`];
+  for (const w of notes) {
+    lines.push(`  [${w.severity}] ${w.message}`);
+    if (w.advice) lines.push(`      → ${w.advice}`);
+  }
+  return lines;
 }
 
 export function fitSummary(r: FitCliReport, ctx: { modelPath: string; dataPath: string; hasSplit: boolean; holdout: number }): string[] {
@@ -103,6 +143,13 @@ export function fitSummary(r: FitCliReport, ctx: { modelPath: string; dataPath: 
   if (r.highCorrelations.length) lines.push(`Strongly correlated pairs (|r| > 0.95): ${r.highCorrelations.map((c) => `${c.a}/${c.b} ${c.r.toFixed(3)}`).join(', ')}`);
   if (r.outliers.length) lines.push(`Outliers (standardised residual above threshold): ${r.outliers.join(', ')}`);
   lines.push(`Iterations: ${r.iterations.length}${r.converged ? '' : ' (NOT converged)'}: ${r.stopReason}; condition number ${r.observability.conditionNumber.toExponential(2)}.`);
+  const o = r.options;
+  lines.push(`Loss: ${o.robust === 'none' ? 'least squares' : `${o.robust} (scale ${mm(o.robustScaleMm)})`}; instrument noise ${mm(o.noiseMm)} per coordinate; residual σ ${mm(r.residualSigmaMm)}.`);
+  lines.push(`Standard errors: ${r.uncertaintyNote}`);
+  lines.push(...noteLines('Warnings', r.warnings));
+  // Verdicts on the result's plausibility, when the engine provides them (kept apart from the warnings).
+  const verdicts = (r as { verdicts?: NoteLike[] }).verdicts;
+  if (Array.isArray(verdicts)) lines.push(...noteLines('Verdicts', verdicts));
   if (r.iso9283 && r.iso9283.poses.length) {
     lines.push(`ISO 9283, ${r.iso9283.poses.length} repeated poses (calibrated model as commanded position): AP ${mm(r.iso9283.ap)} (${r.iso9283.apPose}), RP ${mm(r.iso9283.rp)} (${r.iso9283.rpPose}).`);
   }

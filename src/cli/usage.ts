@@ -1,6 +1,7 @@
 /** Usage texts of the command line (kept apart so --help loads no engine code). */
 export const FIT_USAGE = `usage: offsetry fit --model NOMINAL.json --data SESSION.csv --out CALIBRATED.json
-                   [--report REPORT.json] [--holdout 0.2] [--seed 1] [--allow-outside-limits]
+                   [--report REPORT.json] [--holdout 0.2] [--seed 1] [--loss huber|cauchy]
+                   [--loss-scale-mm 0.05] [--exclude P12,P30] [--noise-mm 0.05] [--allow-outside-limits]
 
   --model      nominal arm geometry (offsetry-arm/1 JSON)
   --data       measurement session (CSV: pose,q1..qn,x,y,z[,split])
@@ -9,7 +10,14 @@ export const FIT_USAGE = `usage: offsetry fit --model NOMINAL.json --data SESSIO
   --holdout    fraction of poses held out for validation when the session has no split
                column (default 0.2; 0 = none)
   --seed       seed of the hold-out draw (default 1)
-  --allow-outside-limits   accept joint readings outside the model's limits`;
+  --loss       robust loss that down-weights gross errors: huber or cauchy (default none:
+               least squares); standard errors then use the sandwich estimator
+  --loss-scale-mm  3-D error at which the robust loss starts to down-weight (default 0.05)
+  --exclude    poses to leave out: labels (all visits) or line:N, comma-separated; repeatable
+  --noise-mm   instrument noise, mm per coordinate (1 σ; default 0.05): a residual spread
+               above twice this is reported with its likely causes
+  --allow-outside-limits   accept joint readings outside the model's limits
+  Warnings (poor excitation, residuals above the noise) are printed after the summary.`;
 
 export const CHECK_USAGE = `usage: offsetry check --model GEOMETRY.json --data SESSION.csv [--allow-outside-limits]
 

@@ -241,3 +241,56 @@ describe('offsetry plan', () => {
     expect(existsSync(out)).toBe(false);
   });
 });
+
+describe('offsetry fit: robust loss, exclusions, instrument noise and warnings', () => {
+  it('--loss huber --exclude P12,P30 --noise-mm 0.02: excluded poses, sandwich note, noise in the summary and report', async () => {
+    const out = join(dir, 'robust.json'), rep = join(dir, 'robust-report.json');
+    const r = await offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--report', rep, '--loss', 'huber', '--exclude', 'P12,P30', '--noise-mm', '0.02']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/, 2 excluded\./);
+    expect(r.stdout).toMatch(/Loss: huber \(scale 0\.050 mm\); instrument noise 0\.020 mm per coordinate/);
+    expect(r.stdout).toContain('sandwich estimator');
+    expect(r.stdout).toMatch(/conditional on the \d+ parameters? held at nominal/);
+    const report = JSON.parse(readFileSync(rep, 'utf8'));
+    expect(report.options).toMatchObject({ robust: 'huber', exclude: ['P12', 'P30'], noiseMm: 0.02 });
+    expect(report.poses.filter((p: { role: string }) => p.role === 'excluded').map((p: { label: string }) => p.label)).toEqual(['P12', 'P30']);
+    expect(Array.isArray(report.warnings)).toBe(true);
+  });
+
+  it('a session where every joint moves only ±15° prints warnings naming the joints and the pose planner', async () => {
+    const { forwardPoint } = await import('../../src/lib/engine/kinematics');
+    const truth = parseGeometry(readFileSync(join(ROOT, 'vx-620-true.json'), 'utf8'), 'vx-620-true.json');
+    let seed = 7;
+    const r01 = () => ((seed = (seed * 16807) % 2147483647) / 2147483647);
+    const rows = ['pose,' + truth.joints.map((_, k) => `q${k + 1}`).join(',') + ',x,y,z'];
+    for (let k = 0; k < 80; k++) {
+      const q = truth.joints.map((j) => ((j.min ?? -180) + (j.max ?? 180)) / 2 + 15 * (2 * r01() - 1));
+      // Tracker-like noise, 0.02 mm per coordinate (Box–Muller).
+      const p = forwardPoint(truth, q).map((v) => v + 0.02 * Math.sqrt(-2 * Math.log(r01())) * Math.cos(2 * Math.PI * r01()));
+      rows.push([`N${k + 1}`, ...q.map((v) => v.toFixed(4)), ...p.map((v) => v.toFixed(4))].join(','));
+    }
+    const session = join(dir, 'narrow.csv');
+    writeFileSync(session, rows.join('\n') + '\n');
+    const r = await offsetry(['fit', '--model', VX, '--data', session, '--out', join(dir, 'narrow.json'), '--holdout', '0']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/Warnings:\n  \[warning\] Joints barely move over the fit poses: J1 spans/);
+    expect(r.stdout).toMatch(/→ Measure again moving J1, J2, J3, J4, J5, J6 over more of their range\. The pose planner/);
+    expect(r.stdout).toMatch(/\[warning\] \d+ standard errors are above this arm's limits/);
+  });
+
+  it('bad --loss, --noise-mm or --exclude values exit 2 (usage) or 1 (unknown pose) and write nothing', async () => {
+    const out = join(dir, 'never.json');
+    const [loss, noise, empty, unknown] = await Promise.all([
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--loss', 'squared']),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--noise-mm=-0.1']),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--exclude', 'P12,,P30']),
+      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--exclude', 'P999']),
+    ]);
+    expect(loss).toMatchObject({ code: 2, stderr: expect.stringMatching(/--loss: "squared" is not valid \(expected huber, cauchy or none\)/) });
+    expect(noise).toMatchObject({ code: 2, stderr: expect.stringMatching(/--noise-mm: "-0.1" is not valid/) });
+    expect(empty).toMatchObject({ code: 2, stderr: expect.stringMatching(/--exclude: "P12,,P30" has an empty pose label/) });
+    expect(unknown.code).toBe(1);
+    expect(unknown.stderr).toMatch(/no pose labelled "P999" to exclude/);
+    expect(existsSync(out)).toBe(false);
+  });
+});

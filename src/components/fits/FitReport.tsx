@@ -3,6 +3,7 @@ import { Bar, BarChart, CartesianGrid, Legend, ResponsiveContainer, Scatter, Sca
 import type { FitReport as EngineReport, ParameterReport, PoseResidual } from '../../lib/engine/fit';
 import type { ErrorStats } from '../../lib/engine/types';
 import { api, type ApiError } from '../../lib/shared/api-client';
+import FitWarnings from './FitWarnings';
 import { byUnit, downloadCsv, FIT_STATE_LABEL, GROUP_LABEL, GROUP_ORDER, mm, REVIEW_STATE_LABEL, sci, when } from './format';
 
 /** The fit as GET /api/fits/{id} returns it (dates as ISO strings). */
@@ -428,6 +429,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
             <StatsTable report={report} />
             {report.registration.registered && <p className="mt-2 text-sm text-ink-soft">The tracker frame was registered to the robot base first (rigid fit, RMS {mm(report.registration.rmsMm)} mm); “before” uses that registered nominal.</p>}
           </section>
+          <FitWarnings report={report} />
 
           <ResidualCharts poses={report.poses} fileBase={fileBase} />
           <ParameterTable parameters={report.parameters} fileBase={fileBase} />

@@ -12,12 +12,16 @@ import {
   accumulateNormalEquations, normalWork, pointJacobian, poseBuffers, predictPoints, symmetrize, type NormalWork, type PoseBuffers,
 } from './jacobian';
 import {
-  candidateParameters, characteristicLength, fromReportUnit, readFrame, toReportUnit, vectorToGeometry, type ParameterInfo,
+  DEG, candidateParameters, characteristicLength, fromReportUnit, readFrame, toReportUnit, vectorToGeometry, type ParameterInfo,
 } from './parameters';
 import { kabsch, transformToFrame } from './registration';
-import { levenbergMarquardt, robustWeight, type LeastSquaresProblem } from './lm';
+import { levenbergMarquardt, robustCurvature, robustWeight, type LeastSquaresProblem } from './lm';
 import { observability, selectIdentifiable, subMatrix } from './identifiability';
-import { uncertainty } from './uncertainty';
+import { sandwichCovariance, summariseCovariance, uncertainty } from './uncertainty';
+import { incrementAngles, invert3, zyxRateMatrix } from './rotations';
+import {
+  DEFAULT_NOISE_MM, excitationWarnings, noiseWarning, parallelAxes, type FitWarning, type ParallelAxes,
+} from './warnings';
 import { errorStats } from './stats';
 import { assignRoles, kFoldAssignment, leverageFactor, standardisedResidual, type PoseRole } from './validation';
 
@@ -44,6 +48,10 @@ export interface FitOptions {
   kFold?: number;
   /** Levenberg–Marquardt iteration limit. Default 50. */
   maxIterations?: number;
+  /** Instrument noise, mm per coordinate (1 σ), for the residual-spread warning. Default 0.05 (a tracker-like value, from memory). */
+  noiseMm?: number;
+  /** Add Hayati's β to links between parallel or nearly parallel revolute axes that list none. Default true. */
+  autoBeta?: boolean;
   /** Progress callback (job runner). */
   onIteration?: (it: IterationInfo) => void;
 }
@@ -112,6 +120,17 @@ export interface FitReport {
   residualSigmaMm: number;
   /** How the base was obtained: from the nominal file, or registered (Kabsch) because the file had none. */
   registration: { registered: boolean; rmsMm: number | null };
+  /** Links between parallel or nearly parallel axes where the engine added β (absent from the nominal file). */
+  betaAdded: ParallelAxes[];
+  /** Excitation and noise warnings (plain words, with advice); empty when nothing is wrong. */
+  warnings: FitWarning[];
+  /** What the standard errors mean (method, and that they are conditional on the parameters held at nominal). */
+  uncertaintyNote: string;
+  /**
+   * Standard errors (deg) of the base orientation as small rotations about the measurement x, y, z axes
+   * (the solver's coordinates: defined at every orientation). null when the base rotation was not identified.
+   */
+  baseRotationStandardErrors: [number, number, number] | null;
   timing: { totalMs: number; registrationMs: number; identificationMs: number; uncertaintyMs: number; validationMs: number };
 }
 
@@ -136,6 +155,8 @@ export function resolveFitOptions(o: FitOptions = {}): ResolvedFitOptions {
     exclude: o.exclude ? [...o.exclude] : [],
     kFold: o.kFold ?? 0,
     maxIterations: o.maxIterations ?? 50,
+    noiseMm: o.noiseMm ?? DEFAULT_NOISE_MM,
+    autoBeta: o.autoBeta ?? true,
   };
   const problems: InputProblem[] = [];
   const bad = (column: string, message: string, expected: string) => problems.push({ column, message, expected });
@@ -145,6 +166,7 @@ export function resolveFitOptions(o: FitOptions = {}): ResolvedFitOptions {
   if (!(r.outlierThreshold > 0)) bad('outlierThreshold', `outlier threshold ${r.outlierThreshold} is not positive`, 'a positive number');
   if (!(Number.isInteger(r.kFold) && (r.kFold === 0 || r.kFold >= 2))) bad('kFold', `k-fold ${r.kFold} is not valid`, '0 (off) or an integer ≥ 2');
   if (!(Number.isInteger(r.maxIterations) && r.maxIterations >= 1)) bad('maxIterations', `iteration limit ${r.maxIterations} is not valid`, 'an integer ≥ 1');
+  if (!(r.noiseMm > 0 && Number.isFinite(r.noiseMm))) bad('noiseMm', `instrument noise ${r.noiseMm} mm is not positive`, 'a positive length in mm');
   if (!['none', 'huber', 'cauchy'].includes(r.robust)) bad('robust', `unknown robust loss "${r.robust}"`, 'none, huber or cauchy');
   for (const g of r.groups) if (!(PARAMETER_GROUPS as readonly string[]).includes(g)) bad('groups', `unknown parameter group "${g}"`, PARAMETER_GROUPS.join(', '));
   if (problems.length) throw new EngineInputError(problems);
@@ -236,6 +258,19 @@ export class ArmLeastSquares implements LeastSquaresProblem {
     symmetrize(A, this.size);
     return c;
   }
+  /**
+   * With the base rotation identified in increments (data.baseIncrements), the step's three base
+   * rotation entries are a small rotation ω about the measurement axes: B ← Exp([ω]×)·B, stored back as
+   * the file's Z-Y-X angles (rotations.ts). Every other entry adds.
+   */
+  get retract(): ((x: Float64Array, step: Float64Array, out: Float64Array) => void) | undefined {
+    const k = baseRotationPositions(this.model, this.active);
+    if (!k || !this.data.baseIncrements) return undefined;
+    return (x, step, out) => {
+      const r = incrementAngles([x[k[0]], x[k[1]], x[k[2]]], step[k[0]], step[k[1]], step[k[2]]);
+      out[k[0]] = r[0]; out[k[1]] = r[1]; out[k[2]] = r[2];
+    };
+  }
   get reweight(): ((x: Float64Array) => void) | undefined {
     if (this.robust === 'none') return undefined;
     return (x: Float64Array) => {
@@ -243,6 +278,19 @@ export class ArmLeastSquares implements LeastSquaresProblem {
       for (let i = 0; i < this.pb.count; i++) this.pb.weights[i] = this.baseWeights[i] * robustWeight(this.robust, this.errors[i], this.scale);
     };
   }
+}
+
+/** Positions in `active` of base rx, ry, rz, or null unless all three are there. */
+export function baseRotationPositions(model: ArmModel, active: ArrayLike<number>): [number, number, number] | null {
+  const b = model.layout.baseOffset;
+  const pos: number[] = [];
+  for (const f of [3, 4, 5]) {
+    let k = -1;
+    for (let i = 0; i < active.length; i++) if (active[i] === b + f) k = i;
+    if (k < 0) return null;
+    pos.push(k);
+  }
+  return pos as [number, number, number];
 }
 
 function subset(pb: PoseBuffers, n: number, idx: number[]): PoseBuffers {
@@ -314,7 +362,15 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   const fitIdx: number[] = [], holdIdx: number[] = [];
   roles.forEach((r, i) => (r === 'fit' ? fitIdx : r === 'holdout' ? holdIdx : null)?.push(i));
 
-  const model = compileArm(nominal);
+  // 0. Parallel and nearly parallel consecutive axes: the DH common normal is ill-defined there, so the
+  // link gets Hayati's β (identified like a listed one; the calibrated file carries it).
+  const parallel = parallelAxes(nominal);
+  const betaAdded = o.autoBeta && o.groups.includes('beta') ? parallel.filter((pa) => nominal.joints[pa.jointIndex].beta === undefined) : [];
+  const working: ArmGeometry = betaAdded.length
+    ? { ...nominal, joints: nominal.joints.map((j, i) => (betaAdded.some((b) => b.jointIndex === i) ? { ...j, beta: 0 } : j)) }
+    : nominal;
+
+  const model = compileArm(working);
   const data = createArmData(model);
   const n = model.n;
   const all = poseBuffers(model, poses);
@@ -338,11 +394,27 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   const tId = now();
   const candidates = candidateParameters(model.layout, o.groups);
   const pc = candidates.length;
-  const Ac = new Float64Array(pc * pc), gc = new Float64Array(pc);
   const candIdx = Int32Array.from(candidates, (c) => c.index);
-  const cost0 = accumulateNormalEquations(model, data, v0, fitPb, candIdx, Ac, gc, normalWork(pc));
-  symmetrize(Ac, pc);
-  const selection = selectIdentifiable(Ac, candidates, nominal, stillJoints(nominal, poses, fitIdx));
+  // The base orientation is solved as small rotations about the measurement axes whenever all three of
+  // its angles are candidates (any mount: wall, ceiling), as the file's angles otherwise.
+  const candidateIncrements = baseRotationPositions(model, candIdx) !== null;
+  const choose = (pb: PoseBuffers, stills: string[]) => {
+    data.baseIncrements = candidateIncrements;
+    const Ac = new Float64Array(pc * pc), gc = new Float64Array(pc);
+    const cost = accumulateNormalEquations(model, data, v0, pb, candIdx, Ac, gc, normalWork(pc));
+    symmetrize(Ac, pc);
+    const selection = selectIdentifiable(Ac, candidates, working, stills);
+    const active = Int32Array.from(selection.identified, (c) => candidates[c].index);
+    const increments = candidateIncrements && baseRotationPositions(model, active) !== null;
+    // The candidate block is the solver's first step when both use the same base coordinates.
+    const initial = increments === candidateIncrements
+      ? { A: subMatrix(Ac, pc, selection.identified), g: Float64Array.from(selection.identified, (c) => gc[c]), cost }
+      : undefined;
+    data.baseIncrements = increments;
+    return { selection, active, initial };
+  };
+  const fitStill = stillJoints(working, poses, fitIdx);
+  const { selection, active, initial } = choose(fitPb, fitStill);
   const identified = selection.identified.map((c) => candidates[c]);
   const p = identified.length;
   if (fitPb.count < p) {
@@ -352,10 +424,8 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
       expected: `at least ${p} fit poses`,
     }]);
   }
-  const active = Int32Array.from(identified, (c) => c.index);
+  const increments = data.baseIncrements;
   const iterations: IterationInfo[] = [];
-  // The identified block of the candidate normal equations is the solver's first step (same start point).
-  const initial = { A: subMatrix(Ac, pc, selection.identified), g: Float64Array.from(selection.identified, (c) => gc[c]), cost: cost0 };
   const { result, v } = identifyParameters(model, data, fitPb, v0, active, o, (it) => {
     iterations.push(it);
     options.onIteration?.(it);
@@ -369,7 +439,27 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
   const J = new Float64Array(3 * p);
   const m = 3 * fitPb.count;
   const unc = uncertainty(A, p, 2 * result.cost, m);
-  const obs = observability(A, identified, characteristicLength(nominal), fitPb.count, pc);
+  let cov = unc.covariance;
+  if (cov && o.robust !== 'none') cov = robustCovariance(model, data, v, fitPb, active, o.robust, o.robustScaleMm);
+  // Standard errors of the base orientation about the measurement axes (the solver's coordinates), then
+  // the covariance expressed in the file's angles: d(angles) = E⁻¹·ω (rotations.ts), where E is regular.
+  const basePos = increments ? baseRotationPositions(model, active) : null;
+  let baseRotationStandardErrors: [number, number, number] | null = null;
+  let baseAnglesNote = '';
+  let cal = cov;
+  if (cov && basePos) {
+    baseRotationStandardErrors = basePos.map((k) => Math.sqrt(cov![k * p + k]) / DEG) as [number, number, number];
+    const b = model.layout.baseOffset;
+    const Einv = invert3(zyxRateMatrix(v[b + 4], v[b + 5]), 1e-3);
+    if (Einv) cal = transformBlock(cov, p, basePos, Einv);
+    else {
+      cal = null;
+      baseAnglesNote = ' The base ry is within 0.06° of ±90° (a wall mount), where the file\'s angles rx and rz turn about the same axis: their standard errors are not defined, so the base orientation\'s standard errors are given about the measurement x, y, z axes instead.';
+    }
+  }
+  const summary = cal ? summariseCovariance(cal, p) : cov ? summariseCovariance(cov, p) : { standardErrors: unc.standardErrors, correlation: unc.correlation, high: unc.high };
+  const standardErrors = summary.standardErrors.map((se, k) => (!cal && cov && basePos?.includes(k) ? null : se));
+  const obs = observability(A, identified, characteristicLength(working), fitPb.count, pc);
   const uncertaintyMs = now() - tUnc;
 
   // 5. Validation: residuals before/after, standardised residuals, cross-validation.
@@ -425,10 +515,14 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
     for (let f = 0; f < o.kFold; f++) {
       const train = fitIdx.filter((_, k) => folds[k] !== f);
       const test = fitIdx.filter((_, k) => folds[k] === f);
-      if (train.length < p || test.length === 0) {
-        throw new EngineInputError([{ column: 'kFold', message: `${o.kFold}-fold cross-validation leaves ${train.length} training poses in fold ${f + 1}, fewer than the ${p} identified parameters`, expected: 'fewer folds or more poses' }]);
+      const trainPb = subset(all, n, train);
+      // The identifiability selection is repeated on the fold's training poses, so the held-out fold
+      // has no say in which parameters are identified (otherwise the estimate is optimistic).
+      const fold = choose(trainPb, stillJoints(working, poses, train));
+      if (train.length < fold.active.length || test.length === 0) {
+        throw new EngineInputError([{ column: 'kFold', message: `${o.kFold}-fold cross-validation leaves ${train.length} training poses in fold ${f + 1}, fewer than the ${fold.active.length} identifiable parameters`, expected: 'fewer folds or more poses' }]);
       }
-      const fr = identifyParameters(model, data, subset(all, n, train), v0, active, o);
+      const fr = identifyParameters(model, data, trainPb, v0, fold.active, o, undefined, fold.initial);
       const testPb = subset(all, n, test);
       const pred = new Float64Array(3 * testPb.count), e = new Float64Array(testPb.count);
       predictPoints(model, data, fr.v, testPb, pred, e);
@@ -436,12 +530,13 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
       for (const x of e) sum2 += x * x;
       count += e.length;
     }
+    data.baseIncrements = increments;
     crossValidation = { k: o.kFold, rms: Math.sqrt(sum2 / count), folds: foldStats };
   }
   const validationMs = now() - tVal;
 
   // Report.
-  const calibrated = vectorToGeometry(nominal, v);
+  const calibrated = vectorToGeometry(working, v);
   const idPos = new Map(identified.map((c, k) => [c.index, k]));
   const fixedReason = new Map(selection.fixed.map((f) => [f.fixed.info.index, f.fixed.reason]));
   const chosen = new Set(candidates.map((c) => c.index));
@@ -449,13 +544,13 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
     .filter((info) => !(info.owner === 'joint' && info.name === 'beta' && !info.defaultIdentified))
     .map((info) => {
       const k = idPos.get(info.index);
-      const se = k !== undefined ? unc.standardErrors[k] : null;
+      const se = k !== undefined ? standardErrors[k] : null;
       const nominalValue = toReportUnit(info, v0[info.index]);
       const nominalFile = info.owner === 'base' && !nominal.base ? 0 : nominalValue;
-      const cal = toReportUnit(info, v[info.index]);
+      const calValue = toReportUnit(info, v[info.index]);
       const report: ParameterReport = {
         key: info.key, name: info.name, group: info.group === 'tool-rotation' ? 'tool' : info.group, unit: info.unit,
-        nominal: nominalFile, calibrated: cal, change: cal - nominalFile,
+        nominal: nominalFile, calibrated: calValue, change: calValue - nominalFile,
         standardError: se === null || se === undefined ? null : toReportUnit(info, se),
         status: k !== undefined ? 'identified' : 'fixed',
       };
@@ -464,6 +559,44 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
       return report;
     });
   const keys = identified.map((c) => c.key);
+  const highCorrelations = summary.high.map((h) => ({ a: keys[h.a], b: keys[h.b], r: h.r }));
+  const fixedCount = parameters.filter((x) => x.status === 'fixed').length;
+  const uncertaintyNote = [
+    o.robust === 'none'
+      ? 'Standard errors are σ̂·√diag((JᵀJ)⁻¹) at the solution (linearised least squares, σ̂² = residual sum of squares / (m − p)).'
+      : `Standard errors use the sandwich estimator H⁻¹BH⁻¹·m/(m − p) for the ${o.robust} loss (Huber 1967; HC1 factor of MacKinnon & White 1985), so down-weighted poses do not make them optimistic.`,
+    `They are conditional on the ${fixedCount} parameter${fixedCount === 1 ? '' : 's'} held at nominal: those are treated as exactly known, and any error in them is not included.`,
+    baseRotationStandardErrors ? 'The base orientation is solved as small rotations about the measurement axes and converted to the file\'s Z-Y-X angles for output.' : '',
+  ].filter(Boolean).join(' ') + baseAnglesNote;
+
+  // Warnings: excitation (how well the poses determine the parameters) and noise (how well the model fits).
+  const L = characteristicLength(working);
+  const warnings: FitWarning[] = [];
+  for (const b of betaAdded) {
+    warnings.push({
+      code: 'beta-added', severity: 'info', subjects: [b.key],
+      message: `${b.reason[0].toUpperCase()}${b.reason.slice(1)}: the nominal lists no β there, and the DH common normal of (nearly) parallel axes is ill-defined (Hayati's rule).`,
+      advice: `The calibrated file carries ${b.key}; list "beta": 0 for ${nominal.joints[b.jointIndex].name} in the nominal to make this explicit.`,
+    });
+  }
+  if (!result.converged) {
+    warnings.push({ code: 'not-converged', severity: 'serious', message: `The solver did not converge: ${result.stopReason}.`, advice: 'Do not use this result. Check the nominal geometry and the session, or raise the iteration limit.' });
+  }
+  const noise = noiseWarning(unc.sigma, o.noiseMm, options.noiseMm !== undefined, parallel, (key) => {
+    const info = model.layout.byKey.get(key);
+    return info !== undefined && idPos.has(info.index);
+  });
+  if (noise) warnings.push(noise);
+  warnings.push(...excitationWarnings({
+    geometry: working,
+    q: fitIdx.map((i) => poses[i].q),
+    conditionNumber: obs.conditionNumber,
+    parameters: parameters.filter((x) => x.status === 'identified'),
+    highCorrelations,
+    characteristicLength: L,
+    noiseMm: o.noiseMm,
+  }));
+
   const report: FitReport = {
     engineVersion: ENGINE_VERSION,
     convention: nominal.convention,
@@ -471,8 +604,8 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
     nominal,
     calibrated,
     parameters,
-    correlation: { keys, matrix: unc.correlation },
-    highCorrelations: unc.high.map((h) => ({ a: keys[h.a], b: keys[h.b], r: h.r })),
+    correlation: { keys, matrix: summary.correlation },
+    highCorrelations,
     observability: obs,
     iterations,
     stopReason: result.stopReason,
@@ -486,10 +619,82 @@ export function fitSession(nominal: ArmGeometry, poses: SessionPose[], options: 
     outliers: outlierNames(poses, poseReports, roles),
     residualSigmaMm: unc.sigma,
     registration: { registered: !nominal.base, rmsMm: registrationRms },
+    betaAdded,
+    warnings,
+    uncertaintyNote,
+    baseRotationStandardErrors,
     timing: { totalMs: 0, registrationMs, identificationMs, uncertaintyMs, validationMs },
   };
   report.timing.totalMs = now() - tStart;
   return report;
+}
+
+/** T·Cov·Tᵀ where T is the identity except the 3×3 block M on the positions `pos`. */
+function transformBlock(cov: Float64Array, p: number, pos: [number, number, number], M: Float64Array): Float64Array {
+  const T = new Float64Array(p * p);
+  for (let i = 0; i < p; i++) T[i * p + i] = 1;
+  for (let r = 0; r < 3; r++) for (let c = 0; c < 3; c++) T[pos[r] * p + pos[c]] = M[3 * r + c];
+  const TC = new Float64Array(p * p), out = new Float64Array(p * p);
+  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) {
+    let s = 0;
+    for (let k = 0; k < p; k++) s += T[a * p + k] * cov[k * p + b];
+    TC[a * p + b] = s;
+  }
+  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) {
+    let s = 0;
+    for (let k = 0; k < p; k++) s += TC[a * p + k] * T[b * p + k];
+    out[a * p + b] = s;
+  }
+  return out;
+}
+
+/**
+ * Sandwich covariance (uncertainty.ts, sandwichCovariance) of a robust fit at the solution v: one pass
+ * over the fit poses accumulating the bread H = Σ J_iᵀ ∇²ρ(r_i) J_i and the meat B = Σ (J_iᵀψ_i)(J_iᵀψ_i)ᵀ.
+ * Pose weights from the session (before the robust reweighting) multiply both.
+ */
+function robustCovariance(
+  model: ArmModel, data: ArmData, v: Float64Array, pb: PoseBuffers, active: Int32Array,
+  robust: 'huber' | 'cauchy', k: number,
+): Float64Array | null {
+  const p = active.length, n = model.n;
+  const H = new Float64Array(p * p), B = new Float64Array(p * p);
+  const J = new Float64Array(3 * p), s = new Float64Array(p), hJ = new Float64Array(3 * p);
+  setParameters(model, data, v);
+  const pt = data.point, meas = pb.measured;
+  let m = 0;
+  for (let i = 0; i < pb.count; i++) {
+    forwardKinematics(model, data, pb.q, i * n, true, undefined, pb.cq, pb.sq);
+    const rx = pt[0] - meas[3 * i], ry = pt[1] - meas[3 * i + 1], rz = pt[2] - meas[3 * i + 2];
+    const e = Math.hypot(rx, ry, rz);
+    const w = robustWeight(robust, e, k);
+    // The session's own weight: the robust reweighting has multiplied it into pb.weights, so divide it out.
+    const base = w > 0 ? pb.weights[i] / w : 0;
+    if (!(base > 0)) continue;
+    m += 3;
+    const c2 = robustCurvature(robust, e, k);
+    const ux = e > 0 ? rx / e : 0, uy = e > 0 ? ry / e : 0, uz = e > 0 ? rz / e : 0;
+    pointJacobian(model, data, active, J);
+    // ψ = w·r; ∇²ρ = w·I + (ρ'' − w)·uuᵀ.
+    for (let a = 0; a < p; a++) {
+      const jx = J[3 * a], jy = J[3 * a + 1], jz = J[3 * a + 2];
+      s[a] = base * w * (jx * rx + jy * ry + jz * rz);
+      const ju = jx * ux + jy * uy + jz * uz;
+      const t = (c2 - w) * ju;
+      hJ[3 * a] = w * jx + t * ux; hJ[3 * a + 1] = w * jy + t * uy; hJ[3 * a + 2] = w * jz + t * uz;
+    }
+    for (let a = 0; a < p; a++) {
+      const sa = s[a];
+      const hx = hJ[3 * a], hy = hJ[3 * a + 1], hz = hJ[3 * a + 2];
+      for (let b = a; b < p; b++) {
+        B[a * p + b] += sa * s[b];
+        H[a * p + b] += base * (hx * J[3 * b] + hy * J[3 * b + 1] + hz * J[3 * b + 2]);
+      }
+    }
+  }
+  symmetrize(H, p);
+  symmetrize(B, p);
+  return sandwichCovariance(H, B, p, m);
 }
 
 function reasonFor(info: ParameterInfo, chosen: Set<number>, fixed: Map<number, string>, g: ArmGeometry): string {

@@ -18,3 +18,5 @@ export * from './planner';
 export * from './geometry';
 export * from './session-csv';
 export * from './iso9283';
+export * from './warnings';
+export * from './rotations';

@@ -57,6 +57,13 @@ export interface ArmData {
   /** Per parameter j: axis u at 3j (unit, measurement frame) and pivot c at 3j (mm). */
   readonly axis: Float64Array;
   readonly pivot: Float64Array;
+  /**
+   * Meaning of the base rotation columns of the Jacobian. false (default): derivatives with respect to
+   * the file's angles rx, ry, rz (Z-Y-X), singular at ry = ±90°. true: derivatives with respect to a small
+   * rotation about the measurement frame's x, y, z axes through the base origin, applied as
+   * B ← Exp([δ]×)·B (see rotations.ts); regular at every orientation. The fit uses true.
+   */
+  baseIncrements: boolean;
 }
 
 export function compileArm(geometry: ArmGeometry): ArmModel {
@@ -95,6 +102,7 @@ export function createArmData(model: ArmModel): ArmData {
     point: new Float64Array(3),
     axis: new Float64Array(3 * model.size),
     pivot: new Float64Array(3 * model.size),
+    baseIncrements: false,
   };
   setParameters(model, data, model.nominal);
   return data;
@@ -132,8 +140,13 @@ export function setParameters(model: ArmModel, data: ArmData, v: ArrayLike<numbe
   ax.fill(0, 3 * b, 3 * (b + 6));
   ax[3 * b] = 1; ax[3 * (b + 1) + 1] = 1; ax[3 * (b + 2) + 2] = 1;
   ax[3 * (b + 5) + 2] = 1;
-  ax[3 * (b + 4)] = -sz; ax[3 * (b + 4) + 1] = cz;
-  ax[3 * (b + 3)] = cz * cy; ax[3 * (b + 3) + 1] = sz * cy; ax[3 * (b + 3) + 2] = -sy;
+  if (data.baseIncrements) {
+    // Small rotations about the measurement x, y, z axes.
+    ax[3 * (b + 3)] = 1; ax[3 * (b + 4) + 1] = 1;
+  } else {
+    ax[3 * (b + 4)] = -sz; ax[3 * (b + 4) + 1] = cz;
+    ax[3 * (b + 3)] = cz * cy; ax[3 * (b + 3) + 1] = sz * cy; ax[3 * (b + 3) + 2] = -sy;
+  }
   ax.fill(0, 3 * (b + 9), 3 * (b + 12));
 }
 

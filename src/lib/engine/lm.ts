@@ -14,7 +14,9 @@
  *     rejected ones multiply it by ν (ν doubling);
  *   - stop when the scaled gradient ‖D⁻¹g‖∞ / ‖r‖ ≤ gradientTolerance (MINPACK's gtol: cosine between the
  *     residual and every column), the relative cost reduction ≤ costTolerance, the scaled step
- *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance), no step lowers the cost, or maxIterations; and, when
+ *     ‖Dδ‖ ≤ stepTolerance·(‖Dx‖ + stepTolerance) (these are "converged"), or — "not converged", with the
+ *     reason — no step lowers the cost up to λ = 1e16, the normal equations cannot be factorised (or are
+ *     non-finite) at any damping, or maxIterations; and, when
  *     the residual degrees of freedom are given, once the Gauss–Newton step would move no parameter by
  *     more than `significance` (default 1 %) of its standard error;
  *   - without reweighting, a trial point's normal equations come from the same pass as its cost;
@@ -31,6 +33,12 @@ export interface LeastSquaresProblem {
   normalEquations(x: Float64Array, A: Float64Array, g: Float64Array): number;
   /** Optional IRLS step: recompute the robust weights at x. */
   reweight?(x: Float64Array): void;
+  /**
+   * Optional update rule: the point reached from x by the step δ, into `out` (default x + δ). A problem
+   * whose parameters include a rotation uses it to apply the step as a small rotation about the current
+   * estimate (left-multiplied increment) instead of adding to angles that are singular somewhere.
+   */
+  retract?(x: Float64Array, step: Float64Array, out: Float64Array): void;
 }
 
 export interface LmIteration {
@@ -68,7 +76,7 @@ export interface LmOptions {
   initial?: { A: Float64Array; g: Float64Array; cost: number };
 }
 
-export type LmStop = 'gradient' | 'cost' | 'step' | 'significance' | 'no-decrease' | 'iterations';
+export type LmStop = 'gradient' | 'cost' | 'step' | 'significance' | 'no-decrease' | 'singular' | 'iterations';
 
 export interface LmResult {
   x: Float64Array;
@@ -88,8 +96,9 @@ const REASONS: Record<LmStop, string> = {
   cost: 'converged: the last step lowered the cost by less than the relative tolerance',
   step: 'converged: the last step was smaller than the relative tolerance',
   significance: 'converged: the next step would change every parameter by less than 1 % of its standard error',
-  'no-decrease': 'converged: no step lowers the cost any further (floating-point limit)',
-  iterations: 'stopped: the iteration limit was reached before convergence',
+  'no-decrease': 'not converged: no step lowers the cost although the gradient is not zero (damping above 1e16); the model or the data may be inconsistent',
+  singular: 'not converged: the normal equations could not be factorised at any damping up to 1e16 (singular or non-finite, e.g. a parameter with no effect or NaN in the data)',
+  iterations: 'not converged: the iteration limit was reached before convergence',
 };
 
 export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<number>, options: LmOptions = {}): LmResult {
@@ -114,6 +123,8 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
   const M = new Float64Array(p * p);
   const b = new Float64Array(p);
   const ds = new Float64Array(p);
+  const step = new Float64Array(p);
+  const retract = problem.retract?.bind(problem);
   const evaluations = { cost: 0, normal: 0 };
   const iterations: LmIteration[] = [];
   const report = (it: LmIteration) => {
@@ -141,6 +152,11 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       const dj = Math.sqrt(Math.max(A[i * p + i], 0));
       if (dj > D[i]) D[i] = dj;
     }
+    // Non-finite normal equations (NaN in the data or the model) would pass the gradient test below
+    // vacuously: they end the solve as singular, never as converged.
+    let finite = Number.isFinite(cost);
+    for (let i = 0; i < p && finite; i++) finite = Number.isFinite(g[i]) && Number.isFinite(A[i * p + i]);
+    if (!finite) { stop = 'singular'; break; }
     let gmax = 0;
     const rnorm = Math.sqrt(2 * cost);
     for (let i = 0; i < p; i++) if (D[i] > 0) gmax = Math.max(gmax, Math.abs(g[i]) / D[i]);
@@ -180,7 +196,8 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       if (!choleskyInPlace(M, p)) {
         lambda *= nu;
         nu *= 2;
-        if (lambda > 1e16) { stop = 'no-decrease'; break outer; }
+        // A factorisation that fails at every damping is a singular (or non-finite) problem, never a solution.
+        if (lambda > 1e16) { stop = 'singular'; break outer; }
         continue;
       }
       ds.set(b);
@@ -189,12 +206,14 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       for (let i = 0; i < p; i++) {
         const di = D[i] > 0 ? D[i] : 1;
         const s = ds[i];
-        xn[i] = x[i] + s / di;
+        step[i] = s / di;
+        xn[i] = x[i] + step[i];
         stepScaled2 += s * s;
         xScaled2 += (di * x[i]) ** 2;
         predicted += b[i] * s + lambda * s * s;
       }
       predicted *= 0.5;
+      if (retract) retract(x, step, xn);
       const stepNorm = Math.sqrt(stepScaled2);
       let costN: number;
       if (fused) {
@@ -227,13 +246,16 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
       }
       lambda *= nu;
       nu *= 2;
-      if (lambda > 1e16 || stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'no-decrease'; break outer; }
+      // A rejected step below the step tolerance is MINPACK's xtol end (converged); running out of damping
+      // without any decrease is not.
+      if (stepNorm <= xtol * (Math.sqrt(xScaled2) + xtol)) { stop = 'step'; break outer; }
+      if (lambda > 1e16) { stop = 'no-decrease'; break outer; }
     }
   }
   const stopReason = stop === 'significance'
     ? `converged: the next step would change every parameter by less than ${+(significance * 100).toPrecision(3)} % of its standard error`
     : REASONS[stop];
-  return { x, cost, iterations, stop, stopReason, converged: stop !== 'iterations', evaluations, A, g };
+  return { x, cost, iterations, stop, stopReason, converged: stop !== 'iterations' && stop !== 'no-decrease' && stop !== 'singular', evaluations, A, g };
 }
 
 /**
@@ -276,6 +298,20 @@ export function choleskySolveInPlace(L: Float64Array, p: number, b: Float64Array
 export function robustWeight(kind: 'none' | 'huber' | 'cauchy', e: number, k: number): number {
   if (kind === 'huber') return e <= k ? 1 : k / e;
   if (kind === 'cauchy') return 1 / (1 + (e / k) ** 2);
+  return 1;
+}
+
+/**
+ * Second derivative ρ''(e) of the robust loss of a 3-D error e (its first derivative is e · robustWeight):
+ * Huber ρ = e²/2 (e ≤ k), k·e − k²/2 (e > k) → ρ'' = 1 or 0; Cauchy ρ = (k²/2)·ln(1 + (e/k)²) →
+ * ρ'' = (1 − s²)/(1 + s²)², s = e/k; none ρ = e²/2 → 1.
+ */
+export function robustCurvature(kind: 'none' | 'huber' | 'cauchy', e: number, k: number): number {
+  if (kind === 'huber') return e <= k ? 1 : 0;
+  if (kind === 'cauchy') {
+    const s2 = (e / k) ** 2;
+    return (1 - s2) / ((1 + s2) * (1 + s2));
+  }
   return 1;
 }
 

@@ -39,7 +39,12 @@ export function uncertainty(A: Float64Array, p: number, ssr: number, residualCou
     choleskySolveInPlace(L, p, col);
     for (let a = 0; a < p; a++) cov[a * p + b] = (sigma * sigma * col[a]) / (d[a] * d[b]);
   }
-  const se = Array.from({ length: p }, (_, j) => Math.sqrt(cov[j * p + j]));
+  return { sigma, covariance: cov, ...summariseCovariance(cov, p) };
+}
+
+/** Standard errors, correlation matrix and the pairs above HIGH_CORRELATION of a p×p covariance. */
+export function summariseCovariance(cov: Float64Array, p: number): Pick<Uncertainty, 'standardErrors' | 'correlation' | 'high'> {
+  const se = Array.from({ length: p }, (_, j) => Math.sqrt(Math.max(cov[j * p + j], 0)));
   const correlation: number[][] = [];
   const high: Uncertainty['high'] = [];
   for (let a = 0; a < p; a++) {
@@ -52,7 +57,51 @@ export function uncertainty(A: Float64Array, p: number, ssr: number, residualCou
     correlation.push(row);
   }
   high.sort((x, y) => Math.abs(y.r) - Math.abs(x.r));
-  return { sigma, covariance: cov, standardErrors: se, correlation, high };
+  return { standardErrors: se, correlation, high };
+}
+
+/**
+ * Sandwich covariance of an M-estimator (Huber 1967, "The behavior of maximum likelihood estimates under
+ * nonstandard conditions"; the small-sample factor m/(m − p) is White's HC1, MacKinnon & White 1985):
+ *   Cov = H⁻¹ · B · H⁻¹ · m / (m − p),
+ *   H = Σ_i J_iᵀ ∇²ρ(r_i) J_i           (bread: the loss's Hessian per pose, 3×3),
+ *   B = Σ_i (J_iᵀ ψ_i)(J_iᵀ ψ_i)ᵀ,  ψ_i = ρ'(e_i)·r_i / e_i   (meat: the scores per pose),
+ * with r_i the pose's 3-vector residual, e_i = |r_i|, ρ the loss of the 3-D error and J_i its 3×p Jacobian.
+ * For ρ(e) of the length e, ∇²ρ(r) = w·(I − uuᵀ) + ρ''(e)·uuᵀ with w = ρ'(e)/e (the IRLS weight) and
+ * u = r/e. Inputs: H and B accumulated by the caller (p×p row-major, full), m residual coordinates.
+ * Returns null when H is singular.
+ */
+export function sandwichCovariance(H: Float64Array, B: Float64Array, p: number, m: number): Float64Array | null {
+  const d = new Float64Array(p);
+  for (let j = 0; j < p; j++) d[j] = Math.sqrt(Math.abs(H[j * p + j])) || 1;
+  const L = new Float64Array(p * p);
+  for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = H[a * p + b] / (d[a] * d[b]);
+  if (!choleskyInPlace(L, p) || !(m > p)) return null;
+  // Hinv = D⁻¹ (scaled H)⁻¹ D⁻¹, column by column.
+  const Hi = new Float64Array(p * p);
+  const col = new Float64Array(p);
+  for (let b = 0; b < p; b++) {
+    col.fill(0);
+    col[b] = 1;
+    choleskySolveInPlace(L, p, col);
+    for (let a = 0; a < p; a++) Hi[a * p + b] = col[a] / (d[a] * d[b]);
+  }
+  const T = new Float64Array(p * p);
+  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) {
+    let s = 0;
+    for (let k = 0; k < p; k++) s += Hi[a * p + k] * B[k * p + b];
+    T[a * p + b] = s;
+  }
+  const cov = new Float64Array(p * p);
+  const f = m / (m - p);
+  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) {
+    let s = 0;
+    for (let k = 0; k < p; k++) s += T[a * p + k] * Hi[k * p + b];
+    cov[a * p + b] = f * s;
+  }
+  // Symmetrise rounding.
+  for (let a = 0; a < p; a++) for (let b = a + 1; b < p; b++) cov[a * p + b] = cov[b * p + a] = 0.5 * (cov[a * p + b] + cov[b * p + a]);
+  return cov;
 }
 
 function identity(p: number): number[][] {
