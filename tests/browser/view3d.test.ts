@@ -7,7 +7,7 @@
 import { mkdirSync } from 'node:fs';
 import type { Browser, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { islandsHydrated, launchBrowser, signInPage, SOFTWARE_WEBGL, trackExternalRequests } from '../support/browser';
+import { launchBrowser, signInPage, SOFTWARE_WEBGL, trackExternalRequests } from '../support/browser';
 import { BASE_URL, DEMO, signedIn } from '../support/http';
 import { createFixture, testDb, waitForFit, type Fixture } from '../integration/fit-fixtures';
 
@@ -60,7 +60,7 @@ const changed = (a: number[], b: number[]) => a.filter((v, i) => Math.abs(v - b[
 
 async function openView(page: Page, path: string) {
   await page.goto(`${BASE_URL}${path}`);
-  await islandsHydrated(page);
+  // client:visible: the island hydrates once it scrolls into sight.
   const view = page.locator('[data-view3d]');
   await view.scrollIntoViewIfNeeded();
   await page.locator('[data-view3d][data-ready="true"]').waitFor({ timeout: 30_000 });
@@ -79,7 +79,7 @@ describe('3-D view', () => {
     await expect(view.getAttribute('data-webgl')).resolves.toBe('yes');
 
     const first = await canvasSample(page);
-    expect(first.inked).toBeGreaterThan(200); // grid, arm, points: a blank canvas would have ~0
+    expect(first.inked).toBeGreaterThan(100); // of 4096 samples: grid, arm, points; a blank canvas has none
 
     // Turn the view by dragging across the canvas: the picture changes.
     const box = (await page.locator('[data-view3d] canvas').boundingBox())!;
@@ -184,12 +184,10 @@ describe('3-D view', () => {
       });
       await signInPage(page, DEMO.engineer);
       await page.goto(`${BASE_URL}/fits`);
-      await islandsHydrated(page);
       await page.waitForLoadState('networkidle');
       expect(threeScripts).toEqual([]);
 
       await page.goto(`${BASE_URL}/fits/${fitId}`);
-      await islandsHydrated(page);
       const view = page.locator('[data-view3d]');
       await view.scrollIntoViewIfNeeded();
       await page.locator('[data-view3d][data-webgl="no"]').waitFor({ timeout: 20_000 });

@@ -163,7 +163,7 @@ function Controls({ center, radius, resetSignal }: { center: THREE.Vector3; radi
   const controls = useMemo(() => {
     camera.up.set(0, 0, 1);
     const dir = new THREE.Vector3(1.4, -2.0, 1.1).normalize();
-    camera.position.copy(center).addScaledVector(dir, radius * 2.6);
+    camera.position.copy(center).addScaledVector(dir, radius * 2.1);
     (camera as THREE.PerspectiveCamera).near = radius / 100;
     (camera as THREE.PerspectiveCamera).far = radius * 50;
     (camera as THREE.PerspectiveCamera).updateProjectionMatrix();
@@ -198,7 +198,7 @@ function Content(props: SceneProps) {
   // Bounds from the points and the arm at its first pose, fixed for the life of the view (the camera aims at it).
   const frame0 = useMemo(() => armFrames(geometry, poses[firstWithQ]?.q), [geometry, poses, firstWithQ]);
   const box = useMemo(() => bounds(poses, frame0 ? frame0.map(origin) : []), [poses, frame0]);
-  const r = box.radius * 0.012;
+  const r = box.radius * 0.016;
 
   const markers = useMemo(() => {
     const byRole = new Map<View3DRole, number[]>();
@@ -259,7 +259,7 @@ function Content(props: SceneProps) {
     ];
     for (const [d, colour, name] of axes) {
       g.add(new THREE.Line(new THREE.BufferGeometry().setFromPoints([new THREE.Vector3(), d.clone().multiplyScalar(len)]), new THREE.LineBasicMaterial({ color: colour })));
-      const s = label(name, box.radius * 0.05, colour);
+      const s = label(name, box.radius * 0.07, colour);
       s.position.copy(d).multiplyScalar(len * 1.12);
       g.add(s);
     }
@@ -275,7 +275,7 @@ function Content(props: SceneProps) {
     barLines.name = 'scale-bar';
     g.add(barLines);
     const errText = magnification === 1 ? '' : ` = ${+(bar / magnification).toPrecision(3)} mm of error (×${magnification})`;
-    const s = label(`${bar} mm${errText}`, box.radius * 0.045);
+    const s = label(`${bar} mm${errText}`, box.radius * 0.07);
     s.position.set(x0 + bar / 2, y0, z0 + bar * 0.14);
     g.add(s);
     g.add(new THREE.AmbientLight('#ffffff', 1.4));

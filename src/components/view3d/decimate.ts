@@ -44,9 +44,13 @@ export function decimatePoses(poses: View3DPose[], limit = VIEW3D_LIMIT): View3D
   return out;
 }
 
-/** 1-2-5 magnification that makes the largest error vector about `fraction` of the scene's size. */
-export function autoMagnification(poses: View3DPose[], sceneSizeMm: number, fraction = 0.1): number {
-  const top = Math.max(0, ...poses.map((p) => norm(p.e)));
+/**
+ * 1-2-5 magnification that draws the 90th-percentile error vector at about `fraction` of the scene's size
+ * (the percentile, not the maximum, so one outlier does not shrink every other vector to nothing).
+ */
+export function autoMagnification(poses: View3DPose[], sceneSizeMm: number, fraction = 0.08): number {
+  const sizes = poses.map((p) => norm(p.e)).filter((v) => v > 0).sort((a, b) => a - b);
+  const top = sizes.length ? sizes[Math.min(sizes.length - 1, Math.floor(0.9 * sizes.length))]! : 0;
   if (!(top > 0) || !(sceneSizeMm > 0)) return 1;
   const raw = (fraction * sceneSizeMm) / top;
   const exp = Math.floor(Math.log10(raw));
