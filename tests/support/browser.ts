@@ -6,7 +6,7 @@ import { BASE_URL, DEMO_PASSWORD } from './http';
  * reaching for the network, which this machine does not have (stack-notes). playwright gives every launch a
  * fresh, empty profile of its own.
  */
-export async function launchBrowser(): Promise<Browser> {
+export async function launchBrowser(extraArgs: string[] = []): Promise<Browser> {
   return chromium.launch({
     executablePath: process.env.CHROMIUM_PATH ?? '/usr/bin/chromium',
     headless: true,
@@ -18,9 +18,17 @@ export async function launchBrowser(): Promise<Browser> {
       '--disable-component-update',
       '--disable-sync',
       '--no-first-run',
+      ...extraArgs,
     ],
   });
 }
+
+/**
+ * WebGL in headless Debian chromium (156): with the flags above it already draws through ANGLE on SwiftShader
+ * (the renderer string reads "ANGLE (Google, Vulkan 1.3.0 (SwiftShader Device (Subzero)…))"); these flags ask
+ * for that explicitly, so a build that stops falling back to software WebGL on its own still draws.
+ */
+export const SOFTWARE_WEBGL = ['--use-angle=swiftshader', '--enable-unsafe-swiftshader'];
 
 /** Record every request a page makes that leaves 127.0.0.1 (there must be none). */
 export function trackExternalRequests(page: Page): string[] {

@@ -1,9 +1,12 @@
 import { useEffect, useMemo, useState } from 'react';
-import { Bar, BarChart, CartesianGrid, Legend, ResponsiveContainer, Scatter, ScatterChart, Tooltip, XAxis, YAxis } from 'recharts';
+import { Bar, BarChart, CartesianGrid, Cell, Legend, ResponsiveContainer, Scatter, ScatterChart, Symbols, Tooltip, XAxis, YAxis } from 'recharts';
 import type { FitReport as EngineReport, ParameterReport, PoseResidual } from '../../lib/engine/fit';
 import type { ErrorStats } from '../../lib/engine/types';
 import { api, type ApiError } from '../../lib/shared/api-client';
 import FitWarnings from './FitWarnings';
+import { crossMarker, PoseTip, roleOf } from './chart-bits';
+import FitSettingsList from './FitSettingsList';
+import { fitLabel } from '../../lib/shared/fit-label';
 import { byUnit, downloadCsv, FIT_STATE_LABEL, GROUP_LABEL, GROUP_ORDER, mm, REVIEW_STATE_LABEL, sci, when } from './format';
 
 /** The fit as GET /api/fits/{id} returns it (dates as ISO strings). */
@@ -122,7 +125,8 @@ function StatsTable({ report }: { report: EngineReport }) {
 }
 
 function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: string }) {
-  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, role: p.role, before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
+  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, line: p.line, role: roleOf(p), before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
+  const excludedCount = poses.filter((p) => p.role === 'excluded').length;
   const histogram = useMemo(() => {
     const used = poses.filter((p) => p.role !== 'excluded');
     const top = Math.max(...used.map((p) => Math.max(p.errorBefore, p.errorAfter)), 1e-6);
@@ -141,17 +145,26 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
     <>
       <section className="card mb-6">
         <h2 className="mb-1">Residual per pose</h2>
-        <p className="mb-2 text-sm text-ink-soft">3-D distance between measured and predicted point, with the nominal geometry (grey) and the calibrated one (teal).{sampled ? ` Every ${Math.round(poses.length / data.length)}th pose drawn; the numbers hold all ${poses.length}.` : ''}</p>
+        <p className="mb-2 text-sm text-ink-soft">3-D distance between measured and predicted point, with the nominal geometry (grey) and the calibrated one (teal).{excludedCount ? ` Excluded poses (${excludedCount}, not used by the fit) are drawn as hollow, dashed bars.` : ''}{sampled ? ` Every ${Math.round(poses.length / data.length)}th pose drawn; the numbers hold all ${poses.length}.` : ''}</p>
         <div className="h-72" data-chart="residuals">
           <ResponsiveContainer width="100%" height="100%">
             <BarChart data={data} margin={{ top: 8, right: 16, bottom: 24, left: 16 }}>
               <CartesianGrid strokeDasharray="3 3" stroke="#dde1e8" />
               <XAxis dataKey="index" label={{ value: 'Pose (order in the file)', position: 'insideBottom', offset: -12 }} />
               <YAxis label={{ value: 'Residual (mm)', angle: -90, position: 'insideLeft' }} />
-              <Tooltip formatter={(v) => mm(Number(v))} labelFormatter={(i) => `Pose ${data[Number(i) - 1]?.label ?? i}`} />
+              <Tooltip
+                content={({ active, payload }) => {
+                  const d = payload?.[0]?.payload as (typeof data)[number] | undefined;
+                  return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role={d.role} rows={[{ name: 'Before (nominal)', value: `${mm(d.before)} mm` }, { name: 'After (calibrated)', value: `${mm(d.after)} mm` }]} /> : null;
+                }}
+              />
               <Legend verticalAlign="top" />
-              <Bar dataKey="before" name="Before (nominal)" fill={NOMINAL} isAnimationActive={false} />
-              <Bar dataKey="after" name="After (calibrated)" fill={ACCENT} isAnimationActive={false} />
+              <Bar dataKey="before" name="Before (nominal)" fill={NOMINAL} isAnimationActive={false}>
+                {data.map((d) => <Cell key={d.index} fill={d.role === 'excluded' ? '#ffffff' : NOMINAL} stroke={d.role === 'excluded' ? NOMINAL : undefined} strokeDasharray={d.role === 'excluded' ? '3 2' : undefined} />)}
+              </Bar>
+              <Bar dataKey="after" name="After (calibrated)" fill={ACCENT} isAnimationActive={false}>
+                {data.map((d) => <Cell key={d.index} fill={d.role === 'excluded' ? '#ffffff' : ACCENT} stroke={d.role === 'excluded' ? ACCENT : undefined} strokeDasharray={d.role === 'excluded' ? '3 2' : undefined} />)}
+              </Bar>
             </BarChart>
           </ResponsiveContainer>
         </div>
@@ -168,7 +181,12 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
                 <CartesianGrid strokeDasharray="3 3" stroke="#dde1e8" />
                 <XAxis dataKey="to" tickFormatter={(v) => mm(Number(v))} label={{ value: 'Error up to (mm)', position: 'insideBottom', offset: -12 }} />
                 <YAxis allowDecimals={false} label={{ value: 'Poses', angle: -90, position: 'insideLeft' }} />
-                <Tooltip labelFormatter={(_, p) => `${(p?.[0]?.payload as { bin?: string })?.bin ?? ''} mm`} />
+                <Tooltip
+                  content={({ active, payload }) => {
+                    const h = payload?.[0]?.payload as (typeof histogram)[number] | undefined;
+                    return h ? <PoseTip active={active} heading={`3-D error ${h.bin} mm`} role={undefined} rows={[{ name: 'Before (nominal)', value: `${h.before} poses` }, { name: 'After (calibrated)', value: `${h.after} poses` }, { name: 'Counted', value: 'fit and held-out poses; excluded ones are left out' }]} /> : null;
+                  }}
+                />
                 <Legend verticalAlign="top" />
                 <Bar dataKey="before" name="Before (nominal)" fill={NOMINAL} isAnimationActive={false} />
                 <Bar dataKey="after" name="After (calibrated)" fill={ACCENT} isAnimationActive={false} />
@@ -185,18 +203,40 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
 
         <section className="card">
           <h2 className="mb-1">Residual per axis, after calibration</h2>
-          <p className="mb-2 text-sm text-ink-soft">Measured minus predicted in the tracker frame: x (circle), y (square), z (triangle).</p>
+          <p className="mb-2 text-sm text-ink-soft">Measured minus predicted in the tracker frame: x (circle), y (square), z (triangle){excludedCount ? '; excluded poses as ✕ in grey' : ''}.</p>
           <div className="h-64" data-chart="axes">
             <ResponsiveContainer width="100%" height="100%">
               <ScatterChart margin={{ top: 8, right: 16, bottom: 24, left: 16 }}>
                 <CartesianGrid strokeDasharray="3 3" stroke="#dde1e8" />
                 <XAxis type="number" dataKey="index" name="Pose" label={{ value: 'Pose (order in the file)', position: 'insideBottom', offset: -12 }} />
                 <YAxis type="number" dataKey="v" name="Residual" label={{ value: 'Residual (mm)', angle: -90, position: 'insideLeft' }} />
-                <Tooltip formatter={(v, n) => (n === 'Residual' ? mm(Number(v)) : v)} />
+                <Tooltip
+                  content={({ active, payload }) => {
+                    const d = payload?.[0]?.payload as { label: string; line: number; role: string; axis: string; v: number } | undefined;
+                    return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role={d.role} rows={[{ name: `Residual ${d.axis}`, value: `${mm(d.v)} mm` }]} /> : null;
+                  }}
+                />
                 <Legend verticalAlign="top" />
-                <Scatter name="dx" data={data.map((d) => ({ index: d.index, v: d.dx }))} fill={ACCENT} shape="circle" isAnimationActive={false} />
-                <Scatter name="dy" data={data.map((d) => ({ index: d.index, v: d.dy }))} fill={NOMINAL} shape="square" isAnimationActive={false} />
-                <Scatter name="dz" data={data.map((d) => ({ index: d.index, v: d.dz }))} fill={ATTENTION} shape="triangle" isAnimationActive={false} />
+                {(
+                  [
+                    ['dx', 'x', 'dx', ACCENT, 'circle'],
+                    ['dy', 'y', 'dy', NOMINAL, 'square'],
+                    ['dz', 'z', 'dz', ATTENTION, 'triangle'],
+                  ] as const
+                ).map(([name, axis, key, colour, symbol]) => (
+                  <Scatter
+                    key={name}
+                    name={name}
+                    data={data.map((d) => ({ index: d.index, v: d[key], label: d.label, line: d.line, role: d.role, axis }))}
+                    fill={colour}
+                    legendType={symbol}
+                    shape={(props: unknown) => {
+                      const { cx = 0, cy = 0, payload } = props as { cx?: number; cy?: number; payload?: { role: string } };
+                      return payload?.role === 'excluded' ? crossMarker(cx, cy, NOMINAL, 4) : <Symbols cx={cx} cy={cy} type={symbol} size={48} fill={colour} />;
+                    }}
+                    isAnimationActive={false}
+                  />
+                ))}
               </ScatterChart>
             </ResponsiveContainer>
           </div>
@@ -305,9 +345,9 @@ function CorrelationMap({ report, fileBase }: { report: EngineReport; fileBase: 
 function Observability({ report }: { report: EngineReport }) {
   const o = report.observability;
   return (
-    <section className="card">
+    <section className="card min-w-0">
       <h2 className="mb-2">Observability</h2>
-      <table className="data-table">
+      <table className="data-table" data-observability>
         <tbody>
           <tr><td>Identified parameters</td><td className="num">{o.rank} of {o.parameterCount} candidates</td></tr>
           <tr><td>Condition number of the scaled Jacobian</td><td className="num">{sci(o.conditionNumber)}</td></tr>
@@ -315,7 +355,7 @@ function Observability({ report }: { report: EngineReport }) {
           <tr><td>O3 (smallest singular value; larger is better)</td><td className="num">{sci(o.O3)}</td></tr>
           <tr><td>O4 (noise amplification, Nahvi &amp; Hollerbach; larger is better)</td><td className="num">{sci(o.O4)}</td></tr>
           <tr><td>Residual standard deviation σ (mm)</td><td className="num">{mm(report.residualSigmaMm)}</td></tr>
-          <tr><td>Solver</td><td className="num">{report.iterations.length} iterations, {report.converged ? 'converged' : 'not converged'} ({report.stopReason})</td></tr>
+          <tr><td>Solver</td><td className="num whitespace-normal break-words" data-solver>{report.iterations.length} iterations, {report.converged ? 'converged' : 'not converged'} ({report.stopReason})</td></tr>
         </tbody>
       </table>
     </section>
@@ -414,11 +454,11 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           </p>
         )}
         <dl className="mt-3 grid gap-x-6 gap-y-1 text-sm sm:grid-cols-2 lg:grid-cols-4">
-          <div><dt className="text-ink-soft">Run by</dt><dd>{fit.createdByName ?? '—'} · {when(fit.createdAt)}</dd></div>
+          <div><dt className="text-ink-soft">Run by</dt><dd>{fit.createdByName ?? '—'} · {fitLabel(fit.createdAt, fit.id)}</dd></div>
           <div><dt className="text-ink-soft">Engine</dt><dd>{fit.engineVersion ? `v${fit.engineVersion}` : '—'}{fit.durationMs !== null ? ` · ${fit.durationMs} ms` : ''}{fit.attempts > 1 ? ` · attempt ${fit.attempts}` : ''}</dd></div>
           <div><dt className="text-ink-soft">Session file SHA-256</dt><dd className="truncate" title={fit.inputChecksums?.sessionFile}>{fit.inputChecksums?.sessionFile.slice(0, 16) ?? '—'}…</dd></div>
           <div><dt className="text-ink-soft">Nominal geometry SHA-256</dt><dd className="truncate" title={fit.inputChecksums?.nominalGeometry}>{fit.inputChecksums?.nominalGeometry.slice(0, 16) ?? '—'}…</dd></div>
-          <div className="sm:col-span-2 lg:col-span-4"><dt className="text-ink-soft">Settings</dt><dd><code className="break-all">{JSON.stringify(fit.settings)}</code></dd></div>
+          <div className="sm:col-span-2 lg:col-span-4"><dt className="text-ink-soft">Settings</dt><dd><FitSettingsList settings={fit.settings} /></dd></div>
         </dl>
       </section>
 
@@ -437,7 +477,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
 
           <div className="mb-6 grid gap-6 lg:grid-cols-2">
             <Observability report={report} />
-            <section className="card" data-outliers>
+            <section className="card min-w-0" data-outliers>
               <h2 className="mb-1">Outlier poses</h2>
               <p className="mb-2 text-sm text-ink-soft">
                 {report.outliers.length

@@ -1,6 +1,7 @@
-import { useState } from 'react';
+import { useEffect, useRef, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Legend, ReferenceLine, ResponsiveContainer, Scatter, ScatterChart, Tooltip, XAxis, YAxis } from 'recharts';
 import { downloadCsv } from '../csv-download';
+import { PoseTip } from '../fits/chart-bits';
 
 export interface ChartPoint {
   label: string;
@@ -42,6 +43,73 @@ function NumbersToggle({ shown, onToggle, onCsv, what }: { shown: boolean; onTog
   );
 }
 
+// Layout of the length-against-length views; the plot area is made square from these so 1 mm is as long on
+// the horizontal axis as on the vertical one.
+const M = { top: 8, right: 16, bottom: 8, left: 8 };
+const Y_AXIS_W = 72;
+const X_AXIS_H = 44;
+const LEGEND_H = 28;
+
+/** 1-2-5 step near `target`. */
+function niceStep(target: number) {
+  const base = 10 ** Math.floor(Math.log10(target));
+  return ([1, 2, 5, 10].filter((s) => s * base <= target).pop() ?? 1) * base;
+}
+
+/** The same span on both axes, centred on the data, with round ticks. */
+export function equalDomains(a: number[], b: number[]) {
+  const lo = (v: number[]) => Math.min(...v), hi = (v: number[]) => Math.max(...v);
+  const span = Math.max(hi(a) - lo(a), hi(b) - lo(b), 1) * 1.08;
+  const step = niceStep(span / 5);
+  const around = (v: number[]) => {
+    const c = (lo(v) + hi(v)) / 2;
+    const from = Math.floor((c - span / 2) / step) * step;
+    const n = Math.ceil(span / step) + 1;
+    return { domain: [from, from + n * step] as [number, number], ticks: Array.from({ length: n + 1 }, (_, k) => from + k * step) };
+  };
+  // Both axes get the same number of steps, so the spans (and the mm per pixel on a square plot) are equal.
+  const x = around(a), y = around(b);
+  const steps = Math.max(x.ticks.length, y.ticks.length) - 1;
+  const fit = (d: { domain: [number, number] }) => ({ domain: [d.domain[0], d.domain[0] + steps * step] as [number, number], ticks: Array.from({ length: steps + 1 }, (_, k) => d.domain[0] + k * step) });
+  return { x: fit(x), y: fit(y) };
+}
+
+/** A scatter of two lengths at equal scale: the plot area is square and both axes span the same millimetres. */
+function EqualScatter({ points, yKey, yTitle }: { points: ChartPoint[]; yKey: 'y' | 'z'; yTitle: string }) {
+  const box = useRef<HTMLDivElement>(null);
+  const [width, setWidth] = useState(0);
+  useEffect(() => {
+    const el = box.current;
+    if (!el) return;
+    const ro = new ResizeObserver(() => setWidth(el.clientWidth));
+    ro.observe(el);
+    setWidth(el.clientWidth);
+    return () => ro.disconnect();
+  }, []);
+  const plot = Math.max(120, Math.min(width, 560) - M.left - M.right - Y_AXIS_W);
+  const height = plot + M.top + M.bottom + X_AXIS_H + LEGEND_H;
+  const { x, y } = equalDomains(points.map((p) => p.x), points.map((p) => p[yKey]));
+  return (
+    <div ref={box} className="w-full" data-equal-scale data-plot-size={plot}>
+      {width > 0 && (
+        <ScatterChart width={plot + M.left + M.right + Y_AXIS_W} height={height} margin={M}>
+          <CartesianGrid stroke="#dde1e8" />
+          <XAxis type="number" dataKey="x" name="x" domain={x.domain} ticks={x.ticks} allowDataOverflow height={X_AXIS_H} tickFormatter={(v: number) => v.toFixed(0)} label={{ value: 'x (mm)', position: 'insideBottom', offset: 0 }} />
+          <YAxis type="number" dataKey={yKey} name={yKey} domain={y.domain} ticks={y.ticks} allowDataOverflow width={Y_AXIS_W} tickFormatter={(v: number) => v.toFixed(0)} label={{ value: yTitle, angle: -90, position: 'insideLeft', offset: 4 }} />
+          <Tooltip
+            content={({ active, payload }) => {
+              const d = payload?.[0]?.payload as ChartPoint | undefined;
+              return d ? <PoseTip active={active} heading={`Pose ${d.label}`} role="measured pose (this session, before any fit)" rows={[{ name: 'x', value: `${mm(d.x)} mm` }, { name: yKey, value: `${mm(d[yKey])} mm` }]} /> : null;
+            }}
+          />
+          <Legend verticalAlign="top" height={LEGEND_H} />
+          <Scatter name="Measured point (one per pose)" data={points} fill={ACCENT} isAnimationActive={false} />
+        </ScatterChart>
+      )}
+    </div>
+  );
+}
+
 /** Sanity charts of a session: the measured points from above and from the side, and the nominal error per pose. */
 export default function SessionCharts({ points, errors, poseCount, rms, fileBase }: Props) {
   const [showPoints, setShowPoints] = useState(false);
@@ -54,7 +122,7 @@ export default function SessionCharts({ points, errors, poseCount, rms, fileBase
       <section aria-labelledby="chart-points" data-chart="points">
         <h3 id="chart-points" className="mb-1">Measured target points</h3>
         <p className="mb-2 text-ink-soft">
-          In the tracker frame. A point far from the others, or a cloud that is flat in one view, is worth a second look before a fit.
+          In the tracker frame, at equal scale on both axes (a millimetre is as long across as up). A point far from the others, or a cloud that is flat in one view, is worth a second look before a fit.
           {sampled && ` An even sample of ${points.length} of ${poseCount} poses is drawn.`}
         </p>
         <div className="grid gap-4 lg:grid-cols-2">
@@ -66,18 +134,7 @@ export default function SessionCharts({ points, errors, poseCount, rms, fileBase
           ).map(([title, key, axis]) => (
             <figure key={key} className="min-w-0">
               <figcaption className="mb-1 font-semibold">{title}</figcaption>
-              <div className="h-[300px] w-full">
-                <ResponsiveContainer width="100%" height="100%">
-                  <ScatterChart margin={{ top: 8, right: 16, bottom: 28, left: 16 }}>
-                    <CartesianGrid stroke="#dde1e8" />
-                    <XAxis type="number" dataKey="x" name="x" unit=" mm" domain={['auto', 'auto']} tickFormatter={(v: number) => v.toFixed(0)} label={{ value: 'x (mm)', position: 'insideBottom', offset: -16 }} />
-                    <YAxis type="number" dataKey={key} name={key} unit=" mm" domain={['auto', 'auto']} tickFormatter={(v: number) => v.toFixed(0)} label={{ value: axis, angle: -90, position: 'insideLeft', offset: -4 }} width={72} />
-                    <Tooltip formatter={(v) => (typeof v === 'number' ? mm(v) : String(v))} />
-                    <Legend verticalAlign="top" height={28} />
-                    <Scatter name="Measured point (one per pose)" data={points} fill={ACCENT} isAnimationActive={false} />
-                  </ScatterChart>
-                </ResponsiveContainer>
-              </div>
+              <EqualScatter points={points} yKey={key} yTitle={axis} />
             </figure>
           ))}
         </div>
@@ -122,7 +179,12 @@ export default function SessionCharts({ points, errors, poseCount, rms, fileBase
               <CartesianGrid stroke="#dde1e8" vertical={false} />
               <XAxis dataKey="index" label={{ value: 'pose (file order)', position: 'insideBottom', offset: -16 }} />
               <YAxis tickFormatter={(v: number) => v.toFixed(2)} label={{ value: 'error (mm)', angle: -90, position: 'insideLeft', offset: -4 }} width={72} />
-              <Tooltip formatter={(v) => (typeof v === 'number' ? `${mm(v)} mm` : String(v))} labelFormatter={(i) => `pose ${errorData[Number(i) - 1]?.label ?? i}, line ${errorData[Number(i) - 1]?.line ?? ''}`} />
+              <Tooltip
+                content={({ active, payload }) => {
+                  const d = payload?.[0]?.payload as (typeof errorData)[number] | undefined;
+                  return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role="measured pose (this session, before any fit)" rows={[{ name: 'Nominal model error', value: `${mm(d.error)} mm` }]} /> : null;
+                }}
+              />
               <Legend verticalAlign="top" height={28} />
               <Bar dataKey="error" name="Nominal model error (mm)" fill={NOMINAL} isAnimationActive={false} />
               <ReferenceLine y={rms} stroke={ACCENT} strokeDasharray="6 4" label={{ value: `RMS ${mm(rms)} mm`, position: 'insideTopRight', fill: ACCENT }} />

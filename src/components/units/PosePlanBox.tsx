@@ -1,5 +1,8 @@
-import { useEffect, useState } from 'react';
+import { useEffect, useMemo, useState } from 'react';
 import type { PoseSetQuality as Quality } from '../../lib/engine/planner';
+import type { ArmGeometry } from '../../lib/engine/types';
+import ArmView3D from '../view3d/ArmView3D';
+import { planView } from '../view3d/build';
 import { api, type ApiError } from '../../lib/shared/api-client';
 
 interface Plan {
@@ -7,6 +10,8 @@ interface Plan {
   seed: number;
   source: { kind: 'parameter_set'; version: number } | { kind: 'nominal'; revision: number };
   quality: Quality;
+  geometry: ArmGeometry;
+  poses: { label: string; q: number[] }[];
 }
 
 const sig = (v: number) => (Number.isFinite(v) ? v.toPrecision(4) : '∞');
@@ -37,6 +42,7 @@ export default function PosePlanBox({ serial }: { serial: string }) {
     setPlan(r.data);
   }
 
+  const view3d = useMemo(() => (plan ? planView(plan.geometry, plan.poses) : null), [plan]);
   const stale = plan && (String(plan.count) !== count || String(plan.seed) !== seed);
 
   return (
@@ -101,6 +107,7 @@ export default function PosePlanBox({ serial }: { serial: string }) {
           )}
         </div>
       )}
+      {view3d && <ArmView3D key={`${plan!.count}-${plan!.seed}`} {...view3d} title="The planned poses in 3-D" />}
     </div>
   );
 }

@@ -12,6 +12,7 @@ import { geometryToVector, parameterLayout, toReportUnit } from '../engine/param
 import type { ArmGeometry } from '../engine/types';
 import { db as sharedDb, type Db } from './db';
 import { isUuid } from './http';
+import { fitLabel } from '../shared/fit-label';
 
 export interface GeometryRef {
   ref: string;
@@ -36,7 +37,7 @@ export async function comparisonChoices(unitId: string, database: Db = sharedDb(
   return [
     { ref: 'nominal', label: 'Nominal (model revision)' },
     ...sets.map((s) => ({ ref: s.id, label: `Parameter set v${s.version} (${s.state})` })),
-    ...fitted.map((f) => ({ ref: `fit:${f.id}`, label: `Fit of ${f.createdAt.toISOString().slice(0, 16).replace('T', ' ')} (not approved)` })),
+    ...fitted.map((f) => ({ ref: `fit:${f.id}`, label: `Fit of ${fitLabel(f.createdAt, f.id)} (not approved)` })),
   ];
 }
 

@@ -19,7 +19,7 @@ import { armModelRevisions, armModels, sessionPoses as poseRows, sessions, units
 import { checkGeometry } from '../engine/fit';
 import { poseSetQuality, type PoseSetQuality } from '../engine/planner';
 import { parseSessionCsv, type ParsedSession } from '../engine/session-csv';
-import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine/types';
+import { EngineInputError, type ArmGeometry, type FrameSpec, type InputProblem } from '../engine/types';
 import { audit } from './audit';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
@@ -857,15 +857,31 @@ export interface SessionCheck {
 
 /** The nominal model of the unit's revision against the measured points (engine checkGeometry). */
 export async function sessionCheck(id: string, database: Db = sharedDb()): Promise<SessionCheck | undefined> {
+  return (await sessionCheckDetail(id, database))?.check;
+}
+
+/**
+ * The check with what the session page's 3-D view also needs: the nominal geometry, the base frame the check
+ * used (registered when the geometry has none) and each pose's error vector (measured − predicted, mm).
+ */
+export async function sessionCheckDetail(id: string, database: Db = sharedDb()): Promise<
+  | { check: SessionCheck; geometry: ArmGeometry; base: FrameSpec | undefined; residuals: { line: number; residual: [number, number, number] }[] }
+  | undefined
+> {
   const geometry = await sessionGeometry(id, database);
   if (!geometry) return undefined;
   const poses = await allSessionPoses(id, database);
   try {
     const report = checkGeometry(geometry, poses);
-    return { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })) };
+    return {
+      check: { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })) },
+      geometry,
+      base: report.base,
+      residuals: report.poses.map((p) => ({ line: p.line, residual: p.residual })),
+    };
   } catch (e) {
     if (!(e instanceof EngineInputError)) throw e;
-    return { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], problem: e.message };
+    return { check: { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], problem: e.message }, geometry, base: undefined, residuals: [] };
   }
 }
 

@@ -316,6 +316,8 @@ export interface PosePlan {
   index: 'O1' | 'O3' | 'O4';
   source: { kind: 'parameter_set'; version: number } | { kind: 'nominal'; revision: number };
   joints: string[];
+  /** The geometry the plan was made for (drawn by the pose plan's 3-D view). */
+  geometry: ArmGeometry;
   quality: PoseSetQuality;
   poses: { label: string; q: number[] }[];
   csv: string;
@@ -352,6 +354,7 @@ export async function posePlan(unit: UnitView, options: PosePlanOptions, databas
       index: options.index,
       source,
       joints: geometry.joints.map((j) => j.name),
+      geometry,
       quality: result.quality,
       poses,
       csv,
