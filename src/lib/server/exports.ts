@@ -9,6 +9,7 @@ import JSZip from 'jszip';
 import { z } from 'zod';
 import { armModelRevisions, armModels, exportLog, fits, parameterSets, sessions, units, users } from '../../db/schema';
 import { serializeGeometry } from '../engine/geometry';
+import { csvText, type CsvCell } from '../shared/csv';
 import { SAFETY_CAUTION } from '../shared/safety';
 import { db as sharedDb, type Db } from './db';
 import { mergedOrder, parameterValues } from './parameter-values';
@@ -66,22 +67,17 @@ async function loadSets(where: { setIds?: string[]; unitIds?: string[] }, databa
 }
 type SetRow = Awaited<ReturnType<typeof loadSets>>[number];
 
-/** A CSV field: quoted when it holds a comma, quote or line break (RFC 4180). */
-const field = (s: string) => (/[",\r\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s);
-/** Full precision: the shortest decimal that reads back to the same double. */
-const full = (x: number | null | undefined) => (x === null || x === undefined ? '' : String(Object.is(x, -0) ? 0 : x));
-
 /** key, joint, group, unit, nominal, calibrated, change, standard_error — one row per parameter. */
 export function parametersCsv(nominal: SetRow['nominal'], calibrated: SetRow['geometry'], standardErrors: Record<string, number | null>): string {
   const nom = new Map(parameterValues(nominal).map((p) => [p.key, p.value]));
   const cal = new Map(parameterValues(calibrated).map((p) => [p.key, p]));
-  const rows = ['key,joint,group,unit,nominal,calibrated,change,standard_error'];
+  const rows: CsvCell[][] = [['key', 'joint', 'group', 'unit', 'nominal', 'calibrated', 'change', 'standard_error']];
   for (const p of mergedOrder([parameterValues(calibrated)])) {
     const c = cal.get(p.key)!.value;
     const n = nom.get(p.key);
-    rows.push([p.key, field(p.joint ?? ''), p.group, p.unit, full(n), full(c), full(n === undefined ? null : c - n), full(standardErrors[p.key])].join(','));
+    rows.push([p.key, p.joint ?? '', p.group, p.unit, n, c, n === undefined ? null : c - n, standardErrors[p.key]]);
   }
-  return rows.join('\r\n') + '\r\n';
+  return csvText(rows);
 }
 
 interface BuiltFile {
