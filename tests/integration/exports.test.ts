@@ -147,9 +147,14 @@ describe('exports', () => {
       expect(Date.parse(own.approvedAt)).not.toBeNaN();
       expect(own.armModel.revision).toBe(1);
       for (const f of own.files) expect(sha(await zip.file(`${unit.serial}/${f.name}`)!.async('uint8array'))).toBe(f.sha256);
-      expect(own.files.map((f: { name: string }) => f.name)).toEqual(['geometry.json', 'parameters.csv', 'robot.urdf']);
+      expect(own.files.map((f: { name: string }) => f.name)).toEqual(['geometry.json', 'parameters.csv', 'robot.urdf', 'certificate.pdf']);
+      // The certificate in the zip is the one the certificate route serves (reproducible bytes).
+      const pdf = await zip.file(`${unit.serial}/certificate.pdf`)!.async('uint8array');
+      expect(new TextDecoder().decode(pdf.subarray(0, 5))).toBe('%PDF-');
+      const served = new Uint8Array(await (await service.fetch(`/api/parameter-sets/${unit.parameterSetId}/certificate`)).arrayBuffer());
+      expect(sha(served)).toBe(sha(pdf));
     }
-    expect(checked).toBe(8);
+    expect(checked).toBe(10);
     // The zip holds exactly the listed files plus the top-level manifest and SHA256SUMS.
     const listed = new Set(['manifest.json', 'SHA256SUMS', ...top.units.flatMap((u: { files: { path: string }[] }) => u.files.map((f) => f.path))]);
     const inZip = Object.values(zip.files).filter((f) => !f.dir).map((f) => f.name);
@@ -193,11 +198,11 @@ describe('exports', () => {
     const log = await quality.json('/api/exports?pageSize=200');
     expect(log.status).toBe(200);
     const mine = log.body.entries.filter((e: { items: { serial: string }[] }) => e.items.some((i) => i.serial === a.serial));
-    // json, csv, urdf singles (three of each for the rename check, one more URDF in the tracker frame) and one
-    // batch; the refused requests wrote nothing.
+    // json, csv, urdf singles (three of each for the rename check, one more URDF in the tracker frame), the
+    // certificate fetched beside the batch, and one batch; the refused requests wrote nothing.
     const count = (k: string) => mine.filter((e: { kind: string; format: string }) => `${e.kind}:${e.format}` === k).length;
-    expect([count('batch:zip'), count('single:json'), count('single:csv'), count('single:urdf')]).toEqual([1, 3, 3, 4]);
-    expect(mine).toHaveLength(11);
+    expect([count('batch:zip'), count('single:json'), count('single:csv'), count('single:urdf'), count('single:certificate')]).toEqual([1, 3, 3, 4, 1]);
+    expect(mine).toHaveLength(12);
     const batch = mine.find((e: { kind: string }) => e.kind === 'batch');
     expect(batch.userEmail).toBe(DEMO.service);
     expect(batch.items).toEqual([

@@ -20,6 +20,7 @@ import { SAFETY_CAUTION } from '../shared/safety';
 import { db as sharedDb, type Db } from './db';
 import { mergedOrder, parameterValues } from './parameter-values';
 import { sha256 } from './tokens';
+import { CERTIFICATE_FILE, renderCertificateFor } from './certificate';
 import { geometryToUrdf, type UrdfRoot } from './urdf';
 
 export const EXPORT_FORMATS = ['json', 'csv', 'urdf'] as const;
@@ -50,6 +51,8 @@ async function loadSets(where: { setIds?: string[]; unitIds?: string[] }, databa
       geometry: parameterSets.geometry,
       standardErrors: parameterSets.standardErrors,
       approvedAt: parameterSets.approvedAt,
+      approvedById: parameterSets.approvedBy,
+      comment: parameterSets.comment,
       frozen: parameterSets.frozen,
       certificateNo: parameterSets.certificateNo,
       unitId: units.id,
@@ -83,6 +86,12 @@ async function loadSets(where: { setIds?: string[]; unitIds?: string[] }, databa
     );
 }
 export type SetRow = Awaited<ReturnType<typeof loadSets>>[number];
+
+/** One approved set with what its files need; undefined when there is no such set. */
+export async function loadSet(setId: string, database: Db = sharedDb()): Promise<SetRow | undefined> {
+  const [s] = await loadSets({ setIds: [setId] }, database);
+  return s;
+}
 
 /** The sign convention every export file states. */
 export const CHANGE_CONVENTION = 'change = calibrated − nominal';
@@ -154,7 +163,7 @@ export function buildFiles(s: SetRow, urdfRoot: UrdfRoot = 'base'): BuiltFile[] 
   });
 }
 
-export function unitManifest(s: SetRow, files: BuiltFile[], exportedAt: string) {
+export function unitManifest(s: SetRow, files: BuiltFile[], exportedAt: string, certificate?: { bytes: number; sha256: string }) {
   return {
     format: 'offsetry-export/1',
     serial: s.serial,
@@ -167,12 +176,16 @@ export function unitManifest(s: SetRow, files: BuiltFile[], exportedAt: string) 
     fitId: s.fitId,
     engineVersion: s.engineVersion,
     exportedAt,
-    files: files.map((f) => ({ name: f.name, mediaType: MEDIA_TYPES[f.format], bytes: f.bytes.length, sha256: f.sha256 })),
+    files: [
+      ...files.map((f) => ({ name: f.name, mediaType: MEDIA_TYPES[f.format], bytes: f.bytes.length, sha256: f.sha256 })),
+      ...(certificate ? [{ name: CERTIFICATE_FILE, mediaType: 'application/pdf', ...certificate }] : []),
+    ],
+    certificate: certificateNumber(s),
     safety: SAFETY_CAUTION,
   };
 }
 
-async function logExport(database: Db, actor: ExportActor, kind: 'single' | 'batch', format: string, sets: SetRow[]) {
+export async function logExport(database: Db, actor: ExportActor, kind: 'single' | 'batch', format: string, sets: SetRow[]) {
   await database.insert(exportLog).values({
     userId: actor.id,
     kind,
@@ -217,7 +230,8 @@ function batchManifest(actor: ExportActor, exportedAt: string, entries: { s: Set
 }
 
 /**
- * Each unit's CURRENT set as a zip: <serial>/geometry.json, parameters.csv, robot.urdf, manifest.json, plus
+ * Each unit's CURRENT set as a zip: <serial>/geometry.json, parameters.csv, robot.urdf, certificate.pdf,
+ * manifest.json, plus
  * the top-level manifest.json and SHA256SUMS (every other file, in the format `sha256sum -c` reads: hex
  * digest, two spaces, path relative to the zip's root).
  */
@@ -246,7 +260,9 @@ export async function exportBatch(serials: string[], actor: ExportActor, databas
     const folder = s.currentSerial;
     const files = buildFiles(s);
     const listed = files.map((f) => add(`${folder}/${f.name}`, f.bytes));
-    const manifestBytes = new TextEncoder().encode(JSON.stringify(unitManifest(s, files, exportedAt), null, 2) + '\n');
+    const certificate = add(`${folder}/${CERTIFICATE_FILE}`, await renderCertificateFor(s, database));
+    listed.push(certificate);
+    const manifestBytes = new TextEncoder().encode(JSON.stringify(unitManifest(s, files, exportedAt, certificate), null, 2) + '\n');
     listed.push(add(`${folder}/manifest.json`, manifestBytes));
     entries.push({ s, files: listed });
   }
