@@ -60,6 +60,9 @@ async function ensureSystemTools() {
   if (!fs.existsSync('/usr/bin/chromium')) {
     await aptInstall(['chromium'], '/usr/bin/chromium is missing (browser tests)', say);
   }
+  if (!fs.existsSync('/usr/bin/pdftotext') || !fs.existsSync('/usr/bin/pdftoppm')) {
+    await aptInstall(['poppler-utils'], 'pdftotext / pdftoppm are missing (certificate text and page checks)', say);
+  }
   const python = await run('python3', ['-c', 'import scipy, sys; print(sys.executable)'], { allowFail: true });
   if (python.code !== 0) {
     await aptInstall(['python3-scipy'], 'python3 cannot import scipy (numerical reference checks)', say);

@@ -1,13 +1,12 @@
+import { csvText, type CsvCell } from '../lib/shared/csv';
+
 /**
- * Save rows as a CSV file in the browser — the numbers behind a chart, one click away. RFC 4180: fields with a
- * comma, quote or line break are quoted; CRLF line ends; empty cells for null / undefined.
+ * Save rows as a CSV file in the browser — the numbers behind a chart, one click away. Written by the
+ * product's one CSV writer (src/lib/shared/csv.ts): RFC 4180 quoting, CRLF, numbers at full precision,
+ * text that a spreadsheet would run as a formula neutralised.
  */
-export function downloadCsv(fileName: string, header: string[], rows: (string | number | null | undefined)[][]) {
-  const cell = (v: string | number | null | undefined) => {
-    const s = v === null || v === undefined ? '' : String(v);
-    return /[",\r\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
-  };
-  const text = [header, ...rows].map((r) => r.map(cell).join(',')).join('\r\n') + '\r\n';
+export function downloadCsv(fileName: string, header: string[], rows: CsvCell[][]) {
+  const text = csvText([header, ...rows]);
   const url = URL.createObjectURL(new Blob([text], { type: 'text/csv' }));
   const a = document.createElement('a');
   a.href = url;

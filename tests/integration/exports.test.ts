@@ -2,11 +2,17 @@
  * Exports: one file per format, the batch zip (unzipped with jszip; every SHA-256 checked against the
  * manifests), refusals, and the export log.
  */
+import { execFileSync } from 'node:child_process';
 import { createHash } from 'node:crypto';
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+import { eq } from 'drizzle-orm';
 import JSZip from 'jszip';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parseGeometry } from '../../src/lib/engine/geometry';
 import { forwardPoint } from '../../src/lib/engine/kinematics';
+import { armModels } from '../../src/db/schema';
 import { createDb } from '../../src/lib/server/db';
 import { chainPointMm, parseUrdf } from '../../src/lib/server/urdf-reader';
 import { approveSet, makeModel, makeUnit, moved, testArm } from '../support/approved-sets';
@@ -22,10 +28,11 @@ const calibratedA = moved(nominal, { 'J1.a': 0.123456789012345, 'J2.theta': 0.01
 
 describe('exports', () => {
   let service: Client, quality: Client;
-  let a: { serial: string; setId: string }, b: { serial: string; setId: string }, noSet: string;
+  let a: { serial: string; setId: string }, b: { serial: string; setId: string }, noSet: string, modelId: string;
 
   beforeAll(async () => {
     const m = await makeModel(db, nominal);
+    modelId = m.modelId;
     const ua = await makeUnit(db, m.revisionId), ub = await makeUnit(db, m.revisionId), uc = await makeUnit(db, m.revisionId);
     await approveSet(db, { unitId: ua.unitId, revisionId: m.revisionId, geometry: moved(nominal, { 'J1.a': 1 }) });
     const a2 = await approveSet(db, { unitId: ua.unitId, revisionId: m.revisionId, geometry: calibratedA, standardErrors: { 'J1.a': 0.0021, 'J2.theta': 0.0004, 'J1.d': null } });
@@ -42,7 +49,12 @@ describe('exports', () => {
     expect(res.headers.get('content-disposition')).toBe(`attachment; filename="${a.serial}-v2-geometry.json"`);
     const text = await res.text();
     expect(res.headers.get('x-content-sha256')).toBe(sha(text));
+    // The metadata block names what the file is; Offsetry's own reader accepts and ignores it.
+    const meta = JSON.parse(text).metadata;
+    expect(meta).toMatchObject({ serial: a.serial, parameterSet: { id: a.setId, version: 2 }, armModel: { revision: 1 }, units: { length: 'mm', angle: 'deg' }, signConvention: 'change = calibrated − nominal' });
+    expect(meta.certificate).toMatch(/^OC-\d{4}-\d{6}$/);
     const g = parseGeometry(text, 'export.json');
+    expect(g).not.toHaveProperty('metadata');
     expect(g.joints[0]!.a).toBe(calibratedA.joints[0]!.a);
     expect(g.joints[1]!.beta).toBe(calibratedA.joints[1]!.beta);
     expect(g.base).toEqual(calibratedA.base);
@@ -53,7 +65,7 @@ describe('exports', () => {
     expect(res.status).toBe(200);
     expect(res.headers.get('content-type')).toMatch(/^text\/csv/);
     const lines = (await res.text()).trimEnd().split('\r\n');
-    expect(lines[0]).toBe('key,joint,group,unit,nominal,calibrated,change,standard_error');
+    expect(lines[0]).toBe('key,joint,group,unit,nominal,calibrated,change_calibrated_minus_nominal,standard_error');
     const row = (key: string) => lines.find((l) => l.startsWith(key + ','))!.split(',');
     const j1a = row('J1.a');
     expect(j1a.slice(0, 5)).toEqual(['J1.a', 'J1', 'lengths', 'mm', '300']);
@@ -71,13 +83,35 @@ describe('exports', () => {
     expect(lines.some((l) => l.startsWith('tool.rx'))).toBe(false);
   });
 
-  it('URDF: the file read back reproduces the calibrated forward kinematics within 1e-6 mm', async () => {
+  it('URDF: rooted at the robot base by default, the tracker frame on request; both reproduce the calibrated forward kinematics', async () => {
     const res = await service.fetch(`/api/parameter-sets/${a.setId}/export?format=urdf`);
     expect(res.status).toBe(200);
     const robot = parseUrdf(await res.text(), 'export.urdf');
+    expect(robot.root).toBe('base');
+    const tracker = await service.fetch(`/api/parameter-sets/${a.setId}/export?format=urdf&frame=tracker`);
+    expect(tracker.headers.get('content-disposition')).toContain('robot-tracker-frame.urdf');
+    const inTracker = parseUrdf(await tracker.text(), 'tracker.urdf');
+    expect(inTracker.root).toBe('measurement');
     for (const q of [[0, 0, 0], [35, -80, 60], [-140, 130, 119.5]]) {
-      const e = forwardPoint(calibratedA, q), u = chainPointMm(robot, 'tool', q);
+      const e = forwardPoint({ ...calibratedA, base: undefined }, q), u = chainPointMm(robot, 'tool', q);
       expect(Math.hypot(e[0] - u[0], e[1] - u[1], e[2] - u[2])).toBeLessThan(1e-6);
+      const et = forwardPoint(calibratedA, q), ut = chainPointMm(inTracker, 'tool', q);
+      expect(Math.hypot(et[0] - ut[0], et[1] - ut[1], et[2] - ut[2])).toBeLessThan(1e-6);
+    }
+    expect((await service.json(`/api/parameter-sets/${a.setId}/export?format=urdf&frame=flange`)).status).toBe(400);
+  });
+
+  it('an approved set\'s files keep their bytes when the model is renamed later', async () => {
+    const before = await Promise.all(['json', 'csv', 'urdf'].map(async (f) => new Uint8Array(await (await service.fetch(`/api/parameter-sets/${a.setId}/export?format=${f}`)).arrayBuffer())));
+    const [model] = await db.select({ name: armModels.name }).from(armModels).where(eq(armModels.id, modelId));
+    await db.update(armModels).set({ name: `${model!.name} -- renamed` }).where(eq(armModels.id, modelId));
+    try {
+      const after = await Promise.all(['json', 'csv', 'urdf'].map(async (f) => new Uint8Array(await (await service.fetch(`/api/parameter-sets/${a.setId}/export?format=${f}`)).arrayBuffer())));
+      after.forEach((bytes, i) => expect(sha(bytes)).toBe(sha(before[i]!)));
+      expect(new TextDecoder().decode(after[2])).toContain(model!.name);
+      expect(new TextDecoder().decode(after[2])).not.toContain('renamed');
+    } finally {
+      await db.update(armModels).set({ name: model!.name }).where(eq(armModels.id, modelId));
     }
   });
 
@@ -93,7 +127,8 @@ describe('exports', () => {
     const res = await service.fetch('/api/exports', { method: 'POST', json: { serials: [a.serial, b.serial] } });
     expect(res.status).toBe(200);
     expect(res.headers.get('content-type')).toBe('application/zip');
-    const zip = await JSZip.loadAsync(new Uint8Array(await res.arrayBuffer()));
+    const zipBytes = new Uint8Array(await res.arrayBuffer());
+    const zip = await JSZip.loadAsync(zipBytes);
     const top = JSON.parse(await zip.file('manifest.json')!.async('string'));
     expect(top.format).toBe('offsetry-export-batch/1');
     expect(top.exportedBy.email).toBe(DEMO.service);
@@ -112,13 +147,40 @@ describe('exports', () => {
       expect(Date.parse(own.approvedAt)).not.toBeNaN();
       expect(own.armModel.revision).toBe(1);
       for (const f of own.files) expect(sha(await zip.file(`${unit.serial}/${f.name}`)!.async('uint8array'))).toBe(f.sha256);
-      expect(own.files.map((f: { name: string }) => f.name)).toEqual(['geometry.json', 'parameters.csv', 'robot.urdf']);
+      expect(own.files.map((f: { name: string }) => f.name)).toEqual(['geometry.json', 'parameters.csv', 'robot.urdf', 'certificate.pdf']);
+      // The certificate in the zip is the one the certificate route serves (reproducible bytes).
+      const pdf = await zip.file(`${unit.serial}/certificate.pdf`)!.async('uint8array');
+      expect(new TextDecoder().decode(pdf.subarray(0, 5))).toBe('%PDF-');
+      const served = new Uint8Array(await (await service.fetch(`/api/parameter-sets/${unit.parameterSetId}/certificate`)).arrayBuffer());
+      expect(sha(served)).toBe(sha(pdf));
     }
-    expect(checked).toBe(8);
-    // The zip holds exactly the listed files plus the top-level manifest.
-    const listed = new Set(['manifest.json', ...top.units.flatMap((u: { files: { path: string }[] }) => u.files.map((f) => f.path))]);
+    expect(checked).toBe(10);
+    // The zip holds exactly the listed files plus the top-level manifest and SHA256SUMS.
+    const listed = new Set(['manifest.json', 'SHA256SUMS', ...top.units.flatMap((u: { files: { path: string }[] }) => u.files.map((f) => f.path))]);
     const inZip = Object.values(zip.files).filter((f) => !f.dir).map((f) => f.name);
     expect(new Set(inZip)).toEqual(listed);
+
+    // Outside tools: Info-ZIP's unzip extracts it, GNU coreutils' sha256sum -c verifies every line of SHA256SUMS.
+    const dir = mkdtempSync(path.join(tmpdir(), 'offsetry-zip-'));
+    try {
+      writeFileSync(path.join(dir, 'batch.zip'), zipBytes);
+      execFileSync('unzip', ['-q', 'batch.zip', '-d', 'out'], { cwd: dir });
+      const ok = execFileSync('sha256sum', ['-c', 'SHA256SUMS'], { cwd: path.join(dir, 'out') }).toString();
+      const lines = ok.trim().split('\n');
+      expect(lines.every((l) => l.endsWith(': OK'))).toBe(true);
+      expect(lines).toHaveLength(inZip.length - 1);
+      // The check can fail: one changed byte is reported.
+      writeFileSync(path.join(dir, 'out', a.serial, 'parameters.csv'), 'changed');
+      let failed = '';
+      try {
+        execFileSync('sha256sum', ['-c', '--quiet', 'SHA256SUMS'], { cwd: path.join(dir, 'out'), stdio: 'pipe' });
+      } catch (e) {
+        failed = String((e as { stdout?: Buffer }).stdout ?? '');
+      }
+      expect(failed).toContain(`${a.serial}/parameters.csv: FAILED`);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
   });
 
   it('batch refusals list every unknown serial and every unit without an approved set', async () => {
@@ -136,8 +198,11 @@ describe('exports', () => {
     const log = await quality.json('/api/exports?pageSize=200');
     expect(log.status).toBe(200);
     const mine = log.body.entries.filter((e: { items: { serial: string }[] }) => e.items.some((i) => i.serial === a.serial));
-    // json, csv, urdf singles and one batch; the refused requests wrote nothing.
-    expect(mine.map((e: { kind: string; format: string }) => `${e.kind}:${e.format}`).sort()).toEqual(['batch:zip', 'single:csv', 'single:json', 'single:urdf']);
+    // json, csv, urdf singles (three of each for the rename check, one more URDF in the tracker frame), the
+    // certificate fetched beside the batch, and one batch; the refused requests wrote nothing.
+    const count = (k: string) => mine.filter((e: { kind: string; format: string }) => `${e.kind}:${e.format}` === k).length;
+    expect([count('batch:zip'), count('single:json'), count('single:csv'), count('single:urdf'), count('single:certificate')]).toEqual([1, 3, 3, 4, 1]);
+    expect(mine).toHaveLength(12);
     const batch = mine.find((e: { kind: string }) => e.kind === 'batch');
     expect(batch.userEmail).toBe(DEMO.service);
     expect(batch.items).toEqual([

@@ -150,7 +150,7 @@ describe('converter check: URDF chain = engine forward kinematics within 1e-6 mm
   for (const [label, nominal] of variants) {
     it(label, () => {
       const g = calibratedLike(nominal, 7);
-      const text = geometryToUrdf(g, { comment: ['test -- export'] });
+      const text = geometryToUrdf(g, { comment: ['test -- export'], root: 'tracker' });
       const robot = parseUrdf(text, `${label}.urdf`);
       expect(robot.root).toBe('measurement');
       const movable = chainTo(robot, 'tool').filter((j) => j.type !== 'fixed');
@@ -176,7 +176,7 @@ describe('converter check: URDF chain = engine forward kinematics within 1e-6 mm
 
   it('fails when the geometry is not the one written (the check can fail)', () => {
     const g = calibratedLike(sixAxisDh(), 3);
-    const robot = parseUrdf(geometryToUrdf(g));
+    const robot = parseUrdf(geometryToUrdf(g, { root: 'tracker' }));
     const moved = { ...g, joints: g.joints.map((j, i) => (i === 2 ? { ...j, beta: j.beta! + 0.001 } : j)) };
     const q = [10, -20, 30, 40, -50, 60];
     const a = forwardPoint(moved, q), b = chainPointMm(robot, 'tool', q);
@@ -185,8 +185,9 @@ describe('converter check: URDF chain = engine forward kinematics within 1e-6 mm
 
   it('writes one origin per joint plus base and tool, no extra joints', () => {
     const g = sixAxisMdh();
-    const plan = planUrdfJoints(g);
-    expect(plan.map((j) => j.name)).toEqual(['base_frame', ...g.joints.map((j) => j.name), 'tool_point']);
+    expect(planUrdfJoints(g, 'tracker').map((j) => j.name)).toEqual(['base_frame', ...g.joints.map((j) => j.name), 'tool_point']);
+    // Rooted at the robot base (the default): no measurement link, no base_frame joint.
+    expect(planUrdfJoints(g).map((j) => j.name)).toEqual([...g.joints.map((j) => j.name), 'tool_point']);
     const text = geometryToUrdf({ ...g, joints: g.joints.map(({ min, max, ...j }) => j) });
     expect(parseUrdf(text).joints.filter((j) => j.type === 'continuous')).toHaveLength(6);
   });

@@ -6,6 +6,27 @@ import { fits } from './fits';
 import { units } from './units';
 import { users } from './users';
 
+/**
+ * What an approved set's exports and certificate say about the world at approval, frozen in the row so that
+ * renaming a model, moving a unit or renaming a person later never changes the bytes of an approved set's
+ * files. Filled by a BEFORE INSERT trigger (migrations) from the unit, the fit's session, its arm model
+ * revision and the approver; immutable afterwards like the rest of the row.
+ */
+export interface FrozenFacts {
+  serial: string;
+  site: string;
+  cell: string;
+  modelId: string;
+  modelName: string;
+  manufacturer: string;
+  revision: number;
+  approverName: string;
+  approverEmail: string;
+  /** Who ran the fit and who submitted it for review (names at approval; '' when unknown). */
+  runByName: string;
+  submittedByName: string;
+}
+
 export const PARAMETER_SET_STATES = ['current', 'superseded'] as const;
 export type ParameterSetState = (typeof PARAMETER_SET_STATES)[number];
 
@@ -27,6 +48,10 @@ export const parameterSets = pgTable(
     approvedBy: uuid().notNull().references(() => users.id),
     approvedAt: timestamp({ withTimezone: true }).notNull().defaultNow(),
     comment: text().notNull().default(''),
+    /** Facts frozen at approval (trigger-filled; see FrozenFacts). */
+    frozen: jsonb().$type<FrozenFacts>(),
+    /** Running number of the calibration certificate, unique, given by the database at approval. */
+    certificateNo: integer().generatedAlwaysAsIdentity().notNull().unique(),
     createdAt: createdAt(),
   },
   (t) => [

@@ -54,6 +54,11 @@ export const armGeometrySchema = z
     joints: z.array(jointSchema, { error: 'joints must be a list of joint rows' }).min(1, 'joints must list at least one joint'),
     base: frameSchema.optional(),
     tool: frameSchema.optional(),
+    /**
+     * Descriptive block written by Offsetry's exports (serial, version, units, sign convention …). Accepted
+     * as any JSON object and ignored: it never becomes part of the geometry.
+     */
+    metadata: z.record(z.string(), z.unknown(), { error: 'metadata must be a JSON object' }).optional(),
   })
   .superRefine(
     (g, ctx) => {
@@ -257,16 +262,22 @@ function zodProblems(error: z.ZodError, fileName: string, lines?: Map<string, nu
 }
 
 function expectedKeys(path: readonly PropertyKey[]): string {
-  if (path.length === 0) return 'format, name, convention, joints, base, tool';
+  if (path.length === 0) return 'format, name, convention, joints, base, tool, metadata';
   if (path[0] === 'joints') return 'name, type, a, alpha, d, theta, beta, min, max';
   return 'x, y, z, rx, ry, rz';
+}
+
+/** The geometry alone: an export's metadata block is read past, never kept. */
+function withoutMetadata(g: z.infer<typeof armGeometrySchema>): ArmGeometry {
+  const { metadata: _ignored, ...geometry } = g;
+  return geometry as ArmGeometry;
 }
 
 /** Validate an already-parsed value (e.g. an API body) against the schema; throws EngineInputError. */
 export function validateGeometry(value: unknown, fileName = 'geometry'): ArmGeometry {
   const r = armGeometrySchema.safeParse(value);
   if (!r.success) throw new EngineInputError(zodProblems(r.error, fileName));
-  return r.data as ArmGeometry;
+  return withoutMetadata(r.data);
 }
 
 /**
@@ -287,7 +298,7 @@ export function parseGeometry(text: string, fileName: string): ArmGeometry {
   }
   const r = armGeometrySchema.safeParse(located.value);
   if (!r.success) throw new EngineInputError(zodProblems(r.error, fileName, located.lines));
-  return r.data as ArmGeometry;
+  return withoutMetadata(r.data);
 }
 
 function checkFinite(v: number, where: string): number {
@@ -299,7 +310,7 @@ function checkFinite(v: number, where: string): number {
  * Pretty JSON with a stable key order. Numbers go through JSON.stringify, whose output is the shortest
  * text that reads back to the identical double (ECMA-262 Number::toString), so nothing is rounded.
  */
-export function serializeGeometry(g: ArmGeometry): string {
+export function serializeGeometry(g: ArmGeometry, metadata?: Record<string, unknown>): string {
   const frame = (f: NonNullable<ArmGeometry['base']>, w: string) => ({
     x: checkFinite(f.x, `${w}.x`),
     y: checkFinite(f.y, `${w}.y`),
@@ -310,6 +321,7 @@ export function serializeGeometry(g: ArmGeometry): string {
   });
   const out: Record<string, unknown> = {
     format: GEOMETRY_FORMAT,
+    ...(metadata ? { metadata } : {}),
     name: g.name,
     convention: g.convention,
     joints: g.joints.map((j, i) => {

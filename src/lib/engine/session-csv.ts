@@ -7,6 +7,7 @@
  */
 import { isUtf8 } from 'node:buffer';
 import { parse, CsvError } from 'csv-parse';
+import { csvText, type CsvCell } from '../shared/csv';
 import type { ArmGeometry, InputProblem, SessionPose } from './types';
 
 export interface ParseSessionOptions {
@@ -533,10 +534,6 @@ function readRow(
 
 // ---- writing ------------------------------------------------------------------------------------
 
-function csvCell(s: string): string {
-  return /[",\r\n]/.test(s) || s !== s.trim() ? `"${s.replace(/"/g, '""')}"` : s;
-}
-
 /**
  * Write poses in the session format (full double precision via Number→string, which round-trips).
  * The split column is written when any pose has one.
@@ -544,14 +541,14 @@ function csvCell(s: string): string {
 export function sessionToCsv(poses: SessionPose[], jointCount: number): string {
   const withSplit = poses.some((p) => p.split !== undefined);
   const qs = Array.from({ length: jointCount }, (_, k) => `q${k + 1}`);
-  const lines = [['pose', ...qs, 'x', 'y', 'z', ...(withSplit ? ['split'] : [])].join(',')];
+  const rows: CsvCell[][] = [['pose', ...qs, 'x', 'y', 'z', ...(withSplit ? ['split'] : [])]];
   for (const p of poses) {
     if (p.q.length !== jointCount) throw new Error(`pose ${p.label}: ${p.q.length} joint values, expected ${jointCount}`);
-    const cells = [csvCell(p.label), ...p.q.map(String), String(p.x), String(p.y), String(p.z)];
+    const cells: CsvCell[] = [p.label, ...p.q, p.x, p.y, p.z];
     if (withSplit) cells.push(p.split ?? '');
-    lines.push(cells.join(','));
+    rows.push(cells);
   }
-  return lines.join('\n') + '\n';
+  return csvText(rows, { eol: '\n' });
 }
 
 /**
@@ -562,10 +559,10 @@ export function sessionToCsv(poses: SessionPose[], jointCount: number): string {
 export function planToCsv(q: number[][], geometry: ArmGeometry, decimals = 3): string {
   const n = geometry.joints.length;
   const width = String(q.length).length;
-  const lines = [['pose', ...Array.from({ length: n }, (_, k) => `q${k + 1}`)].join(',')];
+  const rows: CsvCell[][] = [['pose', ...Array.from({ length: n }, (_, k) => `q${k + 1}`)]];
   q.forEach((row, i) => {
     if (row.length !== n) throw new Error(`plan row ${i + 1}: ${row.length} joint values, expected ${n}`);
-    lines.push([`P${String(i + 1).padStart(width, '0')}`, ...row.map((v) => String(Number(v.toFixed(decimals)) || 0))].join(','));
+    rows.push([`P${String(i + 1).padStart(width, '0')}`, ...row.map((v) => Number(v.toFixed(decimals)) || 0)]);
   });
-  return lines.join('\n') + '\n';
+  return csvText(rows, { eol: '\n' });
 }

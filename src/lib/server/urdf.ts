@@ -11,12 +11,19 @@
  * are regrouped so every joint's motion is a rotation about / translation along its local z axis: the
  * constant factors after one joint's motion are carried forward into the next joint's origin. A product of
  * rigid transforms is one rigid transform, and xyz + rpy express every rigid transform, so one origin per
- * joint always suffices — no intermediate fixed joints are needed for dh or mdh. Base (the robot base in the
- * measurement frame) and tool (the target point on the flange) are fixed joints.
+ * joint always suffices — no intermediate fixed joints are needed for dh or mdh. The tool (the target point
+ * on the flange) is a fixed joint.
  *
- * Pure code (no Node-only imports); numbers are written with full precision (the shortest decimal that reads
- * back to the same double, ECMA-262 Number::toString).
+ * Root: by default the URDF is rooted at the robot base (link "base"), which is what a controller or a
+ * simulator expects. The tracker (measurement) frame of the calibration session is an explicit option
+ * (`root: 'tracker'`): then a fixed joint "base_frame" places the base in the link "measurement".
+ *
+ * The document is built by xmlbuilder2 (attribute values escaped by the library, and written with
+ * `wellFormed: true`, so an invalid name or comment throws instead of producing broken XML). Numbers are
+ * written with full precision (the shortest decimal that reads back to the same double, ECMA-262
+ * Number::toString).
  */
+import { create } from 'xmlbuilder2';
 import type { ArmGeometry, FrameSpec } from '../engine/types';
 
 const DEG = Math.PI / 180;
@@ -79,9 +86,29 @@ export const num = (x: number): string => {
   return String(Object.is(x, -0) ? 0 : x);
 };
 
-export function escapeXml(s: string): string {
-  return s.replace(/[&<>"']/g, (c) => ({ '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&apos;' })[c]!);
+/** Where the URDF tree starts: the robot base (default) or the tracker frame of the session. */
+export type UrdfRoot = 'base' | 'tracker';
+export const URDF_ROOTS: readonly UrdfRoot[] = ['base', 'tracker'];
+
+/**
+ * Text safe inside an XML comment: XML 1.0 forbids "--" inside a comment and a "-" right before its end
+ * (w3.org/TR/xml, production [15]); runs of hyphens become one, and characters XML cannot carry at all
+ * (controls other than tab / line feed / carriage return, lone surrogates) are dropped.
+ */
+export function commentSafe(s: string): string {
+  return s
+    .replace(/[^\t\n\r\x20-\ud7ff\ue000-\ufffd\u{10000}-\u{10ffff}]/gu, '')
+    .replace(/-{2,}/g, '-')
+    .replace(/-$/, '- ');
 }
+
+/**
+ * Text for an attribute value. The builder escapes <, >, " and a bare &, but deliberately leaves anything
+ * that looks like an entity reference ("&x;") as it is, which would let a name carry an entity into the
+ * file; so every & is written as &amp; here first (the builder keeps "&amp;" as is). Characters XML cannot
+ * carry are dropped.
+ */
+const attrSafe = (s: string) => s.replace(/[^\t\n\r\x20-\ud7ff\ue000-\ufffd\u{10000}-\u{10ffff}]/gu, '').replace(/&/g, '&amp;');
 
 /** One URDF joint as the writer plans it (also used by tests to inspect the decomposition). */
 export interface PlannedJoint {
@@ -97,9 +124,9 @@ export interface PlannedJoint {
 }
 
 /** The chain of URDF joints for a geometry: base, one per arm joint, tool. */
-export function planUrdfJoints(g: ArmGeometry): PlannedJoint[] {
+export function planUrdfJoints(g: ArmGeometry, root: UrdfRoot = 'base'): PlannedJoint[] {
   const out: PlannedJoint[] = [];
-  out.push({ name: 'base_frame', type: 'fixed', parent: 'measurement', child: 'base', origin: frameMatrix(g.base) });
+  if (root === 'tracker') out.push({ name: 'base_frame', type: 'fixed', parent: 'measurement', child: 'base', origin: frameMatrix(g.base) });
   let carried = identity();
   let parent = 'base';
   g.joints.forEach((j, i) => {
@@ -146,42 +173,39 @@ export function planUrdfJoints(g: ArmGeometry): PlannedJoint[] {
 export interface UrdfOptions {
   /** Robot name attribute; default the geometry's name. */
   robotName?: string;
-  /** Lines for the leading XML comment (serial number, version …). */
+  /** Lines for the leading XML comment (serial number, version …); made comment-safe. */
   comment?: string[];
+  /** Root of the tree; default 'base' (the robot base), 'tracker' adds the measurement frame above it. */
+  root?: UrdfRoot;
 }
 
 /** The URDF document text. Links carry no inertial/visual data: the file describes geometry only. */
 export function geometryToUrdf(g: ArmGeometry, options: UrdfOptions = {}): string {
-  const joints = planUrdfJoints(g);
-  const links = ['measurement', 'base', ...g.joints.map((_, i) => `link_${i + 1}`), 'tool'];
-  const lines: string[] = ['<?xml version="1.0" encoding="UTF-8"?>'];
-  if (options.comment?.length) {
-    lines.push('<!--');
-    // "--" is not allowed inside an XML comment.
-    for (const c of options.comment) lines.push('  ' + c.replace(/--/g, '- -'));
-    lines.push('-->');
-  }
-  lines.push(`<robot name="${escapeXml(options.robotName ?? g.name)}">`);
-  for (const l of links) lines.push(`  <link name="${l}"/>`);
+  const root = options.root ?? 'base';
+  const joints = planUrdfJoints(g, root);
+  const links = [...(root === 'tracker' ? ['measurement'] : []), 'base', ...g.joints.map((_, i) => `link_${i + 1}`), 'tool'];
+  const doc = create({ version: '1.0', encoding: 'UTF-8' });
+  if (options.comment?.length) doc.com('\n' + options.comment.map((c) => '  ' + commentSafe(c)).join('\n') + '\n');
+  const robot = doc.ele('robot', { name: attrSafe(options.robotName ?? g.name) });
+  for (const l of links) robot.ele('link', { name: l });
   for (const j of joints) {
     const o = j.origin;
     const [roll, pitch, yaw] = rpyOf(o);
-    const xyz = [o[3]! / 1000, o[7]! / 1000, o[11]! / 1000].map(num).join(' ');
-    lines.push(`  <joint name="${escapeXml(j.name)}" type="${j.type}">`);
-    lines.push(`    <parent link="${j.parent}"/>`);
-    lines.push(`    <child link="${j.child}"/>`);
-    lines.push(`    <origin xyz="${xyz}" rpy="${[roll, pitch, yaw].map(num).join(' ')}"/>`);
+    const joint = robot.ele('joint', { name: attrSafe(j.name), type: j.type });
+    joint.ele('parent', { link: j.parent });
+    joint.ele('child', { link: j.child });
+    joint.ele('origin', { xyz: [o[3]! / 1000, o[7]! / 1000, o[11]! / 1000].map(num).join(' '), rpy: [roll, pitch, yaw].map(num).join(' ') });
     if (j.type !== 'fixed') {
-      lines.push('    <axis xyz="0 0 1"/>');
+      joint.ele('axis', { xyz: '0 0 1' });
       if (j.type !== 'continuous') {
         // effort and velocity are required attributes of <limit>; Offsetry carries geometry only, so they are 0
         // and the integrator fills in the drive's values (README, "Export files").
-        const bounds = (j.lower !== undefined ? ` lower="${num(j.lower)}"` : '') + (j.upper !== undefined ? ` upper="${num(j.upper)}"` : '');
-        lines.push(`    <limit${bounds} effort="0" velocity="0"/>`);
+        const limit: Record<string, string> = {};
+        if (j.lower !== undefined) limit.lower = num(j.lower);
+        if (j.upper !== undefined) limit.upper = num(j.upper);
+        joint.ele('limit', { ...limit, effort: '0', velocity: '0' });
       }
     }
-    lines.push('  </joint>');
   }
-  lines.push('</robot>', '');
-  return lines.join('\n');
+  return doc.end({ prettyPrint: true, indent: '  ', wellFormed: true }) + '\n';
 }

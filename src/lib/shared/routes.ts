@@ -22,6 +22,7 @@ const REVIEWERS: readonly Role[] = ['engineer', 'admin'];
 const MODEL_EDITORS: readonly Role[] = ['engineer', 'admin'];
 const EXPORTERS: readonly Role[] = ['service', 'admin'];
 const FLEET_VIEWERS: readonly Role[] = ['quality', 'engineer', 'admin'];
+const CERTIFICATE_READERS: readonly Role[] = ['quality', 'service', 'engineer', 'admin'];
 
 export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/health', methods: { GET: 'public' } },
@@ -63,6 +64,9 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/alerts', methods: { GET: FLEET_VIEWERS } },
   { pattern: '/api/alerts/[id]/acknowledge', methods: { POST: FLEET_VIEWERS } },
   { pattern: '/api/parameter-sets/[id]/export', methods: { GET: EXPORTERS } },
+  // Calibration certificate (PDF) and the before/after accuracy map of an approved set
+  { pattern: '/api/parameter-sets/[id]/certificate', methods: { GET: CERTIFICATE_READERS } },
+  { pattern: '/api/parameter-sets/[id]/accuracy-map', methods: { GET: CERTIFICATE_READERS } },
   { pattern: '/api/exports', methods: { GET: ['service', 'quality', 'admin'], POST: EXPORTERS } },
 ];
 

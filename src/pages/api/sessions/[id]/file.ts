@@ -4,7 +4,11 @@ import { isUuid, json, problems } from '../../../../lib/server/http';
 import { log } from '../../../../lib/server/log';
 import { sessionFileStream } from '../../../../lib/server/sessions';
 
-/** The original file, byte for byte as uploaded, streamed from S3. */
+/**
+ * The original file, byte for byte as uploaded, streamed from S3. It is the record of what was measured, so
+ * it is NOT passed through the CSV writer (no formula neutralisation); the response says so in
+ * `x-offsetry-file`. Every CSV Offsetry writes itself goes through src/lib/shared/csv.ts.
+ */
 export const GET: APIRoute = async ({ params, locals }) => {
   if (!isUuid(params.id)) return problems(404, 'No such session.');
   let file: Awaited<ReturnType<typeof sessionFileStream>>;
@@ -24,6 +28,7 @@ export const GET: APIRoute = async ({ params, locals }) => {
       'content-length': String(file.bytes),
       'content-disposition': `attachment; filename="${ascii}"; filename*=UTF-8''${encodeURIComponent(file.fileName)}`,
       'x-content-sha256': file.sha256,
+      'x-offsetry-file': 'original upload, unchanged (not rewritten or neutralised by Offsetry)',
       'cache-control': 'private, no-store',
     },
   });

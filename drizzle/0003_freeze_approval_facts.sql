@@ -1,0 +1,3 @@
+ALTER TABLE "parameter_sets" ADD COLUMN "frozen" jsonb;--> statement-breakpoint
+ALTER TABLE "parameter_sets" ADD COLUMN "certificate_no" integer NOT NULL GENERATED ALWAYS AS IDENTITY (sequence name "parameter_sets_certificate_no_seq" INCREMENT BY 1 MINVALUE 1 MAXVALUE 2147483647 START WITH 1 CACHE 1);--> statement-breakpoint
+ALTER TABLE "parameter_sets" ADD CONSTRAINT "parameter_sets_certificateNo_unique" UNIQUE("certificate_no");
