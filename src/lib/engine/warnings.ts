@@ -164,7 +164,7 @@ export function excitationWarnings(x: ExcitationInput): FitWarning[] {
       spans.push(`${j.name} spans ${span.toFixed(1)}${u} of ${range.toFixed(0)}${u}`);
     }
   });
-  const plan = 'The pose planner (offsetry plan, or "Plan poses" on the unit page) can propose poses that move every joint.';
+  const plan = 'The pose planner (offsetry plan, or "Pose plan for the next visit" on the unit page) can propose poses that move every joint.';
   if (still.length) {
     out.push({
       code: 'joint-barely-moves', severity: 'warning', subjects: still,
@@ -188,7 +188,7 @@ export function excitationWarnings(x: ExcitationInput): FitWarning[] {
     out.push({
       code: 'large-standard-errors', severity: 'warning', subjects: big.map((p) => p.key),
       message: `${big.length} standard error${big.length === 1 ? ' is' : 's are'} above this arm's limits (rule: lengths above ${lengthLimit.toFixed(3)} mm; an angle above the one that moves the tool point by ${lengthLimit.toFixed(3)} mm at the reach of the links after it): ${shown.join(', ')}${big.length > 6 ? ', …' : ''}.`,
-      advice: `These parameters are poorly determined by the poses. ${still.length ? `Move ${still.join(', ')} more; ` : ''}add poses that vary the joints these parameters belong to. ${plan}`,
+      advice: `These parameters are poorly determined by the poses. ${still.length ? `Move ${still.join(', ')} more, and add` : 'Add'} poses that vary the joints these parameters belong to. ${plan}`,
     });
   }
   if (x.highCorrelations.length) {
