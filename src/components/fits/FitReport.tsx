@@ -1,8 +1,9 @@
-import { useEffect, useMemo, useState } from 'react';
+import { useEffect, useId, useMemo, useRef, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Legend, ResponsiveContainer, Scatter, ScatterChart, Tooltip, XAxis, YAxis } from 'recharts';
 import type { FitReport as EngineReport, ParameterReport, PoseResidual } from '../../lib/engine/fit';
 import type { ErrorStats } from '../../lib/engine/types';
 import { api, type ApiError } from '../../lib/shared/api-client';
+import { focusResult, openResult, useFocusWhen } from '../../lib/shared/focus';
 import { byUnit, downloadCsv, FIT_STATE_LABEL, GROUP_LABEL, GROUP_ORDER, mm, REVIEW_STATE_LABEL, sci, when } from './format';
 
 /** The fit as GET /api/fits/{id} returns it (dates as ISO strings). */
@@ -49,10 +50,13 @@ const CHART_LIMIT = 1500;
 
 function Numbers({ name, header, rows, children }: { name: string; header: string[]; rows: (string | number | null)[][]; children?: React.ReactNode }) {
   const [shown, setShown] = useState(false);
+  // The chart's text alternative: the button names the table it opens, and the table takes focus when shown.
+  const id = useId();
+  const tableRef = useFocusWhen<HTMLDivElement>(shown);
   return (
     <div className="mt-2">
       <div className="flex flex-wrap gap-2">
-        <button type="button" className="btn btn-quiet" aria-expanded={shown} onClick={() => setShown(!shown)}>
+        <button type="button" className="btn btn-quiet" aria-expanded={shown} aria-controls={id} onClick={() => setShown(!shown)}>
           {shown ? 'Hide the numbers' : 'Show the numbers'}
         </button>
         <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(name, header, rows)}>
@@ -60,7 +64,7 @@ function Numbers({ name, header, rows, children }: { name: string; header: strin
         </button>
       </div>
       {shown && (
-        <div className="mt-2 max-h-96 overflow-auto">
+        <div id={id} ref={tableRef} className="mt-2 max-h-96 overflow-auto" role="region" aria-label={`Numbers behind the chart (${name})`}>
           {children ?? (
             <table className="data-table">
               <thead>
@@ -91,7 +95,7 @@ function StatsTable({ report }: { report: EngineReport }) {
     ...(report.statistics.holdout ? ([['Hold-out poses', report.statistics.holdout.before, report.statistics.holdout.after]] as [string, ErrorStats, ErrorStats][]) : []),
   ];
   return (
-    <table className="data-table" data-fit-statistics>
+    <table className="data-table no-sticky" data-fit-statistics>
       <thead>
         <tr>
           <th>Poses</th><th>Geometry</th><th className="num">n</th><th className="num">RMS (mm)</th><th className="num">Mean (mm)</th><th className="num">Max (mm)</th><th className="num">95th pct (mm)</th>
@@ -121,7 +125,7 @@ function StatsTable({ report }: { report: EngineReport }) {
 }
 
 function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: string }) {
-  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, role: p.role, before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
+  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, poseRole: p.role, before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
   const histogram = useMemo(() => {
     const used = poses.filter((p) => p.role !== 'excluded');
     const top = Math.max(...used.map((p) => Math.max(p.errorBefore, p.errorAfter)), 1e-6);
@@ -332,6 +336,16 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
   useEffect(() => setHydrated(true), []);
 
   const waiting = fit.state === 'queued' || fit.state === 'running';
+  // When the fit finishes while the page is open, focus moves to its result (or its error).
+  const wasWaiting = useRef(waiting);
+  const resultRef = useRef<HTMLHeadingElement>(null);
+  const failedRef = useRef<HTMLDivElement>(null);
+  useEffect(() => {
+    if (wasWaiting.current && !waiting) focusResult(fit.state === 'failed' ? failedRef.current : resultRef.current);
+    wasWaiting.current = waiting;
+  }, [waiting, fit.state]);
+  const messageRef = useFocusWhen<HTMLParagraphElement>(message);
+  const errorRef = useFocusWhen<HTMLDivElement>(error);
   useEffect(() => {
     if (!waiting) return;
     let stop = false;
@@ -370,7 +384,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
       setBusy(false);
       return;
     }
-    location.href = `/fits/${res.data.id}`;
+    openResult(`/fits/${res.data.id}`);
   }
 
   async function submit() {
@@ -402,7 +416,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           </p>
         )}
         {fit.state === 'failed' && (
-          <div className="notice notice-error mt-3" role="alert">
+          <div ref={failedRef} className="notice notice-error mt-3" role="alert">
             <p className="font-semibold">✕ The fit failed</p>
             <p>{fit.error}</p>
           </div>
@@ -424,7 +438,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
       {report && (
         <>
           <section className="card mb-6">
-            <h2 className="mb-2">Accuracy before and after</h2>
+            <h2 className="mb-2" ref={resultRef}>Accuracy before and after</h2>
             <StatsTable report={report} />
             {report.registration.registered && <p className="mt-2 text-sm text-ink-soft">The tracker frame was registered to the robot base first (rigid fit, RMS {mm(report.registration.rmsMm)} mm); “before” uses that registered nominal.</p>}
           </section>
@@ -491,9 +505,9 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           </button>
         </section>
       )}
-      {message && <p className="notice mb-4" role="status">✓ {message}</p>}
+      {message && <p ref={messageRef} className="notice mb-4" role="status">✓ {message}</p>}
       {error && (
-        <div className="notice notice-error mb-4" role="alert">
+        <div ref={errorRef} className="notice notice-error mb-4" role="alert">
           <p className="font-semibold">✕ {error.error}</p>
           {error.errors.map((p, i) => <p key={i}>{p.field ? `${p.field}: ` : ''}{p.message}</p>)}
         </div>
