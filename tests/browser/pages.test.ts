@@ -182,9 +182,21 @@ async function checkPage(page: Page, visitor: Visitor, route: string, target: st
       });
       problems.push({ page: target, width, what: `document is ${size.doc} px wide in a ${size.win} px window; widest: ${wide.join('; ')}` });
     }
+    // Every navigation item is on screen, or behind a visible Menu button: never silently cut off.
+    const nav = await page.evaluate(() => {
+      const links = Array.from(document.querySelectorAll<HTMLElement>('nav[aria-label="Main"] a'));
+      const toggle = document.querySelector<HTMLElement>('[data-nav-toggle]');
+      const shown = (el: HTMLElement) => {
+        const r = el.getBoundingClientRect();
+        const box = el.closest('nav')!.getBoundingClientRect();
+        return el.offsetParent !== null && r.width > 0 && r.right <= Math.min(innerWidth, box.right) + 1 && r.left >= box.left - 1;
+      };
+      return { hidden: links.filter((a) => !shown(a)).map((a) => a.textContent!.trim()), menu: !!toggle && !toggle.hidden && toggle.offsetParent !== null };
+    });
+    if (nav.hidden.length && !nav.menu) problems.push({ page: target, width, what: `navigation items out of sight without a Menu button: ${nav.hidden.join(', ')}` });
     if (width === 390) {
       const small = await page.evaluate(() =>
-        Array.from(document.querySelectorAll<HTMLElement>('main button, main .btn, main select, main input:not([type=checkbox]):not([type=radio]):not([type=hidden]):not([type=file]), header a, header button'))
+        Array.from(document.querySelectorAll<HTMLElement>('main button, main .btn, main select, main input:not([type=checkbox]):not([type=radio]):not([type=hidden]):not([type=file]), body > header a, body > header button'))
           .filter((el) => el.offsetParent !== null && !el.closest('.recharts-wrapper'))
           .filter((el) => el.getBoundingClientRect().height < 43.5)
           .slice(0, 5)

@@ -65,7 +65,7 @@ export default function FitStarter({ sessionId, hasSplit, poseCount }: Props) {
         <legend className="mb-1 font-semibold">Parameters to identify</legend>
         <div className="flex flex-wrap gap-x-5 gap-y-1">
           {GROUP_ORDER.map((g) => (
-            <label key={g} className="flex min-h-10 items-center gap-2">
+            <label key={g} className="flex min-h-11 items-center gap-2">
               <input type="checkbox" className="h-5 w-5 accent-accent" checked={groups.includes(g)} onChange={() => toggle(g)} name="groups" value={g} />
               {GROUP_LABEL[g]}
             </label>
@@ -105,12 +105,12 @@ export default function FitStarter({ sessionId, hasSplit, poseCount }: Props) {
       </div>
       <div className="flex flex-wrap gap-x-6 gap-y-1">
         {hasSplit && (
-          <label className="flex min-h-10 items-center gap-2">
+          <label className="flex min-h-11 items-center gap-2">
             <input type="checkbox" className="h-5 w-5 accent-accent" checked={useSplitColumn} onChange={(e) => setUseSplitColumn(e.target.checked)} />
             Hold out the poses the file marks “validate”
           </label>
         )}
-        <label className="flex min-h-10 items-center gap-2">
+        <label className="flex min-h-11 items-center gap-2">
           <input type="checkbox" className="h-5 w-5 accent-accent" checked={robust} onChange={(e) => setRobust(e.target.checked)} />
           Robust loss (down-weights large residuals)
         </label>

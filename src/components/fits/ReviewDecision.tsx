@@ -58,7 +58,7 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
       ) : (
         <>
           <SafetyNotice />
-          <label className="flex min-h-10 items-center gap-2">
+          <label className="flex min-h-11 items-center gap-2">
             <input type="checkbox" className="h-5 w-5 accent-accent" checked={read} disabled={!hydrated} onChange={(e) => setRead(e.target.checked)} />I have read this
           </label>
         </>

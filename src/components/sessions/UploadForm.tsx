@@ -250,7 +250,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
       </div>
 
       {refusal?.outsideLimits && (
-        <label className="notice notice-attention flex min-h-10 items-start gap-3" data-override>
+        <label className="notice notice-attention flex min-h-11 items-start gap-3" data-override>
           <input type="checkbox" className="mt-1 h-6 w-6 shrink-0" checked={override} onChange={(e) => setOverride(e.target.checked)} name="allowOutsideLimits" />
           <span>
             ▲ I have checked the readings listed below. Store this session although these joint readings are outside the model's limits (the session will be
