@@ -50,7 +50,7 @@ export default function PeopleAdmin({ initial, selfId }: { initial: Person[]; se
         <fieldset className="flex flex-wrap gap-4">
           <legend className="mb-1 text-sm font-semibold text-ink-soft">Roles</legend>
           {ROLES.map((role) => (
-            <label key={role} className="flex min-h-10 items-center gap-2">
+            <label key={role} className="flex min-h-11 items-center gap-2">
               <input type="checkbox" name={`invite-${role}`} checked={inviteRoles.includes(role)} onChange={() => setInviteRoles(toggle(inviteRoles, role))} />
               {ROLE_LABELS[role]}
             </label>

@@ -191,7 +191,7 @@ export default function ArmModelForm({ mode, modelId, initial, latestInUse = fal
       <section className="card flex flex-col gap-3">
         <div className="flex flex-wrap items-center gap-3">
           <h2 className="mr-auto">Joints</h2>
-          <input ref={fileInput} type="file" accept=".json,application/json" className="sr-only" data-import-input onChange={(e) => e.target.files?.[0] && importFile(e.target.files[0]).finally(() => (e.target.value = ''))} />
+          <input ref={fileInput} type="file" accept=".json,application/json" className="sr-only" tabIndex={-1} aria-label="Geometry file to import" data-import-input onChange={(e) => e.target.files?.[0] && importFile(e.target.files[0]).finally(() => (e.target.value = ''))} />
           <button type="button" className="btn btn-quiet" onClick={() => fileInput.current?.click()}>
             Import geometry file…
           </button>

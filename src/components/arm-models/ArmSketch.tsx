@@ -49,7 +49,7 @@ export default function ArmSketch({ geometry }: { geometry: ArmGeometry }) {
               </span>
               <input
                 type="range"
-                className="min-h-10 flex-1 accent-[var(--color-accent)]"
+                className="min-h-11 flex-1 accent-[var(--color-accent)]"
                 min={r.min}
                 max={r.max}
                 step={r.step}

@@ -48,15 +48,15 @@ export default function SignInForm({ next, initialError }: { next: string; initi
     <form onSubmit={submit} method="post" className="flex flex-col gap-4" noValidate>
       <label className="field">
         <span>E-mail</span>
-        <input className="input" name="email" type="email" autoComplete="username" required />
+        <input className="input" name="email" type="email" autoComplete="username" required aria-invalid={error ? true : undefined} aria-describedby={error ? 'signin-problem' : undefined} />
       </label>
       <label className="field">
         <span>Password</span>
-        <input className="input" name="password" type="password" autoComplete="current-password" required />
+        <input className="input" name="password" type="password" autoComplete="current-password" required aria-invalid={error ? true : undefined} aria-describedby={error ? 'signin-problem' : undefined} />
       </label>
       {error && (
-        <p role="alert" className="notice notice-error">
-          {error}
+        <p role="alert" id="signin-problem" className="notice notice-error">
+          ✕ {error}
         </p>
       )}
       <button className="btn" type="submit" disabled={busy || !ready}>

@@ -125,7 +125,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
                 const last = sets[sets.length - 1];
                 return (
                   <tr key={x.key} className={last?.exceeded ? 'bg-attention-soft' : undefined}>
-                    <td><button type="button" className="min-h-10 underline" onClick={() => setSelected(x.key)}>{x.key}</button></td>
+                    <td><button type="button" className="min-h-11 underline" onClick={() => setSelected(x.key)}>{x.key}</button></td>
                     <td className="num">{fmt(last?.value, x.unit)} {x.unit}</td>
                     <td className="num">{fmt(last?.change, x.unit, true)} {x.unit}</td>
                     <td className="num">{x.tolerance === null ? 'not checked' : `±${x.tolerance} ${x.unit}`}</td>

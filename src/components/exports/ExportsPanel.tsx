@@ -1,5 +1,6 @@
 import { useEffect, useMemo, useState } from 'react';
 import { api } from '../../lib/shared/api-client';
+import { useFocusWhen } from '../../lib/shared/focus';
 
 export interface ExportableUnit {
   serial: string;
@@ -81,6 +82,8 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
   const [status, setStatus] = useState<{ kind: 'ok' | 'error'; text: string } | null>(null);
   const [busy, setBusy] = useState(false);
   const [logKey, setLogKey] = useState(0);
+  // The download's outcome (or its error) takes focus, so it is read out.
+  const statusRef = useFocusWhen<HTMLParagraphElement>(status);
   // Until the island hydrates a tick would be lost (the server-rendered box has no handler): stay disabled.
   const [hydrated, setHydrated] = useState(false);
   useEffect(() => setHydrated(true), []);
@@ -160,7 +163,7 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
             </button>
             {picked.length > 0 && <button type="button" className="btn btn-quiet" onClick={() => setPicked([])}>Clear selection</button>}
           </div>
-          {status && <p role="status" className={status.kind === 'ok' ? 'notice' : 'notice notice-error'}>{status.kind === 'error' ? '✕ ' : ''}{status.text}</p>}
+          {status && <p ref={statusRef} role={status.kind === 'ok' ? 'status' : 'alert'} data-export-status className={status.kind === 'ok' ? 'notice' : 'notice notice-error'}>{status.kind === 'error' ? '✕ ' : ''}{status.text}</p>}
         </section>
       )}
       <ExportLog refresh={logKey} initial={initialLog} />

@@ -1,8 +1,9 @@
-import { useEffect, useMemo, useState } from 'react';
+import { useEffect, useId, useMemo, useRef, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Cell, Legend, ResponsiveContainer, Scatter, ScatterChart, Symbols, Tooltip, XAxis, YAxis } from 'recharts';
 import type { FitReport as EngineReport, ParameterReport, PoseResidual } from '../../lib/engine/fit';
 import type { ErrorStats } from '../../lib/engine/types';
 import { api, type ApiError } from '../../lib/shared/api-client';
+import { focusResult, openResult, useFocusWhen } from '../../lib/shared/focus';
 import FitWarnings from './FitWarnings';
 import { crossMarker, PoseTip, roleOf } from './chart-bits';
 import FitSettingsList from './FitSettingsList';
@@ -53,10 +54,13 @@ const CHART_LIMIT = 1500;
 
 function Numbers({ name, header, rows, children }: { name: string; header: string[]; rows: (string | number | null)[][]; children?: React.ReactNode }) {
   const [shown, setShown] = useState(false);
+  // The chart's text alternative: the button names the table it opens, and the table takes focus when shown.
+  const id = useId();
+  const tableRef = useFocusWhen<HTMLDivElement>(shown);
   return (
     <div className="mt-2">
       <div className="flex flex-wrap gap-2">
-        <button type="button" className="btn btn-quiet" aria-expanded={shown} onClick={() => setShown(!shown)}>
+        <button type="button" className="btn btn-quiet" aria-expanded={shown} aria-controls={id} onClick={() => setShown(!shown)}>
           {shown ? 'Hide the numbers' : 'Show the numbers'}
         </button>
         <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(name, header, rows)}>
@@ -64,7 +68,7 @@ function Numbers({ name, header, rows, children }: { name: string; header: strin
         </button>
       </div>
       {shown && (
-        <div className="mt-2 max-h-96 overflow-auto">
+        <div id={id} ref={tableRef} className="mt-2 max-h-96 overflow-auto" role="region" aria-label={`Numbers behind the chart (${name})`}>
           {children ?? (
             <table className="data-table">
               <thead>
@@ -95,7 +99,7 @@ function StatsTable({ report }: { report: EngineReport }) {
     ...(report.statistics.holdout ? ([['Hold-out poses', report.statistics.holdout.before, report.statistics.holdout.after]] as [string, ErrorStats, ErrorStats][]) : []),
   ];
   return (
-    <table className="data-table" data-fit-statistics>
+    <table className="data-table no-sticky" data-fit-statistics>
       <thead>
         <tr>
           <th>Poses</th><th>Geometry</th><th className="num">n</th><th className="num">RMS (mm)</th><th className="num">Mean (mm)</th><th className="num">Max (mm)</th><th className="num">95th pct (mm)</th>
@@ -125,7 +129,9 @@ function StatsTable({ report }: { report: EngineReport }) {
 }
 
 function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: string }) {
-  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, line: p.line, role: roleOf(p), before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
+  // The pose's role travels as `poseRole`: recharts spreads data fields onto SVG elements, and a `role`
+  // field would become an (invalid) ARIA role attribute on every mark.
+  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, line: p.line, poseRole: roleOf(p), before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
   const excludedCount = poses.filter((p) => p.role === 'excluded').length;
   const histogram = useMemo(() => {
     const used = poses.filter((p) => p.role !== 'excluded');
@@ -155,15 +161,15 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
               <Tooltip
                 content={({ active, payload }) => {
                   const d = payload?.[0]?.payload as (typeof data)[number] | undefined;
-                  return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role={d.role} rows={[{ name: 'Before (nominal)', value: `${mm(d.before)} mm` }, { name: 'After (calibrated)', value: `${mm(d.after)} mm` }]} /> : null;
+                  return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role={d.poseRole} rows={[{ name: 'Before (nominal)', value: `${mm(d.before)} mm` }, { name: 'After (calibrated)', value: `${mm(d.after)} mm` }]} /> : null;
                 }}
               />
               <Legend verticalAlign="top" />
               <Bar dataKey="before" name="Before (nominal)" fill={NOMINAL} isAnimationActive={false}>
-                {data.map((d) => <Cell key={d.index} fill={d.role === 'excluded' ? '#ffffff' : NOMINAL} stroke={d.role === 'excluded' ? NOMINAL : undefined} strokeDasharray={d.role === 'excluded' ? '3 2' : undefined} />)}
+                {data.map((d) => <Cell key={d.index} fill={d.poseRole === 'excluded' ? '#ffffff' : NOMINAL} stroke={d.poseRole === 'excluded' ? NOMINAL : undefined} strokeDasharray={d.poseRole === 'excluded' ? '3 2' : undefined} />)}
               </Bar>
               <Bar dataKey="after" name="After (calibrated)" fill={ACCENT} isAnimationActive={false}>
-                {data.map((d) => <Cell key={d.index} fill={d.role === 'excluded' ? '#ffffff' : ACCENT} stroke={d.role === 'excluded' ? ACCENT : undefined} strokeDasharray={d.role === 'excluded' ? '3 2' : undefined} />)}
+                {data.map((d) => <Cell key={d.index} fill={d.poseRole === 'excluded' ? '#ffffff' : ACCENT} stroke={d.poseRole === 'excluded' ? ACCENT : undefined} strokeDasharray={d.poseRole === 'excluded' ? '3 2' : undefined} />)}
               </Bar>
             </BarChart>
           </ResponsiveContainer>
@@ -212,8 +218,8 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
                 <YAxis type="number" dataKey="v" name="Residual" label={{ value: 'Residual (mm)', angle: -90, position: 'insideLeft' }} />
                 <Tooltip
                   content={({ active, payload }) => {
-                    const d = payload?.[0]?.payload as { label: string; line: number; role: string; axis: string; v: number } | undefined;
-                    return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role={d.role} rows={[{ name: `Residual ${d.axis}`, value: `${mm(d.v)} mm` }]} /> : null;
+                    const d = payload?.[0]?.payload as { label: string; line: number; poseRole: string; axis: string; v: number } | undefined;
+                    return d ? <PoseTip active={active} heading={`Pose ${d.label} (line ${d.line})`} role={d.poseRole} rows={[{ name: `Residual ${d.axis}`, value: `${mm(d.v)} mm` }]} /> : null;
                   }}
                 />
                 <Legend verticalAlign="top" />
@@ -227,12 +233,12 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
                   <Scatter
                     key={name}
                     name={name}
-                    data={data.map((d) => ({ index: d.index, v: d[key], label: d.label, line: d.line, role: d.role, axis }))}
+                    data={data.map((d) => ({ index: d.index, v: d[key], label: d.label, line: d.line, poseRole: d.poseRole, axis }))}
                     fill={colour}
                     legendType={symbol}
                     shape={(props: unknown) => {
-                      const { cx = 0, cy = 0, payload } = props as { cx?: number; cy?: number; payload?: { role: string } };
-                      return payload?.role === 'excluded' ? crossMarker(cx, cy, NOMINAL, 4) : <Symbols cx={cx} cy={cy} type={symbol} size={48} fill={colour} />;
+                      const { cx = 0, cy = 0, payload } = props as { cx?: number; cy?: number; payload?: { poseRole: string } };
+                      return payload?.poseRole === 'excluded' ? crossMarker(cx, cy, NOMINAL, 4) : <Symbols cx={cx} cy={cy} type={symbol} size={48} fill={colour} />;
                     }}
                     isAnimationActive={false}
                   />
@@ -373,6 +379,16 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
   useEffect(() => setHydrated(true), []);
 
   const waiting = fit.state === 'queued' || fit.state === 'running';
+  // When the fit finishes while the page is open, focus moves to its result (or its error).
+  const wasWaiting = useRef(waiting);
+  const resultRef = useRef<HTMLHeadingElement>(null);
+  const failedRef = useRef<HTMLDivElement>(null);
+  useEffect(() => {
+    if (wasWaiting.current && !waiting) focusResult(fit.state === 'failed' ? failedRef.current : resultRef.current);
+    wasWaiting.current = waiting;
+  }, [waiting, fit.state]);
+  const messageRef = useFocusWhen<HTMLParagraphElement>(message);
+  const errorRef = useFocusWhen<HTMLDivElement>(error);
   useEffect(() => {
     if (!waiting) return;
     let stop = false;
@@ -411,7 +427,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
       setBusy(false);
       return;
     }
-    location.href = `/fits/${res.data.id}`;
+    openResult(`/fits/${res.data.id}`);
   }
 
   async function submit() {
@@ -443,7 +459,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           </p>
         )}
         {fit.state === 'failed' && (
-          <div className="notice notice-error mt-3" role="alert">
+          <div ref={failedRef} className="notice notice-error mt-3" role="alert">
             <p className="font-semibold">✕ The fit failed</p>
             <p>{fit.error}</p>
           </div>
@@ -465,7 +481,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
       {report && (
         <>
           <section className="card mb-6">
-            <h2 className="mb-2">Accuracy before and after</h2>
+            <h2 className="mb-2" ref={resultRef}>Accuracy before and after</h2>
             <StatsTable report={report} />
             {report.registration.registered && <p className="mt-2 text-sm text-ink-soft">The tracker frame was registered to the robot base first (rigid fit, RMS {mm(report.registration.rmsMm)} mm); “before” uses that registered nominal.</p>}
           </section>
@@ -533,9 +549,9 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           </button>
         </section>
       )}
-      {message && <p className="notice mb-4" role="status">✓ {message}</p>}
+      {message && <p ref={messageRef} className="notice mb-4" role="status">✓ {message}</p>}
       {error && (
-        <div className="notice notice-error mb-4" role="alert">
+        <div ref={errorRef} className="notice notice-error mb-4" role="alert">
           <p className="font-semibold">✕ {error.error}</p>
           {error.errors.map((p, i) => <p key={i}>{p.field ? `${p.field}: ` : ''}{p.message}</p>)}
         </div>

@@ -1,5 +1,6 @@
 import { useEffect, useState } from 'react';
 import { api, type ApiError } from '../../lib/shared/api-client';
+import { useFocusWhen } from '../../lib/shared/focus';
 import SafetyNotice from '../SafetyNotice';
 
 interface Props {
@@ -19,6 +20,9 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
   // A tick before hydration would be lost; the box is usable once the island runs.
   const [hydrated, setHydrated] = useState(false);
   useEffect(() => setHydrated(true), []);
+  // Focus follows the outcome: the decision's result, or what went wrong.
+  const doneRef = useFocusWhen<HTMLDivElement>(done);
+  const errorRef = useFocusWhen<HTMLDivElement>(error);
 
   async function decide(action: 'approve' | 'reject') {
     setBusy(true);
@@ -32,7 +36,7 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
 
   if (done) {
     return (
-      <div className="notice" role="status" data-review-done>
+      <div ref={doneRef} className="notice" role="status" data-review-done>
         <p>✓ {done}</p>
         <p className="mt-2">
           <a href={`/units/${encodeURIComponent(serial)}`}>Open unit {serial}</a> · <a href="/reviews">Back to reviews</a>
@@ -54,7 +58,7 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
       ) : (
         <>
           <SafetyNotice />
-          <label className="flex min-h-10 items-center gap-2">
+          <label className="flex min-h-11 items-center gap-2">
             <input type="checkbox" className="h-5 w-5 accent-accent" checked={read} disabled={!hydrated} onChange={(e) => setRead(e.target.checked)} />I have read this
           </label>
         </>
@@ -70,7 +74,7 @@ export default function ReviewDecision({ fitId, serial, refusal }: Props) {
         </button>
       </div>
       {error && (
-        <div className="notice notice-error" role="alert">
+        <div ref={errorRef} className="notice notice-error" role="alert">
           <p className="font-semibold">✕ {error.error}</p>
           {error.errors.map((p, i) => <p key={i}>{p.field ? `${p.field}: ` : ''}{p.message}</p>)}
         </div>

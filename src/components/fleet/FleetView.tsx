@@ -147,7 +147,7 @@ function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units
                 const dir = h.column.getIsSorted();
                 return (
                   <th key={h.id} className={h.column.id === 'serial' ? '' : 'num'} aria-sort={dir === 'asc' ? 'ascending' : dir === 'desc' ? 'descending' : 'none'}>
-                    <button type="button" className="min-h-10 font-semibold" onClick={h.column.getToggleSortingHandler()}>
+                    <button type="button" className="min-h-11 font-semibold" onClick={h.column.getToggleSortingHandler()}>
                       {flexRender(h.column.columnDef.header, h.getContext())} {dir === 'asc' ? '▴' : dir === 'desc' ? '▾' : ''}
                     </button>
                   </th>
@@ -200,7 +200,7 @@ export default function FleetView({ modelName, parameters, units, outside, posit
               {outside.map((o) => (
                 <tr key={`${o.serial}-${o.key}`}>
                   <td><a href={`/units/${encodeURIComponent(o.serial)}/drift`} className="font-semibold">{o.serial}</a></td>
-                  <td><button type="button" className="btn-quiet min-h-10 underline" onClick={() => setSelected(o.key)}>{o.key}</button></td>
+                  <td><button type="button" className="btn-quiet min-h-11 underline" onClick={() => setSelected(o.key)}>{o.key}</button></td>
                   <td className="num">{fmt(o.deviation, o.unit, true)} {o.unit}</td>
                   <td className="num">{fmt(o.lower, o.unit, true)} … {fmt(o.upper, o.unit, true)} {o.unit}</td>
                   <td className="num">{fmtSigma(o.sigma)}</td>
@@ -234,7 +234,7 @@ export default function FleetView({ modelName, parameters, units, outside, posit
         </label>
         {p && <Distribution p={p} units={units} />}
         <details>
-          <summary className="min-h-10 cursor-pointer font-semibold">All parameters: mean, σ and limits</summary>
+          <summary className="min-h-11 cursor-pointer font-semibold">All parameters: mean, σ and limits</summary>
           <div className="overflow-x-auto">
             <table className="data-table">
               <thead><tr><th>Group</th><th>Parameter</th><th>Unit</th><th className="num">n</th><th className="num">Mean</th><th className="num">σ (n − 1)</th><th className="num">−3σ</th><th className="num">+3σ</th><th>Outside</th></tr></thead>

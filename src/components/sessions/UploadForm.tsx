@@ -1,5 +1,6 @@
 import { useEffect, useRef, useState } from 'react';
 import { useDropzone } from 'react-dropzone';
+import { openResult, useFocusWhen } from '../../lib/shared/focus';
 
 interface Problem {
   file?: string;
@@ -84,7 +85,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
   function finish(status: number, parsed: Refusal & { url?: string }) {
     if (status === 201 && parsed.url) {
       setState({ kind: 'done', url: parsed.url });
-      location.href = parsed.url;
+      openResult(parsed.url);
     } else setState({ kind: 'refused', status, body: parsed });
   }
 
@@ -175,6 +176,8 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
 
   const busy = state.kind === 'hashing' || state.kind === 'uploading' || state.kind === 'checking' || state.kind === 'done';
   const refusal = state.kind === 'refused' ? state.body : undefined;
+  // A refusal takes focus, so it is read out and the problems table is next in the tab order.
+  const refusalRef = useFocusWhen<HTMLParagraphElement>(refusal);
 
   return (
     <form ref={formRef} onSubmit={submit} className="flex flex-col gap-5" noValidate>
@@ -183,7 +186,9 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
           className: `flex min-h-40 cursor-pointer flex-col items-center justify-center gap-2 rounded-lg border-2 border-dashed p-6 text-center ${
             isDragActive ? 'border-accent bg-accent-soft' : 'border-rule bg-white'
           }`,
-          'aria-label': 'Session file: drop a CSV here or choose one',
+          // A button to the keyboard and to screen readers: Enter or Space opens the file chooser.
+          role: 'button',
+          'aria-label': file ? `Session file ${file.name} chosen: press to choose another` : 'Session file: drop a CSV here or press to choose one',
         })}
         data-dropzone
       >
@@ -245,7 +250,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
       </div>
 
       {refusal?.outsideLimits && (
-        <label className="notice notice-attention flex min-h-10 items-start gap-3" data-override>
+        <label className="notice notice-attention flex min-h-11 items-start gap-3" data-override>
           <input type="checkbox" className="mt-1 h-6 w-6 shrink-0" checked={override} onChange={(e) => setOverride(e.target.checked)} name="allowOutsideLimits" />
           <span>
             ▲ I have checked the readings listed below. Store this session although these joint readings are outside the model's limits (the session will be
@@ -287,7 +292,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
 
       {refusal && (
         <div className="flex flex-col gap-3" data-refusal data-status={state.kind === 'refused' ? state.status : undefined}>
-          <p className={`notice ${refusal.outsideLimits || state.kind === 'refused' && state.status === 409 ? 'notice-attention' : 'notice-error'}`} role="alert">
+          <p ref={refusalRef} className={`notice ${refusal.outsideLimits || state.kind === 'refused' && state.status === 409 ? 'notice-attention' : 'notice-error'}`} role="alert">
             {state.kind === 'refused' && state.status === 409 ? '▲ ' : '✕ '}
             {refusal.error}
             {refusal.existing && (

@@ -1,5 +1,7 @@
 import { useEffect, useState } from 'react';
 import { api, type ApiError } from '../../lib/shared/api-client';
+import { openResult } from '../../lib/shared/focus';
+import { ErrorSummary, FieldProblem, fieldProps } from '../FormErrors';
 
 export interface ModelChoice {
   id: string;
@@ -18,7 +20,6 @@ export default function UnitForm({ models, initialModel }: { models: ModelChoice
   const [busy, setBusy] = useState(false);
   const model = models.find((m) => m.id === modelId);
   const latest = model?.revisions[model.revisions.length - 1];
-  const fieldError = (f: string) => error?.errors.filter((e) => e.field === f).map((e) => e.message).join('; ');
 
   async function submit(e: React.FormEvent<HTMLFormElement>) {
     e.preventDefault();
@@ -36,34 +37,44 @@ export default function UnitForm({ models, initialModel }: { models: ModelChoice
     const r = await api<{ serial: string }>('/api/units', { method: 'POST', json: body });
     setBusy(false);
     if (r.error) return setError(r.error);
-    location.href = `/units/${encodeURIComponent(r.data.serial)}`;
+    openResult(`/units/${encodeURIComponent(r.data.serial)}`);
   }
 
   if (models.length === 0) return <p className="notice notice-attention">▲ There is no arm model yet. A metrology engineer creates one under Arm models first.</p>;
 
-  const Problem = ({ field }: { field: string }) => {
-    const m = fieldError(field);
-    return m ? <span className="text-xs text-error" role="alert">✕ {m}</span> : null;
+  const FIELDS = {
+    serial: { id: 'unit-serial', label: 'Serial number' },
+    modelId: { id: 'unit-model', label: 'Arm model' },
+    revision: { id: 'unit-revision', label: 'Revision' },
+    site: { id: 'unit-site', label: 'Site' },
+    cell: { id: 'unit-cell', label: 'Cell' },
+    commissionedOn: { id: 'unit-commissioned', label: 'Commissioned on' },
+    notes: { id: 'unit-notes', label: 'Notes' },
   };
+  const Problem = ({ field }: { field: keyof typeof FIELDS }) => <FieldProblem error={error} field={field} id={FIELDS[field].id} />;
+  const props = (field: keyof typeof FIELDS) => fieldProps(error, field, FIELDS[field].id);
 
   return (
-    <form onSubmit={submit} className="card grid gap-4 md:grid-cols-2" data-unit-form data-hydrated={hydrated ? 'true' : undefined}>
+    <form onSubmit={submit} className="card grid gap-4 md:grid-cols-2" data-unit-form data-hydrated={hydrated ? 'true' : undefined} noValidate>
+      <div className="md:col-span-2 empty:hidden" data-form-errors>
+        <ErrorSummary error={error} fields={FIELDS} />
+      </div>
       <label className="field">
         <span>Serial number</span>
-        <input className="input" name="serial" required maxLength={64} pattern="[A-Za-z0-9][A-Za-z0-9._\-]*" placeholder="e.g. VX620-10457" autoComplete="off" />
+        <input className="input" {...props('serial')} name="serial" required maxLength={64} pattern="[A-Za-z0-9][A-Za-z0-9._\-]*" placeholder="e.g. VX620-10457" autoComplete="off" />
         <Problem field="serial" />
       </label>
       <div className="grid grid-cols-2 gap-3">
         <label className="field">
           <span>Arm model</span>
-          <select className="input" name="modelId" value={modelId} onChange={(e) => { setModelId(e.target.value); setRevision(''); }}>
+          <select className="input" {...props('modelId')} name="modelId" value={modelId} onChange={(e) => { setModelId(e.target.value); setRevision(''); }}>
             {models.map((m) => <option key={m.id} value={m.id}>{m.name}</option>)}
           </select>
           <Problem field="modelId" />
         </label>
         <label className="field">
           <span>Revision</span>
-          <select className="input" name="revision" value={revision} onChange={(e) => setRevision(e.target.value)}>
+          <select className="input" {...props('revision')} name="revision" value={revision} onChange={(e) => setRevision(e.target.value)}>
             <option value="">latest (r{latest})</option>
             {model?.revisions.map((r) => <option key={r} value={r}>r{r}</option>)}
           </select>
@@ -72,29 +83,24 @@ export default function UnitForm({ models, initialModel }: { models: ModelChoice
       </div>
       <label className="field">
         <span>Site</span>
-        <input className="input" name="site" maxLength={200} placeholder="e.g. Plant North" />
+        <input className="input" {...props('site')} name="site" maxLength={200} placeholder="e.g. Plant North" />
         <Problem field="site" />
       </label>
       <label className="field">
         <span>Cell</span>
-        <input className="input" name="cell" maxLength={200} placeholder="e.g. Cell 4" />
+        <input className="input" {...props('cell')} name="cell" maxLength={200} placeholder="e.g. Cell 4" />
         <Problem field="cell" />
       </label>
       <label className="field">
         <span>Commissioned on</span>
-        <input className="input" type="date" name="commissionedOn" />
+        <input className="input" {...props('commissionedOn')} type="date" name="commissionedOn" />
         <Problem field="commissionedOn" />
       </label>
       <label className="field md:col-span-2">
         <span>Notes</span>
-        <textarea className="input" name="notes" maxLength={4000} />
+        <textarea className="input" {...props('notes')} name="notes" maxLength={4000} />
         <Problem field="notes" />
       </label>
-      {error && (
-        <p className="notice notice-error md:col-span-2" role="alert" data-form-errors>
-          {error.error}
-        </p>
-      )}
       <div className="flex gap-3 md:col-span-2">
         <button className="btn" type="submit" disabled={busy || !hydrated}>Register unit</button>
         <a className="btn btn-quiet" href="/units">Cancel</a>

@@ -177,7 +177,7 @@ export default function UnitsTable({ initial, initialQuery, models }: UnitsTable
                   return (
                     <th key={h.id} className={num ? 'num' : undefined} aria-sort={sorted === 'asc' ? 'ascending' : sorted === 'desc' ? 'descending' : undefined}>
                       {h.column.getCanSort() ? (
-                        <button type="button" className="inline-flex min-h-10 items-center gap-1 font-semibold" onClick={h.column.getToggleSortingHandler()} data-sort={h.column.id}>
+                        <button type="button" className="inline-flex min-h-11 items-center gap-1 font-semibold" onClick={h.column.getToggleSortingHandler()} data-sort={h.column.id}>
                           {flexRender(h.column.columnDef.header, h.getContext())}
                           <span aria-hidden="true">{sorted === 'asc' ? '▲' : sorted === 'desc' ? '▼' : '↕'}</span>
                           <span className="sr-only">{sorted ? (sorted === 'asc' ? 'sorted ascending' : 'sorted descending') : 'sort'}</span>
