@@ -42,6 +42,8 @@ interface Props {
   initial: FitView;
   canSubmit: boolean;
   canRefit: boolean;
+  /** Shown after the residual charts: the page passes the 3-D view island here (Astro slot). */
+  children?: React.ReactNode;
 }
 
 const ACCENT = '#0f6e6e';
@@ -361,7 +363,7 @@ function Observability({ report }: { report: EngineReport }) {
   );
 }
 
-export default function FitReport({ initial, canSubmit, canRefit }: Props) {
+export default function FitReport({ initial, canSubmit, canRefit, children }: Props) {
   const [fit, setFit] = useState<FitView>(initial);
   const [picked, setPicked] = useState<string[]>([]);
   const [comment, setComment] = useState('');
@@ -470,6 +472,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           </section>
 
           <ResidualCharts poses={report.poses} fileBase={fileBase} />
+          {children}
           <ParameterTable parameters={report.parameters} fileBase={fileBase} />
           <CorrelationMap report={report} fileBase={fileBase} />
 
