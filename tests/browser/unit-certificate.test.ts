@@ -50,6 +50,8 @@ describe('unit page: accuracy map and certificate', () => {
       const wide = await page.evaluate((w) => [...document.querySelectorAll('body *')].filter((e) => e.getBoundingClientRect().right > w + 1).slice(0, 5).map((e) => `${e.tagName}.${e.className}`), width);
       expect(await page.evaluate(() => document.documentElement.scrollWidth), wide.join(' | ')).toBeLessThanOrEqual(width);
     }
+    // Where the certificate (an export of the set) is offered, the safety caution is shown.
+    expect(await page.locator('[data-safety-caution]').count()).toBeGreaterThan(0);
     const link = page.locator('[data-certificate-link]').first();
     expect(await link.getAttribute('href')).toBe(`/api/parameter-sets/${setId}/certificate`);
     const res = await page.request.get(`${BASE_URL}/api/parameter-sets/${setId}/certificate`);
