@@ -238,6 +238,8 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
           )}
         </div>
       )}
+      {/* The file input sits beside the drop zone, not inside it: a control inside a button is not allowed. */}
+      <input {...getInputProps()} name="file-picker" data-file-input />
       <div
         {...getRootProps({
           className: `flex min-h-40 cursor-pointer flex-col items-center justify-center gap-2 rounded-lg border-2 border-dashed p-6 text-center ${
@@ -249,7 +251,6 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
         })}
         data-dropzone
       >
-        <input {...getInputProps()} name="file-picker" data-file-input />
         {file ? (
           <>
             <p className="font-semibold" data-chosen-file>
