@@ -205,7 +205,7 @@ async function checkPage(page: Page, visitor: Visitor, route: string, target: st
       for (const s of small) problems.push({ page: target, width, what: `touch target under 44 px: ${s}` });
     }
     if (AXE_WIDTHS.has(width)) {
-      const result = await new AxeBuilder({ page }).withTags(AXE_TAGS).analyze();
+      const result = await new AxeBuilder({ page }).withTags(AXE_TAGS).options({ resultTypes: ['violations'] }).analyze();
       for (const v of result.violations.filter((x) => x.impact === 'serious' || x.impact === 'critical')) {
         for (const node of v.nodes.slice(0, 5)) {
           problems.push({ page: target, width, what: `axe ${v.impact} ${v.id} (${v.help}) at ${node.target.join(' ')}: ${node.html.slice(0, 160)}${node.failureSummary ? ' — ' + node.failureSummary.replace(/\s+/g, ' ').slice(0, 220) : ''}` });

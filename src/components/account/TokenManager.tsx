@@ -35,7 +35,7 @@ export default function TokenManager({ initial }: { initial: Token[] }) {
   return (
     <div className="flex flex-col gap-4">
       <form onSubmit={create} className="flex flex-wrap items-end gap-3">
-        <label className="field"><span>Token name</span><input className="input" name="name" required placeholder="e.g. cell 4 upload script" /></label>
+        <label className="field"><span>Token name</span><input className="input" name="name" required placeholder="e.g. cell 4 upload script" aria-invalid={error ? true : undefined} aria-describedby={error ? 'token-problem' : undefined} /></label>
         <button className="btn" type="submit">Create token</button>
       </form>
       {fresh && (
@@ -43,7 +43,7 @@ export default function TokenManager({ initial }: { initial: Token[] }) {
           Copy this token now; it is not shown again: <code data-new-token className="break-all font-mono">{fresh}</code>
         </p>
       )}
-      {error && <p className="notice notice-error" role="alert">{error}</p>}
+      {error && <p className="notice notice-error" role="alert" id="token-problem">✕ {error}</p>}
       <table className="data-table">
         <thead><tr><th>Name</th><th>Starts with</th><th>Created</th><th>Last used</th><th>Status</th><th /></tr></thead>
         <tbody>

@@ -1,5 +1,13 @@
 import { useState } from 'react';
-import { api } from '../../lib/shared/api-client';
+import { api, type ApiError } from '../../lib/shared/api-client';
+import { useFocusWhen } from '../../lib/shared/focus';
+import { ErrorSummary, FieldProblem, fieldProps } from '../FormErrors';
+
+const INVITE_FIELDS = {
+  email: { id: 'invite-email', label: 'E-mail' },
+  name: { id: 'invite-name', label: 'Name' },
+  roles: { id: 'invite-roles', label: 'Roles' },
+};
 import { ROLE_LABELS, ROLES, type Role } from '../../lib/shared/roles';
 
 interface Person { id: string; email: string; name: string; roles: Role[]; active: boolean; isDemo: boolean; hasPassword: boolean }
@@ -8,6 +16,9 @@ export default function PeopleAdmin({ initial, selfId }: { initial: Person[]; se
   const [people, setPeople] = useState(initial);
   const [message, setMessage] = useState<{ kind: 'ok' | 'error'; text: string } | null>(null);
   const [inviteRoles, setInviteRoles] = useState<Role[]>(['technician']);
+  const [inviteError, setInviteError] = useState<ApiError | null>(null);
+  // An error takes focus; a saved change is announced (role=status) without pulling focus out of the table.
+  const messageRef = useFocusWhen<HTMLParagraphElement>(message?.kind === 'error' ? message : null);
 
   async function refresh() {
     const r = await api<{ users: Person[] }>('/api/admin/users');
@@ -20,9 +31,11 @@ export default function PeopleAdmin({ initial, selfId }: { initial: Person[]; se
     const form = e.currentTarget;
     const r = await api<{ user: Person }>('/api/admin/users', { method: 'POST', json: { email: f.get('email'), name: f.get('name'), roles: inviteRoles } });
     if (r.error) {
-      setMessage({ kind: 'error', text: [r.error.error, ...r.error.errors.map((x) => `${x.field ?? ''}: ${x.message}`)].join(' ') });
+      // The summary at the top of the form lists each problem with a link to its field; what was typed stays.
+      setInviteError(r.error);
       return;
     }
+    setInviteError(null);
     form.reset();
     setMessage({ kind: 'ok', text: `Invitation sent to ${r.data.user.email}.` });
     await refresh();
@@ -41,13 +54,14 @@ export default function PeopleAdmin({ initial, selfId }: { initial: Person[]; se
 
   return (
     <div className="flex flex-col gap-6">
-      <form onSubmit={invite} className="card flex flex-col gap-3" aria-label="Invite a person">
+      <form onSubmit={invite} className="card flex flex-col gap-3" aria-label="Invite a person" noValidate>
         <h2>Invite a person</h2>
+        <ErrorSummary error={inviteError} fields={INVITE_FIELDS} />
         <div className="grid gap-3 sm:grid-cols-2">
-          <label className="field"><span>E-mail</span><input className="input" name="email" type="email" required /></label>
-          <label className="field"><span>Name</span><input className="input" name="name" required /></label>
+          <label className="field"><span>E-mail</span><input className="input" name="email" type="email" required {...fieldProps(inviteError, 'email', INVITE_FIELDS.email.id)} /><FieldProblem error={inviteError} field="email" id={INVITE_FIELDS.email.id} /></label>
+          <label className="field"><span>Name</span><input className="input" name="name" required {...fieldProps(inviteError, 'name', INVITE_FIELDS.name.id)} /><FieldProblem error={inviteError} field="name" id={INVITE_FIELDS.name.id} /></label>
         </div>
-        <fieldset className="flex flex-wrap gap-4">
+        <fieldset className="flex flex-wrap gap-4" id={INVITE_FIELDS.roles.id} tabIndex={-1}>
           <legend className="mb-1 text-sm font-semibold text-ink-soft">Roles</legend>
           {ROLES.map((role) => (
             <label key={role} className="flex min-h-11 items-center gap-2">
@@ -55,10 +69,11 @@ export default function PeopleAdmin({ initial, selfId }: { initial: Person[]; se
               {ROLE_LABELS[role]}
             </label>
           ))}
+          <FieldProblem error={inviteError} field="roles" id={INVITE_FIELDS.roles.id} />
         </fieldset>
         <button className="btn self-start" type="submit">Send invitation</button>
       </form>
-      {message && <p role="status" className={message.kind === 'ok' ? 'notice' : 'notice notice-error'}>{message.text}</p>}
+      {message && <p ref={messageRef} role={message.kind === 'ok' ? 'status' : 'alert'} className={message.kind === 'ok' ? 'notice' : 'notice notice-error'}>{message.text}</p>}
       <div className="card overflow-x-auto">
         <table className="data-table">
           <thead>

@@ -25,11 +25,11 @@ export default function SetPasswordForm({ token, email }: { token: string; email
       </p>
     );
   return (
-    <form onSubmit={submit} className="flex flex-col gap-4">
+    <form onSubmit={submit} className="flex flex-col gap-4" noValidate>
       <p>Choose a password for <strong>{email}</strong> (at least 10 characters).</p>
-      <label className="field"><span>Password</span><input className="input" type="password" name="password" autoComplete="new-password" required minLength={10} /></label>
-      <label className="field"><span>Repeat the password</span><input className="input" type="password" name="confirm" autoComplete="new-password" required /></label>
-      {error && <p role="alert" className="notice notice-error">{error}</p>}
+      <label className="field"><span>Password</span><input className="input" type="password" name="password" autoComplete="new-password" required minLength={10} aria-invalid={error ? true : undefined} aria-describedby={error ? 'set-password-problem' : undefined} /></label>
+      <label className="field"><span>Repeat the password</span><input className="input" type="password" name="confirm" autoComplete="new-password" required aria-invalid={error ? true : undefined} aria-describedby={error ? 'set-password-problem' : undefined} /></label>
+      {error && <p role="alert" id="set-password-problem" className="notice notice-error">✕ {error}</p>}
       <button className="btn" type="submit">Set password</button>
     </form>
   );

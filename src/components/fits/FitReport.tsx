@@ -44,6 +44,8 @@ interface Props {
   initial: FitView;
   canSubmit: boolean;
   canRefit: boolean;
+  /** Shown after the residual charts: the page passes the 3-D view island here (Astro slot). */
+  children?: React.ReactNode;
 }
 
 const ACCENT = '#0f6e6e';
@@ -368,7 +370,7 @@ function Observability({ report }: { report: EngineReport }) {
   );
 }
 
-export default function FitReport({ initial, canSubmit, canRefit }: Props) {
+export default function FitReport({ initial, canSubmit, canRefit, children }: Props) {
   const [fit, setFit] = useState<FitView>(initial);
   const [picked, setPicked] = useState<string[]>([]);
   const [comment, setComment] = useState('');
@@ -488,6 +490,7 @@ export default function FitReport({ initial, canSubmit, canRefit }: Props) {
           <FitWarnings report={report} />
 
           <ResidualCharts poses={report.poses} fileBase={fileBase} />
+          {children}
           <ParameterTable parameters={report.parameters} fileBase={fileBase} />
           <CorrelationMap report={report} fileBase={fileBase} />
 

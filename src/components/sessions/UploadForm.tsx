@@ -58,6 +58,17 @@ async function postJson(path: string, body: unknown): Promise<{ status: number; 
 const formatBytes = (b: number) => (b >= 1048576 ? `${(b / 1048576).toFixed(1)} MiB` : b >= 1024 ? `${(b / 1024).toFixed(1)} KiB` : `${b} bytes`);
 
 /** Drop zone + metadata form; uploads with XMLHttpRequest so the bytes sent can be shown. */
+/** The form's own fields, by the name the API uses for them in a refusal. */
+const META_FIELDS: Record<string, string> = {
+  unit: 'Unit (serial number)',
+  measuredOn: 'Measured on',
+  technician: 'Technician',
+  instrument: 'Laser tracker / instrument id',
+  ambientC: 'Ambient temperature (°C)',
+  target: 'Target (SMR) and mounting',
+  notes: 'Notes',
+};
+
 export default function UploadForm({ units, initialUnit, today, technician, maxBytes }: Props) {
   const [file, setFile] = useState<File | null>(null);
   const [state, setState] = useState<State>({ kind: 'idle' });
@@ -178,9 +189,57 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
   const refusal = state.kind === 'refused' ? state.body : undefined;
   // A refusal takes focus, so it is read out and the problems table is next in the tab order.
   const refusalRef = useFocusWhen<HTMLParagraphElement>(refusal);
+  const metaProps = (name: string) => {
+    const bad = refusal?.errors?.some((p) => p.field === name);
+    return { id: `upload-${name}`, name, 'aria-invalid': bad ? true : undefined, 'aria-describedby': bad ? 'upload-refusal' : undefined } as const;
+  };
 
   return (
     <form ref={formRef} onSubmit={submit} className="flex flex-col gap-5" noValidate>
+      {/* What was refused comes first: the summary at the top of the form, with links to the fields it names. */}
+      {refusal && (
+        <div className="flex flex-col gap-3" data-refusal data-status={state.kind === 'refused' ? state.status : undefined}>
+          <p ref={refusalRef} id="upload-refusal" className={`notice ${refusal.outsideLimits || state.kind === 'refused' && state.status === 409 ? 'notice-attention' : 'notice-error'}`} role="alert">
+            {state.kind === 'refused' && state.status === 409 ? '▲ ' : '✕ '}
+            {refusal.error}
+            {refusal.existing && (
+              <>
+                {' '}
+                <a href={refusal.existing.url} data-existing-session>
+                  Open the existing session
+                </a>
+              </>
+            )}
+          </p>
+          {refusal.errors && refusal.errors.length > 0 && (
+            <div className="overflow-x-auto">
+              <table className="data-table" data-problems>
+                <thead>
+                  <tr>
+                    <th className="num">Line</th>
+                    <th>Column / field</th>
+                    <th>Problem</th>
+                    <th>Expected</th>
+                  </tr>
+                </thead>
+                <tbody>
+                  {refusal.errors.map((p, k) => (
+                    <tr key={k}>
+                      <td className="num">{p.line ?? '—'}</td>
+                      <td>{p.field && META_FIELDS[p.field] ? <a href={`#upload-${p.field}`} onClick={(e) => { e.preventDefault(); document.getElementById(`upload-${p.field}`)?.focus(); }}>{META_FIELDS[p.field]}</a> : (p.column ?? p.field ?? '—')}</td>
+                      <td>{p.message}</td>
+                      <td>{p.expected ?? ''}</td>
+                    </tr>
+                  ))}
+                </tbody>
+              </table>
+              {refusal.truncated && <p className="mt-2 text-ink-soft">Only the first {refusal.errors.length} problems are listed; fix these and upload again to see the rest.</p>}
+            </div>
+          )}
+        </div>
+      )}
+      {/* The file input sits beside the drop zone, not inside it: a control inside a button is not allowed. */}
+      <input {...getInputProps()} name="file-picker" data-file-input />
       <div
         {...getRootProps({
           className: `flex min-h-40 cursor-pointer flex-col items-center justify-center gap-2 rounded-lg border-2 border-dashed p-6 text-center ${
@@ -192,7 +251,6 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
         })}
         data-dropzone
       >
-        <input {...getInputProps()} name="file-picker" data-file-input />
         {file ? (
           <>
             <p className="font-semibold" data-chosen-file>
@@ -213,7 +271,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
       <div className="grid gap-4 md:grid-cols-2">
         <label className="field">
           <span>Unit (serial number)</span>
-          <input className="input" name="unit" required defaultValue={initialUnit} list="upload-units" autoComplete="off" />
+          <input className="input" {...metaProps('unit')} required defaultValue={initialUnit} list="upload-units" autoComplete="off" />
           <datalist id="upload-units">
             {units.map((u) => (
               <option key={u.serial} value={u.serial}>
@@ -225,27 +283,27 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
         </label>
         <label className="field">
           <span>Measured on</span>
-          <input className="input" name="measuredOn" type="date" required defaultValue={today} max={today} />
+          <input className="input" {...metaProps('measuredOn')} type="date" required defaultValue={today} max={today} />
         </label>
         <label className="field">
           <span>Technician</span>
-          <input className="input" name="technician" defaultValue={technician} maxLength={120} />
+          <input className="input" {...metaProps('technician')} defaultValue={technician} maxLength={120} />
         </label>
         <label className="field">
           <span>Laser tracker / instrument id</span>
-          <input className="input" name="instrument" maxLength={120} placeholder="e.g. tracker LT-07" />
+          <input className="input" {...metaProps('instrument')} maxLength={120} placeholder="e.g. tracker LT-07" />
         </label>
         <label className="field">
           <span>Ambient temperature (°C)</span>
-          <input className="input" name="ambientC" inputMode="decimal" placeholder="e.g. 21.5" maxLength={32} />
+          <input className="input" {...metaProps('ambientC')} inputMode="decimal" placeholder="e.g. 21.5" maxLength={32} />
         </label>
         <label className="field">
           <span>Target (SMR) and mounting</span>
-          <input className="input" name="target" maxLength={200} placeholder="e.g. 1.5 in SMR on flange nest B" />
+          <input className="input" {...metaProps('target')} maxLength={200} placeholder="e.g. 1.5 in SMR on flange nest B" />
         </label>
         <label className="field md:col-span-2">
           <span>Notes</span>
-          <textarea className="input" name="notes" maxLength={4000} />
+          <textarea className="input" {...metaProps('notes')} maxLength={4000} />
         </label>
       </div>
 
@@ -290,47 +348,6 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
         </p>
       )}
 
-      {refusal && (
-        <div className="flex flex-col gap-3" data-refusal data-status={state.kind === 'refused' ? state.status : undefined}>
-          <p ref={refusalRef} className={`notice ${refusal.outsideLimits || state.kind === 'refused' && state.status === 409 ? 'notice-attention' : 'notice-error'}`} role="alert">
-            {state.kind === 'refused' && state.status === 409 ? '▲ ' : '✕ '}
-            {refusal.error}
-            {refusal.existing && (
-              <>
-                {' '}
-                <a href={refusal.existing.url} data-existing-session>
-                  Open the existing session
-                </a>
-              </>
-            )}
-          </p>
-          {refusal.errors && refusal.errors.length > 0 && (
-            <div className="overflow-x-auto">
-              <table className="data-table" data-problems>
-                <thead>
-                  <tr>
-                    <th className="num">Line</th>
-                    <th>Column / field</th>
-                    <th>Problem</th>
-                    <th>Expected</th>
-                  </tr>
-                </thead>
-                <tbody>
-                  {refusal.errors.map((p, k) => (
-                    <tr key={k}>
-                      <td className="num">{p.line ?? '—'}</td>
-                      <td>{p.column ?? p.field ?? '—'}</td>
-                      <td>{p.message}</td>
-                      <td>{p.expected ?? ''}</td>
-                    </tr>
-                  ))}
-                </tbody>
-              </table>
-              {refusal.truncated && <p className="mt-2 text-ink-soft">Only the first {refusal.errors.length} problems are listed; fix these and upload again to see the rest.</p>}
-            </div>
-          )}
-        </div>
-      )}
     </form>
   );
 }

@@ -1,8 +1,7 @@
 /**
  * Runs report work (calibration certificate PDF, accuracy map) off the request thread: in a worker thread
- * that loads src/lib/server/report-thread.ts through tsx's loader, the way engine-runner.ts runs fits. One
- * thread per call (certificates are made now and then, not in a loop); at most MAX_THREADS at once, the
- * rest wait. When the source tree or tsx is not at hand (or OFFSETRY_FIT_THREAD=off), the work runs
+ * that loads src/lib/server/report-thread.ts through tsx's loader, the way engine-runner.ts runs fits; up
+ * to MAX_THREADS threads at once (the rest wait), idle ones kept for the next task. When the source tree or tsx is not at hand (or OFFSETRY_FIT_THREAD=off), the work runs
  * in-process as a fallback.
  */
 import { existsSync, readFileSync } from 'node:fs';
@@ -65,26 +64,64 @@ async function slot(): Promise<() => void> {
 
 class DidNotStart extends Error {}
 
-function inThread(bootstrapCode: string, task: ReportTask): Promise<unknown> {
+/** Idle threads, kept (unreferenced) so a batch of certificates does not pay tsx's start-up each time. */
+const idle: Worker[] = [];
+
+function startThread(bootstrapCode: string): Promise<Worker> {
   return new Promise((resolve, reject) => {
     const worker = new Worker(bootstrapCode, { eval: true });
-    const timer = setTimeout(() => done(() => reject(new Error(`the report did not finish within ${TIMEOUT_MS / 1000} s`))), TIMEOUT_MS);
+    const onMessage = (m: ReportThreadMessage) => {
+      if (m.type === 'ready') {
+        cleanup();
+        resolve(worker);
+      } else if (m.type === 'no-start') {
+        cleanup();
+        void worker.terminate();
+        reject(new DidNotStart(m.message));
+      }
+    };
+    const onError = (e: Error) => {
+      cleanup();
+      reject(new DidNotStart(String(e?.message ?? e)));
+    };
+    const cleanup = () => {
+      worker.off('message', onMessage);
+      worker.off('error', onError);
+    };
+    worker.on('message', onMessage);
+    worker.on('error', onError);
+  });
+}
+
+async function inThread(bootstrapCode: string, task: ReportTask): Promise<unknown> {
+  const worker = idle.pop() ?? (await startThread(bootstrapCode));
+  return new Promise((resolve, reject) => {
     let settled = false;
-    const done = (fn: () => void) => {
+    const finish = (fn: () => void, reusable: boolean) => {
       if (settled) return;
       settled = true;
       clearTimeout(timer);
-      void worker.terminate();
+      worker.off('message', onMessage);
+      worker.off('error', onError);
+      worker.off('exit', onExit);
+      if (reusable && idle.length < MAX_THREADS) {
+        worker.unref();
+        idle.push(worker);
+      } else void worker.terminate();
       fn();
     };
-    worker.on('message', (m: ReportThreadMessage) => {
-      if (m.type === 'ready') worker.postMessage(task);
-      else if (m.type === 'done') done(() => resolve(m.result));
-      else if (m.type === 'error') done(() => reject(new Error(m.message)));
-      else if (m.type === 'no-start') done(() => reject(new DidNotStart(m.message)));
-    });
-    worker.on('error', (e) => done(() => reject(e)));
-    worker.on('exit', (c) => done(() => reject(new Error(`the report thread stopped (exit code ${c})`))));
+    const timer = setTimeout(() => finish(() => reject(new Error(`the report did not finish within ${TIMEOUT_MS / 1000} s`)), false), TIMEOUT_MS);
+    const onMessage = (m: ReportThreadMessage) => {
+      if (m.type === 'done') finish(() => resolve(m.result), true);
+      else if (m.type === 'error') finish(() => reject(new Error(m.message)), true);
+    };
+    const onError = (e: Error) => finish(() => reject(e), false);
+    const onExit = (c: number) => finish(() => reject(new Error(`the report thread stopped (exit code ${c})`)), false);
+    worker.on('message', onMessage);
+    worker.on('error', onError);
+    worker.on('exit', onExit);
+    worker.ref();
+    worker.postMessage(task);
   });
 }
 
