@@ -3,7 +3,7 @@ import { z } from 'zod';
 import { EXPORT_FORMATS, exportSingle } from '../../../../lib/server/exports';
 import { isUuid, problems, zodProblems } from '../../../../lib/server/http';
 
-const querySchema = z.strictObject({
+export const querySchema = z.strictObject({
   format: z.enum(EXPORT_FORMATS, { error: `format must be one of ${EXPORT_FORMATS.join(', ')}` }),
 });
 
