@@ -37,7 +37,7 @@ export async function runStatus(args: string[], io: Io): Promise<number> {
   const remote = remoteFrom(v, STATUS_USAGE);
   const s = encodeURIComponent(serial);
   const unit = await getJson<UnitReply>(remote, `/api/units/${s}`, `unit ${serial}`);
-  const fits = (q: string) => getJsonIfAllowed<{ fits: FitRow[] }>(remote, `/api/fits?unit=${s}&${q}&pageSize=200`, `fits of unit ${serial}`).then((r) => r?.fits ?? null);
+  const fits = (q: string) => getJsonIfAllowed<{ items: FitRow[] }>(remote, `/api/fits?unit=${s}&${q}&pageSize=200`, `fits of unit ${serial}`).then((r) => r?.items ?? null);
   const [queued, running, review, alerts] = await Promise.all([
     fits('state=queued'),
     fits('state=running'),

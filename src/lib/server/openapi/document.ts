@@ -99,7 +99,7 @@ export function buildOpenApiDocument(serverUrl?: string) {
   });
   for (const route of API_ROUTES) {
     for (const [method, access] of Object.entries(route.methods) as [Method, Access][]) {
-      registry.registerPath(operation(route.pattern, method, access, API_DOCS[route.pattern]![method]!) as Parameters<typeof registry.registerPath>[0]);
+      registry.registerPath(operation(route.pattern, method, access, API_DOCS[route.pattern]![method]!) as unknown as Parameters<typeof registry.registerPath>[0]);
     }
   }
   return new OpenApiGeneratorV31(registry.definitions).generateDocument({

@@ -135,7 +135,7 @@ const fitSummary = z
     createdAt: isoTime,
   })
   .meta({ id: 'FitSummary' });
-export const fitList = z.looseObject({ fits: z.array(fitSummary), ...page });
+export const fitList = z.looseObject({ items: z.array(fitSummary), ...page });
 export const fit = z.looseObject({
   fit: z.looseObject({
     id,
@@ -161,7 +161,13 @@ export const history = z.looseObject({
 export const fleet = z.looseObject({ units: z.array(z.looseObject({})), parameters: z.array(z.looseObject({})) });
 const groupTolerances = z.record(z.string(), z.number().nullable());
 export const tolerances = z.looseObject({ modelId: id, modelName: z.string(), tolerances: groupTolerances, defaults: z.boolean() });
-export const drift = z.looseObject({ serial: z.string(), parameters: z.array(z.looseObject({})) });
+export const drift = z.looseObject({
+  unit: z.looseObject({ id, serial: z.string(), needsAttention: z.boolean() }),
+  tolerances: groupTolerances,
+  versions: z.array(z.looseObject({ id, version: z.number().int(), state: z.string(), approvedAt: isoTime })),
+  parameters: z.array(z.looseObject({ key: z.string(), unit: z.enum(['mm', 'deg']), points: z.array(z.looseObject({ kind: z.enum(['set', 'fit']), value: z.number() })) })),
+  alerts: z.array(z.looseObject({ id, createdAt: z.string() })),
+});
 const alertRow = z.looseObject({ id, unitId: id, serial: z.string(), modelId: id, modelName: z.string(), parameterSetId: id, version: z.number().int(), createdAt: z.string(), acknowledgedAt: z.string().nullable() }).meta({ id: 'DriftAlert' });
 export const alerts = z.looseObject({ alerts: z.array(alertRow) });
 export const acknowledged = z.looseObject({ ok: z.literal(true), alert: alertRow, unitNeedsAttention: z.boolean() });
