@@ -9,7 +9,7 @@ import type { AddressInfo } from 'node:net';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { approveSet, fitAwaitingReview, makeModel, makeUnit, moved } from '../support/approved-sets';
 import { DEMO, signedIn, type Client } from '../support/http';
-import { testDb } from './fit-fixtures';
+import { createFixture, testDb, waitForFit } from './fit-fixtures';
 
 interface Received {
   headers: IncomingMessage['headers'];
@@ -137,6 +137,26 @@ describe('deliveries', () => {
         return d.length === 2 && d.every((x) => x.state === 'delivered') ? d : undefined;
       });
       expect(log.every((x) => x.attempts === 1 && x.lastStatus === 204)).toBe(true);
+    } finally {
+      await r.close();
+    }
+  });
+
+  it('posts fit.finished when a fit run by the job queue is done', async () => {
+    const r = await receiver();
+    try {
+      const { secret } = await register(r.url, ['fit.finished']);
+      const fx = await createFixture({ count: 40, seed: 5 });
+      const started = await engineer.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: {} });
+      expect(started.status).toBe(202);
+      const { fit } = await waitForFit(engineer, started.body.id);
+      const mine = () => r.got.filter((g) => JSON.parse(g.body).data?.fit?.id === fit.id);
+      const [got] = await until('the fit.finished message', () => (mine().length ? mine() : undefined));
+      const body = JSON.parse(got!.body);
+      expect(body.type).toBe('fit.finished');
+      expect(body.data.fit).toMatchObject({ id: fit.id, state: fit.state, sessionId: fx.sessionId });
+      expect(body.data.fit.rmsAfterMm).toBeCloseTo(fit.rmsAfterMm, 9);
+      expect(verify(secret, got!)).toBe(true);
     } finally {
       await r.close();
     }

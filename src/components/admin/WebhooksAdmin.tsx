@@ -76,7 +76,20 @@ export default function WebhooksAdmin({ initial, deliveries: firstDeliveries, ev
       <section className="card overflow-x-auto">
         <h2 className="mb-2">Endpoints</h2>
         {endpoints.length === 0 ? <p>No endpoints registered.</p> : (
-          <table className="data-table" data-webhook-endpoints>
+          <>
+          <ul className="flex flex-col gap-3 md:hidden">
+            {endpoints.map((e) => (
+              <li key={e.id} className="border-b border-rule pb-3">
+                <div className="break-all font-mono text-sm">{e.url}</div>
+                <div className="text-sm">{e.events.join(', ')}{e.description ? ` · ${e.description}` : ''}</div>
+                <div className="flex items-center justify-between gap-2 text-sm text-ink-soft">
+                  <span>{e.active ? '● active' : `✕ removed ${when(e.removedAt)}`}</span>
+                  {e.active && <button className="btn btn-quiet" type="button" onClick={() => remove(e.id)}>Remove</button>}
+                </div>
+              </li>
+            ))}
+          </ul>
+          <table className="data-table hidden md:table" data-webhook-endpoints>
             <thead><tr><th>URL</th><th>Events</th><th>Description</th><th>Registered</th><th>Status</th><th /></tr></thead>
             <tbody>
               {endpoints.map((e) => (
@@ -91,6 +104,7 @@ export default function WebhooksAdmin({ initial, deliveries: firstDeliveries, ev
               ))}
             </tbody>
           </table>
+          </>
         )}
       </section>
 
@@ -101,7 +115,17 @@ export default function WebhooksAdmin({ initial, deliveries: firstDeliveries, ev
         </div>
         <p className="mb-2 text-sm text-ink-soft">A delivery counts as delivered when the receiver answers 2xx within the time limit; otherwise it is retried with growing pauses, then given up. Removing an endpoint closes what is still waiting for it.</p>
         {deliveries.length === 0 ? <p>No deliveries yet.</p> : (
-          <table className="data-table" data-webhook-deliveries>
+          <>
+          <ul className="flex flex-col gap-3 md:hidden">
+            {deliveries.map((d) => (
+              <li key={d.id} className="border-b border-rule pb-3 text-sm" data-state={d.state}>
+                <div className="font-semibold">{d.event} · {STATE_MARK[d.state]}</div>
+                <div className="break-all font-mono">{d.url}</div>
+                <div className="text-ink-soft">{when(d.createdAt)} · {d.attempts} attempt{d.attempts === 1 ? '' : 's'} · {d.lastError ?? (d.lastStatus ? `HTTP ${d.lastStatus}` : '—')}</div>
+              </li>
+            ))}
+          </ul>
+          <table className="data-table hidden md:table" data-webhook-deliveries>
             <thead><tr><th>Created</th><th>Event</th><th>URL</th><th>State</th><th className="num">Attempts</th><th>Last answer</th></tr></thead>
             <tbody>
               {deliveries.map((d) => (
@@ -116,6 +140,7 @@ export default function WebhooksAdmin({ initial, deliveries: firstDeliveries, ev
               ))}
             </tbody>
           </table>
+          </>
         )}
       </section>
     </div>

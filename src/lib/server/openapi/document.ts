@@ -50,9 +50,9 @@ function operation(pattern: string, method: Method, access: Access, doc: Operati
   const ok = doc.ok;
   const types = typeof ok.contentType === 'string' ? [ok.contentType] : (ok.contentType ?? ['application/json']);
   const fileSchema = z.string().describe('file contents');
-  const okContent = Object.fromEntries(types.map((t) => [t, { schema: ok.schema ?? fileSchema }]));
+  const okContent = ok.schema || ok.contentType ? Object.fromEntries(types.map((t) => [t, { schema: ok.schema ?? fileSchema }])) : undefined;
   const responses: Record<string, { description: string; content?: Record<string, { schema: z.ZodType }> }> = {
-    [String(ok.status ?? 200)]: { description: ok.description ?? doc.summary, content: okContent },
+    [String(ok.status ?? 200)]: { description: ok.description ?? doc.summary, ...(okContent ? { content: okContent } : {}) },
   };
   const refusal = (status: number, text = STATUS_TEXT[status]!) => (responses[String(status)] = { description: text, content: problemContent });
   if (doc.query || doc.body) refusal(400);
@@ -81,10 +81,6 @@ function operation(pattern: string, method: Method, access: Access, doc: Operati
 }
 
 export function buildOpenApiDocument(serverUrl?: string) {
-  const gaps = registryGaps();
-  if (gaps.missing.length || gaps.extra.length) {
-    throw new Error(`The API registry and the access table differ: missing ${gaps.missing.join(', ') || 'none'}; not in the table ${gaps.extra.join(', ') || 'none'}.`);
-  }
   const registry = new OpenAPIRegistry();
   registry.registerComponent('securitySchemes', 'bearerToken', {
     type: 'http',
@@ -99,7 +95,10 @@ export function buildOpenApiDocument(serverUrl?: string) {
   });
   for (const route of API_ROUTES) {
     for (const [method, access] of Object.entries(route.methods) as [Method, Access][]) {
-      registry.registerPath(operation(route.pattern, method, access, API_DOCS[route.pattern]![method]!) as unknown as Parameters<typeof registry.registerPath>[0]);
+      // A route without an entry is still listed (with its roles), so the document never hides a route;
+      // tests/unit/openapi.test.ts fails until the entry is written.
+      const described = API_DOCS[route.pattern]?.[method] ?? { tag: 'Not yet described', summary: `${method} ${route.pattern}`, ok: { description: 'Not described yet.' } };
+      registry.registerPath(operation(route.pattern, method, access, described) as unknown as Parameters<typeof registry.registerPath>[0]);
     }
   }
   return new OpenApiGeneratorV31(registry.definitions).generateDocument({
