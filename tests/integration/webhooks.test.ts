@@ -8,6 +8,7 @@ import { createServer, type IncomingMessage, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { approveSet, fitAwaitingReview, makeModel, makeUnit, moved } from '../support/approved-sets';
+import { webhookDeliveries } from '../../src/db/schema';
 import { DEMO, signedIn, type Client } from '../support/http';
 import { createFixture, testDb, waitForFit } from './fit-fixtures';
 
@@ -181,6 +182,24 @@ describe('deliveries', () => {
       expect(verify(secret, got!)).toBe(true);
       const done = await until('the log to show it delivered', async () => (await deliveries(endpoint.id)).find((d) => d.id === failed.id && d.state === 'delivered'));
       expect(done.attempts).toBeGreaterThanOrEqual(2);
+    } finally {
+      await r.close();
+    }
+  });
+
+  it('hands a delivery whose job was lost back to the queue', async () => {
+    const r = await receiver();
+    try {
+      const { endpoint, secret } = await register(r.url, ['fit.finished']);
+      // A row marked queued three hours ago with no attempt since: its job is gone (a crashed worker's last try).
+      const body = JSON.stringify({ id: 'lost-job-test', type: 'fit.finished', createdAt: new Date().toISOString(), data: { fit: { id: 'lost' } } });
+      const [row] = await testDb()
+        .insert(webhookDeliveries)
+        .values({ endpointId: endpoint.id, event: 'fit.finished', body, payload: JSON.parse(body), queuedAt: new Date(Date.now() - 3 * 3600_000) })
+        .returning();
+      const [got] = await until('the re-queued delivery', () => (r.got.some((g) => g.body === body) ? r.got.filter((g) => g.body === body) : undefined));
+      expect(got!.headers['offsetry-webhook-id']).toBe(row!.id);
+      expect(verify(secret, got!)).toBe(true);
     } finally {
       await r.close();
     }

@@ -242,6 +242,18 @@ async function queue(): Promise<PgBoss> {
 /** Hand pending, not yet queued deliveries to the job queue (rows locked so instances never double-send). */
 export async function dispatchWebhooks(database: Db = sharedDb()) {
   const boss = await queue();
+  // A job lost without a final attempt (its worker died on the last try) leaves its row pending: after two
+  // hours without an attempt — longer than the whole backoff — it is handed to the queue again.
+  await database
+    .update(webhookDeliveries)
+    .set({ queuedAt: null })
+    .where(
+      and(
+        eq(webhookDeliveries.state, 'pending'),
+        sql`${webhookDeliveries.queuedAt} < now() - interval '2 hours'`,
+        sql`coalesce(${webhookDeliveries.lastAttemptAt}, ${webhookDeliveries.queuedAt}) < now() - interval '2 hours'`,
+      ),
+    );
   return database.transaction(async (tx) => {
     const rows = await tx
       .select({ id: webhookDeliveries.id })
