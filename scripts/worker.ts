@@ -34,4 +34,6 @@ process.on('SIGTERM', () => void stop('SIGTERM'));
 process.on('SIGINT', () => void stop('SIGINT'));
 
 await startWorker({ concurrency });
+// The worker also sends signed webhooks (the queue is shared, so any process may send any delivery).
+(await import('../src/lib/server/webhooks')).startWebhookSender();
 log('info', 'fit worker ready', { pid: process.pid, concurrency, engine: engineMode() });

@@ -4,6 +4,7 @@
  */
 import { CliError, EXIT_INTERNAL, EXIT_OK, EXIT_USAGE, type Io } from './common';
 import { CHECK_USAGE, FIT_USAGE, PLAN_USAGE } from './usage';
+import { PULL_USAGE, STATUS_USAGE, UPLOAD_USAGE } from './usage';
 
 export const USAGE = `Offsetry — kinematic calibration of robot arms from laser-tracker sessions.
 
@@ -13,6 +14,9 @@ commands:
   fit     identify a calibrated geometry from a nominal geometry and a measured session
   check   error statistics of a geometry against a session, without fitting
   plan    suggest joint configurations (a pose plan) for the next session
+  upload  send a session file to an Offsetry server
+  pull    download a unit's current approved parameter set from the server
+  status  a unit's current set, open fits and reviews, open drift alerts
 
 ${FIT_USAGE}
 
@@ -20,7 +24,15 @@ ${CHECK_USAGE}
 
 ${PLAN_USAGE}
 
-Exit status: 0 success, 1 bad input (nothing written), 2 bad usage, 3 internal error.`;
+${UPLOAD_USAGE}
+
+${PULL_USAGE}
+
+${STATUS_USAGE}
+
+Exit status: 0 success, 1 bad input (nothing written), 2 bad usage, 3 internal error,
+4 the server refused the token or its roles, 5 the server is unreachable or failed (try again),
+6 nothing to pull (no approved parameter set).`;
 
 type Run = (args: string[], io: Io) => Promise<number>;
 // Loaded on demand: a command pulls in only the engine modules it uses.
@@ -28,6 +40,9 @@ const commands: Record<string, { load: () => Promise<Run>; usage: string }> = {
   fit: { load: async () => (await import('./fit')).runFit, usage: FIT_USAGE },
   check: { load: async () => (await import('./check')).runCheck, usage: CHECK_USAGE },
   plan: { load: async () => (await import('./plan')).runPlan, usage: PLAN_USAGE },
+  upload: { load: async () => (await import('./upload')).runUpload, usage: UPLOAD_USAGE },
+  pull: { load: async () => (await import('./pull')).runPull, usage: PULL_USAGE },
+  status: { load: async () => (await import('./status')).runStatus, usage: STATUS_USAGE },
 };
 
 const consoleIo: Io = { out: (l) => process.stdout.write(l + '\n'), err: (l) => process.stderr.write(l + '\n') };
@@ -40,7 +55,7 @@ export async function main(argv: string[], io: Io = consoleIo): Promise<number> 
   }
   const cmd = commands[name];
   if (!cmd) {
-    io.err(`offsetry: unknown command "${name}" (expected fit, check or plan; see offsetry --help)`);
+    io.err(`offsetry: unknown command "${name}" (expected ${Object.keys(commands).join(', ')}; see offsetry --help)`);
     return EXIT_USAGE;
   }
   if (rest.includes('--help') || rest.includes('-h')) {

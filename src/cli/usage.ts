@@ -28,3 +28,29 @@ export const PLAN_USAGE = `usage: offsetry plan --model GEOMETRY.json --count 60
 
   Picks --count joint configurations within the joint limits that maximise an observability
   index (default O1) for the default parameter set, and writes them as CSV (pose,q1..qn).`;
+
+const REMOTE = `  --server     the Offsetry server (default: $OFFSETRY_URL)
+  --token      a personal API token (default: $OFFSETRY_TOKEN; create one on the Account page)`;
+
+export const UPLOAD_USAGE = `usage: offsetry upload --unit SERIAL --file SESSION.csv --measured-on YYYY-MM-DD
+                      [--instrument TEXT] [--technician TEXT] [--notes TEXT] [--allow-outside-limits]
+                      [--server URL] [--token TOKEN]
+
+  Uploads a measurement session of a unit to the server, which checks the whole file; its
+  line/field problems are printed like offsetry check prints them, and nothing is stored.
+  Files from 256 KiB on show a progress bar on stderr.
+${REMOTE}`;
+
+export const PULL_USAGE = `usage: offsetry pull --unit SERIAL --out FILE [--format json|csv|urdf|certificate]
+                    [--server URL] [--token TOKEN]
+
+  Downloads the unit's current approved parameter set (default --format json: the arm geometry
+  file; csv: parameter table; urdf; certificate). Written only when complete and its SHA-256
+  matches the server's; exits 6 when the unit has no approved set.
+${REMOTE}`;
+
+export const STATUS_USAGE = `usage: offsetry status --unit SERIAL [--json] [--server URL] [--token TOKEN]
+
+  The unit's current parameter set version, fits queued or running, fits awaiting review and
+  open drift alerts (--json: the same as JSON).
+${REMOTE}`;

@@ -38,7 +38,7 @@ export const jointSchema = z
   })
   .superRefine(
     (j, ctx) => {
-      if (typeof j.min === 'number' && typeof j.max === 'number' && !(j.min < j.max)) {
+      if (typeof j?.min === 'number' && typeof j.max === 'number' && !(j.min < j.max)) {
         ctx.addIssue({ code: 'custom', path: ['max'], message: `max (${j.max}) must be greater than min (${j.min})` });
       }
     },
@@ -62,7 +62,8 @@ export const armGeometrySchema = z
   })
   .superRefine(
     (g, ctx) => {
-    if (!Array.isArray(g.joints)) return;
+    // `when: () => true` runs this on any input, a missing object included.
+    if (!Array.isArray(g?.joints)) return;
     const seen = new Map<string, number>();
     g.joints.forEach((j, i) => {
       if (typeof j !== 'object' || j === null || typeof j.name !== 'string') return;

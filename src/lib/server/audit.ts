@@ -6,7 +6,7 @@ type Tx = Pick<Db, 'insert'>;
 export interface AuditEntry {
   actorId: string | null;
   unitId?: string | null;
-  entityType: 'user' | 'arm_model' | 'unit' | 'session' | 'fit' | 'parameter_set' | 'alert' | 'export' | 'token';
+  entityType: 'user' | 'arm_model' | 'unit' | 'session' | 'fit' | 'parameter_set' | 'alert' | 'export' | 'token' | 'webhook';
   entityId?: string | null;
   action: string;
   comment?: string | null;

@@ -11,6 +11,7 @@ import { config } from './config';
 import { db as sharedDb, type Db } from './db';
 import { composeMail, enqueueMail } from './mail';
 import { parameterValues, mergedOrder, type ParameterValue } from './parameter-values';
+import { recordWebhookEvent } from './webhooks';
 
 export type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
 type Conn = Db | Tx;
@@ -131,6 +132,12 @@ export async function checkDriftOnApproval(tx: Conn, options: DriftCheckOptions)
   const details = beyond.map((c) => ({ key: c.key, change: c.change, tolerance: c.tolerance!, unit: c.unit }));
   const [alert] = await tx.insert(driftAlerts).values({ unitId: options.unitId, parameterSetId: current.id, previousSetId: previous.id, details }).returning();
   await tx.update(units).set({ needsAttention: true }).where(eq(units.id, options.unitId));
+  await recordWebhookEvent(tx, 'drift_alert.raised', {
+    alert: { id: alert!.id, parameters: details },
+    unit: { id: options.unitId, serial: model.serial },
+    parameterSet: { id: current.id, version: current.version },
+    previousSet: { id: previous.id, version: previous.version },
+  });
   await audit(tx, {
     actorId: null,
     unitId: options.unitId,

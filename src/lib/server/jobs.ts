@@ -24,6 +24,7 @@ import { engineMode, runEngine } from './engine-runner';
 import { fitSettingsSchema, toFitOptions } from './fits';
 import { log } from './log';
 import { sha256 } from './tokens';
+import { recordWebhookEvent } from './webhooks';
 
 export const FIT_QUEUE = 'fit';
 /** Which process ran a fit (fit.fitted audit details, job log lines): WORKER_NAME, else host and pid. */
@@ -124,6 +125,7 @@ async function markFailed(database: Db, fitId: string, unitId: string, message: 
       .where(and(eq(fits.id, fitId), inArray(fits.state, ['queued', 'running'])))
       .returning({ id: fits.id });
     if (rows.length) await audit(tx, { actorId: null, unitId, entityType: 'fit', entityId: fitId, action: 'fit.failed', comment: message, details });
+    if (rows.length) await recordWebhookEvent(tx, 'fit.finished', { fit: { id: fitId, state: 'failed', error: message }, unit: { id: unitId } });
   });
 }
 
@@ -226,6 +228,10 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
         attempt: claimed.attempts,
         worker: WORKER_ID,
       },
+    });
+    await recordWebhookEvent(tx, 'fit.finished', {
+      fit: { id: fitId, state: 'fitted', sessionId: claimed.sessionId, rmsBeforeMm: report.statistics.fit.before.rms, rmsAfterMm: report.statistics.fit.after.rms },
+      unit: { id: claimed.unitId },
     });
     return true;
   });

@@ -13,6 +13,7 @@ import type { ArmGeometry } from '../engine/types';
 import { audit } from './audit';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
+import { recordWebhookEvent } from './webhooks';
 import { checkDriftOnApproval } from './drift';
 import { composeMail, enqueueMail } from './mail';
 import type { CurrentUser } from './users';
@@ -123,6 +124,12 @@ export async function approveFit(
       .returning({ id: parameterSets.id, version: parameterSets.version });
     // Drift beyond tolerance from the previous version: alert, attention mark and mail, in this transaction.
     await checkDriftOnApproval(tx, { unitId: fit.unitId, newSetId: set!.id });
+    await recordWebhookEvent(tx, 'parameter_set.approved', {
+      parameterSet: { id: set!.id, version, previousId: current?.id ?? null },
+      unit: { id: fit.unitId, serial: unit!.serial },
+      fitId,
+      approvedBy: { id: user.id, name: user.name },
+    });
     await tx
       .update(fits)
       .set({ reviewState: 'approved', decidedBy: user.id, decidedAt: sql`now()`, decisionComment: comment || null })

@@ -33,6 +33,11 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/admin/users', methods: { GET: ['admin'], POST: ['admin'] } },
   { pattern: '/api/admin/users/[id]', methods: { PATCH: ['admin'] } },
   { pattern: '/api/admin/mail', methods: { GET: ['admin'] } },
+  // Described API and signed webhooks
+  { pattern: '/api/openapi.json', methods: { GET: 'public' } },
+  { pattern: '/api/admin/webhooks', methods: { GET: ['admin'], POST: ['admin'] } },
+  { pattern: '/api/admin/webhooks/[id]', methods: { DELETE: ['admin'] } },
+  { pattern: '/api/admin/webhooks/deliveries', methods: { GET: ['admin'] } },
   // Arm models, units, sessions (issue 4)
   { pattern: '/api/arm-models', methods: { GET: ENGINEERING, POST: MODEL_EDITORS } },
   { pattern: '/api/arm-models/[id]', methods: { GET: [...ENGINEERING, 'service'], PUT: MODEL_EDITORS } },

@@ -3,7 +3,7 @@ import { z } from 'zod';
 import { openAlerts } from '../../../lib/server/drift';
 import { json, problems, zodProblems } from '../../../lib/server/http';
 
-const querySchema = z.strictObject({ model: z.uuid({ error: 'model must be an arm model id' }).optional() });
+export const querySchema = z.strictObject({ model: z.uuid({ error: 'model must be an arm model id' }).optional() });
 
 /** Open (unacknowledged) drift alerts, newest first (`?model=` for one arm model). */
 export const GET: APIRoute = async ({ url }) => {

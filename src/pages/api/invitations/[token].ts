@@ -10,7 +10,7 @@ export const GET: APIRoute = async ({ params }) => {
   return json({ email: found.user.email, name: found.user.name, expiresAt: found.inv.expiresAt });
 };
 
-const body = z.object({ password: z.string() });
+export const body = z.object({ password: z.string() });
 
 /** Set the password once; the link is spent. */
 export const POST: APIRoute = async ({ params, request }) => {

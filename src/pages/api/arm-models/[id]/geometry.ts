@@ -4,7 +4,7 @@ import { isUuid, problems } from '../../../../lib/server/http';
 import { geometryFile } from '../../../../lib/server/arm-models';
 import { queryProblems } from '../../../../lib/server/units';
 
-const querySchema = z.strictObject({
+export const querySchema = z.strictObject({
   revision: z.coerce.number({ error: 'revision must be a whole number (1, 2, …)' }).int('revision must be a whole number (1, 2, …)').min(1, 'revision starts at 1').optional(),
 });
 

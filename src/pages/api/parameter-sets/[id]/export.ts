@@ -4,7 +4,7 @@ import { EXPORT_FORMATS, exportSingle } from '../../../../lib/server/exports';
 import { isUuid, problems, zodProblems } from '../../../../lib/server/http';
 import { URDF_ROOTS } from '../../../../lib/server/urdf';
 
-const querySchema = z.strictObject({
+export const querySchema = z.strictObject({
   format: z.enum(EXPORT_FORMATS, { error: `format must be one of ${EXPORT_FORMATS.join(', ')}` }),
   /** URDF only: where the tree starts — the robot base (default) or the tracker frame of the session. */
   frame: z.enum(URDF_ROOTS, { error: `frame must be one of ${URDF_ROOTS.join(', ')}` }).default('base'),

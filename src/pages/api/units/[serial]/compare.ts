@@ -5,7 +5,7 @@ import { json, problems } from '../../../../lib/server/http';
 import { queryProblems } from '../../../../lib/server/units';
 
 const ref = z.string({ error: 'required: nominal, a parameter set id, or fit:<id>' }).trim().min(1).max(80);
-const querySchema = z.strictObject({
+export const querySchema = z.strictObject({
   a: ref,
   b: ref,
   samples: z.coerce.number({ error: 'samples must be a whole number from 100 to 20000' }).int().min(100).max(20_000).default(2000),

@@ -3,7 +3,7 @@ import { z } from 'zod';
 import { unitDrift } from '../../../../lib/server/drift';
 import { json, problems, zodProblems } from '../../../../lib/server/http';
 
-const querySchema = z.strictObject({
+export const querySchema = z.strictObject({
   fits: z.enum(['true', 'false'], { error: 'fits must be true or false' }).optional(),
 });
 

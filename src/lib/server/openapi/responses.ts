@@ -1,0 +1,200 @@
+/**
+ * Response bodies of the API as zod schemas, for the OpenAPI document only (the endpoints build their replies
+ * from typed server functions). Objects are open (`looseObject`): a reply may carry more fields than listed,
+ * and every listed field is checked against real replies by tests/integration/openapi.test.ts.
+ */
+import { z } from 'zod';
+import { ROLES } from '../../shared/roles';
+import { FIT_STATES, REVIEW_STATES } from '../../../db/schema/fits';
+
+const id = z.uuid();
+const isoTime = z.string().describe('ISO 8601 date-time');
+const day = z.string().regex(/^\d{4}-\d{2}-\d{2}$/).describe('date YYYY-MM-DD');
+const nullableTime = isoTime.nullable();
+
+/** The 4xx problem format every refusal uses. */
+export const problemSchema = z
+  .looseObject({
+    error: z.string().describe('What went wrong, in one sentence.'),
+    errors: z
+      .array(
+        z.looseObject({
+          file: z.string().optional(),
+          line: z.number().int().optional().describe('1-based line of the uploaded file'),
+          column: z.string().optional().describe('column name of the uploaded file'),
+          field: z.string().optional().describe('dotted path of the request field (query, body or form field)'),
+          message: z.string(),
+          expected: z.string().optional(),
+        }),
+      )
+      .optional()
+      .describe('Every problem found, each naming its line / column / field; absent for refusals without field problems (401, 403, 405).'),
+  })
+  .meta({ id: 'Problem' });
+
+export const geometrySchema = z
+  .looseObject({
+    format: z.literal('offsetry-arm/1'),
+    name: z.string().optional(),
+    convention: z.enum(['dh', 'mdh']),
+    joints: z.array(z.looseObject({ name: z.string(), type: z.enum(['revolute', 'prismatic']), a: z.number(), alpha: z.number(), d: z.number(), theta: z.number() })),
+  })
+  .meta({ id: 'ArmGeometry', description: 'Arm geometry file (offsetry-arm/1): lengths in mm, angles in degrees, full double precision.' });
+
+const page = { total: z.number().int(), page: z.number().int(), pageSize: z.number().int() };
+
+const userSchema = z
+  .looseObject({ id, email: z.string(), name: z.string(), roles: z.array(z.enum(ROLES)), active: z.boolean() })
+  .meta({ id: 'User' });
+
+export const health = z.looseObject({
+  status: z.enum(['ok', 'degraded']),
+  mode: z.string(),
+  database: z.boolean(),
+  s3: z.boolean(),
+  mail: z.boolean(),
+  migrations: z.looseObject({ applied: z.number().int(), expected: z.number().int(), upToDate: z.boolean() }),
+});
+
+export const me = z.looseObject({ user: z.looseObject({ id, email: z.string(), name: z.string(), roles: z.array(z.enum(ROLES)), via: z.enum(['session', 'token']) }) });
+export const invitation = z.looseObject({ email: z.string(), name: z.string(), expiresAt: z.string() });
+export const invitationAccepted = z.looseObject({ email: z.string() });
+
+const tokenRow = z.looseObject({ id, name: z.string(), prefix: z.string(), createdAt: isoTime, lastUsedAt: nullableTime, revokedAt: nullableTime });
+export const tokens = z.looseObject({ tokens: z.array(tokenRow) });
+export const tokenCreated = z.looseObject({ id, name: z.string(), prefix: z.string(), token: z.string().describe('The secret, shown once.') });
+export const revoked = z.looseObject({ revoked: z.literal(true) });
+
+export const users = z.looseObject({ users: z.array(userSchema) });
+export const oneUser = z.looseObject({ user: userSchema });
+export const mail = z.looseObject({ outbox: z.array(z.looseObject({ id: z.union([id, z.number()]), state: z.string().optional() })), captured: z.unknown() });
+
+const armModelRow = z.looseObject({ id, name: z.string(), manufacturer: z.string(), latestRevision: z.number().int(), convention: z.enum(['dh', 'mdh']), jointCount: z.number().int(), unitCount: z.number().int(), createdAt: isoTime });
+export const armModels = z.looseObject({ items: z.array(armModelRow) });
+export const armModel = z.looseObject({ id, name: z.string(), manufacturer: z.string(), revisions: z.array(z.looseObject({ id, revision: z.number().int(), geometry: geometrySchema })) });
+export const armModelChanged = z.looseObject({ id, name: z.string() });
+
+const unitRow = z.looseObject({ serial: z.string(), modelId: id, model: z.string(), revision: z.number().int(), site: z.string(), cell: z.string(), commissionedOn: day.nullable(), needsAttention: z.boolean(), createdAt: isoTime });
+export const unitList = z.looseObject({ items: z.array(unitRow), ...page });
+export const unit = z
+  .looseObject({
+    id,
+    serial: z.string(),
+    site: z.string(),
+    cell: z.string(),
+    needsAttention: z.boolean(),
+    model: z.looseObject({ id, name: z.string(), latestRevision: z.number().int() }),
+    revision: z.looseObject({ id, revision: z.number().int(), geometry: geometrySchema }),
+    currentParameterSet: z.looseObject({ id, version: z.number().int(), approvedAt: isoTime }).nullable(),
+    counts: z.looseObject({ sessions: z.number().int(), fits: z.number().int(), parameterSets: z.number().int() }),
+  })
+  .meta({ id: 'Unit' });
+export const unitCreated = z.looseObject({ serial: z.string() });
+export const posePlan = z.looseObject({ serial: z.string(), count: z.number().int(), seed: z.number().int(), index: z.enum(['O1', 'O3', 'O4']), joints: z.array(z.string()), csv: z.string() });
+
+const sessionRow = z.looseObject({ id, url: z.string(), unit: z.string(), measuredOn: day, technician: z.string(), instrument: z.string(), fileName: z.string(), poseCount: z.number().int(), createdAt: isoTime });
+export const sessionList = z.looseObject({ sessions: z.array(sessionRow), ...page });
+export const session = z.looseObject({
+  session: z.looseObject({
+    id,
+    unit: z.looseObject({ id, serial: z.string() }),
+    model: z.looseObject({ id, name: z.string(), revision: z.number().int() }),
+    measuredOn: day,
+    fileName: z.string(),
+    fileSha256: z.string().regex(/^[0-9a-f]{64}$/),
+    fileBytes: z.number().int(),
+    poseCount: z.number().int(),
+    jointCount: z.number().int(),
+    warnings: z.array(z.looseObject({ message: z.string() })),
+  }),
+});
+export const uploadAccepted = z
+  .looseObject({ id, url: z.string(), poseCount: z.number().int(), warnings: z.array(z.looseObject({ message: z.string() })) })
+  .meta({ id: 'SessionAccepted' });
+export const presignedStart = z.looseObject({ uploadId: z.string(), url: z.string(), method: z.string(), headers: z.record(z.string(), z.string()), expiresAt: z.string() });
+export const poses = z.looseObject({
+  poses: z.array(z.looseObject({ idx: z.number().int(), line: z.number().int(), label: z.string(), q: z.array(z.number()), x: z.number(), y: z.number(), z: z.number(), split: z.enum(['fit', 'validate']).nullable() })),
+  ...page,
+});
+export const sessionCheck = z.looseObject({
+  check: z.looseObject({ stats: z.looseObject({ n: z.number().int(), rms: z.number(), mean: z.number(), max: z.number(), p95: z.number() }), registered: z.boolean(), poses: z.array(z.looseObject({ label: z.string(), line: z.number().int(), error: z.number() })) }),
+  quality: z.looseObject({ poseCount: z.number().int(), poor: z.boolean() }),
+});
+
+const fitSummary = z
+  .looseObject({
+    id,
+    sessionId: id,
+    unitId: id,
+    unitSerial: z.string(),
+    state: z.enum(FIT_STATES),
+    reviewState: z.enum(REVIEW_STATES).nullable(),
+    progress: z.looseObject({ iteration: z.number().int(), rmsMm: z.number() }).nullable(),
+    error: z.string().nullable(),
+    attempts: z.number().int(),
+    createdAt: isoTime,
+  })
+  .meta({ id: 'FitSummary' });
+export const fitList = z.looseObject({ items: z.array(fitSummary), ...page });
+export const fit = z.looseObject({
+  fit: z.looseObject({
+    id,
+    state: z.enum(FIT_STATES),
+    report: z.record(z.string(), z.unknown()).nullable(),
+    parameterSet: z.looseObject({ id, version: z.number().int(), state: z.string() }).nullable(),
+  }),
+});
+export const fitQueued = z.looseObject({ id, state: z.literal('queued'), href: z.string() });
+export const reviewDone = z.looseObject({ ok: z.literal(true) });
+
+const parameterSetRow = z.looseObject({ id, version: z.number().int(), state: z.enum(['current', 'superseded']), fitId: id, approvedAt: isoTime, geometry: geometrySchema, standardErrors: z.record(z.string(), z.number().nullable()) });
+export const parameterSets = z.looseObject({ unit: z.looseObject({ id, serial: z.string() }), parameterSets: z.array(parameterSetRow) });
+export const compare = z.looseObject({ ok: z.literal(true), a: z.looseObject({}), b: z.looseObject({}), parameters: z.array(z.looseObject({})) });
+export const history = z.looseObject({
+  serial: z.string(),
+  audit: z.array(z.looseObject({ id: z.union([id, z.number()]), at: isoTime, action: z.string() })),
+  sessions: z.array(z.looseObject({ id, measuredOn: day })),
+  fits: z.array(z.looseObject({ id, state: z.string(), createdAt: isoTime })),
+  parameterSets: z.array(z.looseObject({ id, version: z.number().int(), state: z.string(), approvedAt: isoTime })),
+});
+
+export const fleet = z.looseObject({ units: z.array(z.looseObject({})), parameters: z.array(z.looseObject({})) });
+const groupTolerances = z.record(z.string(), z.number().nullable());
+export const tolerances = z.looseObject({ modelId: id, modelName: z.string(), tolerances: groupTolerances, defaults: z.boolean() });
+export const drift = z.looseObject({
+  unit: z.looseObject({ id, serial: z.string(), needsAttention: z.boolean() }),
+  tolerances: groupTolerances,
+  versions: z.array(z.looseObject({ id, version: z.number().int(), state: z.string(), approvedAt: isoTime })),
+  parameters: z.array(z.looseObject({ key: z.string(), unit: z.enum(['mm', 'deg']), points: z.array(z.looseObject({ kind: z.enum(['set', 'fit']), value: z.number() })) })),
+  alerts: z.array(z.looseObject({ id, createdAt: z.string() })),
+});
+const alertRow = z.looseObject({ id, unitId: id, serial: z.string(), modelId: id, modelName: z.string(), parameterSetId: id, version: z.number().int(), createdAt: z.string(), acknowledgedAt: z.string().nullable() }).meta({ id: 'DriftAlert' });
+export const alerts = z.looseObject({ alerts: z.array(alertRow) });
+export const acknowledged = z.looseObject({ ok: z.literal(true), alert: alertRow, unitNeedsAttention: z.boolean() });
+export const exportLog = z.looseObject({ entries: z.array(z.looseObject({ id: z.union([id, z.number()]), at: isoTime, kind: z.string(), userName: z.string() })), ...page });
+
+export const webhookEndpoint = z
+  .looseObject({ id, url: z.string(), events: z.array(z.string()), description: z.string(), active: z.boolean(), createdAt: isoTime, removedAt: nullableTime })
+  .meta({ id: 'WebhookEndpoint' });
+export const webhookList = z.looseObject({ endpoints: z.array(webhookEndpoint) });
+export const webhookCreated = z.looseObject({ endpoint: webhookEndpoint, secret: z.string().describe('The signing secret, shown once.') });
+export const webhookRemoved = z.looseObject({ removed: z.literal(true) });
+export const webhookDeliveries = z.looseObject({
+  deliveries: z.array(
+    z.looseObject({
+      id,
+      endpointId: id,
+      url: z.string(),
+      event: z.string(),
+      state: z.enum(['pending', 'delivered', 'failed']),
+      attempts: z.number().int(),
+      lastStatus: z.number().int().nullable(),
+      lastError: z.string().nullable(),
+      createdAt: isoTime,
+      deliveredAt: nullableTime,
+    }),
+  ),
+  ...page,
+});
+
+export const openapiDocument = z.looseObject({ openapi: z.string().regex(/^3\.1\./), info: z.looseObject({ title: z.string() }), paths: z.record(z.string(), z.unknown()) });
