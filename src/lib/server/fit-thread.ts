@@ -6,6 +6,7 @@
 import { parentPort } from 'node:worker_threads';
 import { fitSession, type FitOptions } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
+import { computeFleet, type FleetComputeInput } from './fleet-compute';
 
 export interface FitThreadInput {
   nominal: ArmGeometry;
@@ -13,7 +14,14 @@ export interface FitThreadInput {
   options: Omit<FitOptions, 'onIteration'>;
 }
 
+/** Other engine work the thread runs (statistics): one named task, one answer. */
+export interface EngineTaskInput {
+  task: 'fleet';
+  input: FleetComputeInput;
+}
+
 export type FitThreadMessage =
+  | { type: 'task-done'; result: unknown }
   | { type: 'ready' }
   | { type: 'iteration'; iteration: number; cost: number; rmsMm: number }
   | { type: 'done'; report: unknown }
@@ -25,7 +33,15 @@ export type FitThreadMessage =
 const port = parentPort;
 if (port) {
   const post = (m: FitThreadMessage) => port.postMessage(m);
-  port.on('message', (input: FitThreadInput) => {
+  port.on('message', (input: FitThreadInput | EngineTaskInput) => {
+    if ('task' in input) {
+      try {
+        post({ type: 'task-done', result: computeFleet(input.input) });
+      } catch (err) {
+        post({ type: 'error', message: String((err as Error)?.stack ?? err) });
+      }
+      return;
+    }
     try {
       const report = fitSession(input.nominal, input.poses, {
         ...input.options,
