@@ -11,8 +11,10 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { fitSession, type FitOptions, type FitReport, type IterationInfo } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
-import type { EngineTaskInput, FitThreadInput, FitThreadMessage } from './fit-thread';
-import { computeFleet, type FleetComputeInput, type FleetComputeResult } from './fleet-compute';
+import { runTask, type EngineTaskInput } from './engine-tasks';
+import type { FitThreadInput, FitThreadMessage } from './fit-thread';
+import type { FleetComputeInput, FleetComputeResult } from './fleet-compute';
+import type { WorkspaceDifference } from '../engine/workspace';
 import { log } from './log';
 
 const THREAD_FILE = path.join('src', 'lib', 'server', 'fit-thread.ts');
@@ -165,9 +167,18 @@ async function inThread(code: string, run: EngineRun): Promise<FitReport> {
  * Fleet statistics in a worker thread (in-process as a fallback), through the same idle threads as the
  * fits: the judgement of every unit and the position errors grow with the fleet, the page must not.
  */
-export async function runFleetTask(input: FleetComputeInput, timeoutMs = 120_000): Promise<FleetComputeResult> {
+export async function runFleetTask(input: FleetComputeInput): Promise<FleetComputeResult> {
+  return (await runEngineTask({ task: 'fleet', input })) as FleetComputeResult;
+}
+
+/** Workspace position difference of two geometries (engine workspaceDifference) off the caller's thread. */
+export async function runWorkspaceDifference(input: Extract<EngineTaskInput, { task: 'workspace' }>['input']): Promise<WorkspaceDifference> {
+  return (await runEngineTask({ task: 'workspace', input })) as WorkspaceDifference;
+}
+
+async function runEngineTask(task: EngineTaskInput, timeoutMs = 120_000): Promise<unknown> {
   const code = bootstrap();
-  if (!code) return computeFleet(input);
+  if (!code) return runTask(task);
   let worker: Worker;
   try {
     worker = idle.pop() ?? (await startThread(code));
@@ -175,9 +186,9 @@ export async function runFleetTask(input: FleetComputeInput, timeoutMs = 120_000
     if (!(err instanceof ThreadDidNotStart)) throw err;
     log('warn', 'engine threads unavailable; statistics run in-process', { error: err.message });
     threadCode = null;
-    return computeFleet(input);
+    return runTask(task);
   }
-  return new Promise<FleetComputeResult>((resolve, reject) => {
+  return new Promise<unknown>((resolve, reject) => {
     const finish = (fn: () => void, reusable: boolean) => {
       clearTimeout(timer);
       worker.off('message', onMessage);
@@ -190,14 +201,13 @@ export async function runFleetTask(input: FleetComputeInput, timeoutMs = 120_000
     };
     const timer = setTimeout(() => finish(() => reject(new Error('the fleet statistics did not finish in time')), false), timeoutMs);
     const onMessage = (m: FitThreadMessage) => {
-      if (m.type === 'task-done') finish(() => resolve(m.result as FleetComputeResult), true);
+      if (m.type === 'task-done') finish(() => resolve(m.result), true);
       else if (m.type === 'error') finish(() => reject(new Error(m.message)), false);
     };
     const onError = (err: Error) => finish(() => reject(err), false);
     worker.on('message', onMessage);
     worker.on('error', onError);
     worker.ref();
-    const message: EngineTaskInput = { task: 'fleet', input };
-    worker.postMessage(message);
+    worker.postMessage(task);
   });
 }

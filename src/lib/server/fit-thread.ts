@@ -6,7 +6,7 @@
 import { parentPort } from 'node:worker_threads';
 import { fitSession, type FitOptions } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
-import { computeFleet, type FleetComputeInput } from './fleet-compute';
+import { runTask, type EngineTaskInput } from './engine-tasks';
 
 export interface FitThreadInput {
   nominal: ArmGeometry;
@@ -14,11 +14,7 @@ export interface FitThreadInput {
   options: Omit<FitOptions, 'onIteration'>;
 }
 
-/** Other engine work the thread runs (statistics): one named task, one answer. */
-export interface EngineTaskInput {
-  task: 'fleet';
-  input: FleetComputeInput;
-}
+export type { EngineTaskInput } from './engine-tasks';
 
 export type FitThreadMessage =
   | { type: 'task-done'; result: unknown }
@@ -36,7 +32,7 @@ if (port) {
   port.on('message', (input: FitThreadInput | EngineTaskInput) => {
     if ('task' in input) {
       try {
-        post({ type: 'task-done', result: computeFleet(input.input) });
+        post({ type: 'task-done', result: runTask(input) });
       } catch (err) {
         post({ type: 'error', message: String((err as Error)?.stack ?? err) });
       }
