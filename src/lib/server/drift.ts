@@ -196,7 +196,7 @@ export async function checkDriftOnApproval(tx: Conn, options: DriftCheckOptions)
     .where(and(eq(users.active, true), sql`'quality' = any(${users.roles})`));
   const base = (options.baseUrl ?? config().PUBLIC_BASE_URL).replace(/\/$/, '');
   const fmt = (c: (typeof details)[number]) =>
-    `${c.key}: changed by ${c.change.toFixed(c.unit === 'mm' ? 3 : 4)} ${c.unit} (tolerance ${c.tolerance} ${c.unit}${c.multiple === null ? '' : `; ${Math.abs(c.multiple).toFixed(1)}× its combined standard error`}) — ${crossedWords({ exceeded: true, beyondSe: c.crossed.includes('standard-error'), multiple: c.multiple })}`;
+    `${c.key}: changed by ${c.change.toFixed(c.unit === 'mm' ? 3 : 4)} ${c.unit} (tolerance ${c.tolerance} ${c.unit}) — ${crossedWords({ exceeded: true, beyondSe: c.crossed.includes('standard-error'), multiple: c.multiple })}`;
   const subject = `Drift beyond tolerance on unit ${model.serial} (v${previous.version} → v${current.version})`;
   const lines = [
     `Parameter set v${current.version} of unit ${model.serial} (${model.modelName}) was approved and differs from v${previous.version} beyond the tolerance of ${details.length} parameter${details.length === 1 ? '' : 's'}:`,
