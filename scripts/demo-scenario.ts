@@ -72,6 +72,11 @@ export interface DemoUnit {
   visits: number;
   /** Extra drift per visit (mm for lengths, deg for angles) — one unit drifts clearly. */
   drift: number;
+  /**
+   * A lasting difference from the rest of the fleet (joint index → field → offset, mm / deg): the fleet
+   * view's one genuinely odd unit (LCS-R6-0107: its upper arm was replaced by a part 1.8 mm longer).
+   */
+  odd?: Record<number, Partial<Record<'a' | 'd' | 'alpha' | 'theta', number>>>;
 }
 
 export const UNITS: DemoUnit[] = [
@@ -82,6 +87,7 @@ export const UNITS: DemoUnit[] = [
     commissionedOn: `20${21 + (k % 3)}-0${1 + (k % 9)}-1${k % 10}`,
     visits: 3 + (k % 2),
     drift: serial === 'LCS-R6-0104' ? 1 : 0,
+    ...(serial === 'LCS-R6-0107' ? { odd: { 2: { a: 1.8 } } } : {}),
   })),
   ...['LCS-S4-0201', 'LCS-S4-0202', 'LCS-S4-0203', 'LCS-S4-0204'].map((serial, k) => ({
     serial,
@@ -107,7 +113,7 @@ function rng(seed: number) {
 const seedOf = (s: string) => [...s].reduce((h, c) => Math.imul(h ^ c.charCodeAt(0), 16777619) >>> 0, 2166136261);
 
 /** The unit's "true" geometry at visit v: nominal + fixed per-unit errors + a slow drift. */
-function trueGeometry(unit: DemoUnit, visit: number): ArmGeometry {
+export function trueGeometry(unit: DemoUnit, visit: number): ArmGeometry {
   const r = rng(seedOf(unit.serial));
   const g: ArmGeometry = structuredClone(unit.model);
   const driftR = rng(seedOf(unit.serial + ':drift'));
@@ -125,6 +131,7 @@ function trueGeometry(unit: DemoUnit, visit: number): ArmGeometry {
     const walk = 0.01 * visit;
     out.theta += walk * driftR.normal() + (k === 1 ? unit.drift * 0.06 * visit : 0);
     if (k === 2) out.a += unit.drift * 0.3 * visit;
+    for (const [field, offset] of Object.entries(unit.odd?.[k] ?? {})) out[field as 'a'] += offset;
     return out;
   });
   const t = g.tool!;
@@ -133,7 +140,7 @@ function trueGeometry(unit: DemoUnit, visit: number): ArmGeometry {
 }
 
 /** One visit's CSV: 60–80 poses within 85 % of the joint ranges, a few repeat visits, maybe a split column. */
-function visitCsv(unit: DemoUnit, visit: number): string {
+export function visitCsv(unit: DemoUnit, visit: number): string {
   const r = rng(seedOf(`${unit.serial}:visit:${visit}`));
   const truth = trueGeometry(unit, visit);
   // Where the tracker stood: a few metres away, levelled, any heading.

@@ -5,6 +5,7 @@ import { fitSession, type FitReport } from '../lib/engine/fit';
 import { serializeGeometry } from '../lib/engine/geometry';
 import { iso9283, repeatGroups, type Iso9283Result } from '../lib/engine/iso9283';
 import { forwardPoint } from '../lib/engine/kinematics';
+import { DEFAULT_JUDGEMENT, fitVerdicts, type Verdicts } from '../lib/engine/plausibility';
 import { EngineInputError } from '../lib/engine/types';
 import {
   CliError,
@@ -28,7 +29,12 @@ import { FIT_USAGE } from './usage';
 export interface FitCliReport extends FitReport {
   /** ISO 9283 AP/RP of the calibrated geometry, when the session repeats poses. */
   iso9283?: Iso9283Result;
+  /** The plausibility verdicts (src/lib/engine/plausibility.ts), the same the product applies. */
+  verdicts?: Verdicts;
 }
+
+/** Exit status of an implausible fit (the files are written all the same). */
+export const EXIT_IMPLAUSIBLE = 3;
 
 export async function runFit(args: string[], io: Io): Promise<number> {
   const started = performance.now();
@@ -46,6 +52,9 @@ export async function runFit(args: string[], io: Io): Promise<number> {
       exclude: { type: 'string', multiple: true },
       'noise-mm': { type: 'string' },
       'allow-outside-limits': { type: 'boolean' },
+      'length-bound': { type: 'string' },
+      'angle-bound': { type: 'string' },
+      'tool-fixture': { type: 'boolean' },
     },
     FIT_USAGE,
   );
@@ -60,6 +69,12 @@ export async function runFit(args: string[], io: Io): Promise<number> {
   if (lossScale !== undefined && loss === 'none') throw new CliError('--loss-scale-mm needs --loss huber or --loss cauchy', 2);
   const noiseMm = numberOption(o['noise-mm'], '--noise-mm', (v) => v > 0, 'a positive length in mm (1 σ per coordinate)');
   const exclude = parseExclude(o.exclude as string[] | undefined);
+  const judgement = {
+    lengthBoundMm: numberOption(o['length-bound'], '--length-bound', (v) => v > 0, 'a positive length in mm') ?? DEFAULT_JUDGEMENT.lengthBoundMm,
+    angleBoundDeg: numberOption(o['angle-bound'], '--angle-bound', (v) => v > 0, 'a positive angle in degrees') ?? DEFAULT_JUDGEMENT.angleBoundDeg,
+    instrumentNoiseMm: noiseMm ?? DEFAULT_JUDGEMENT.instrumentNoiseMm,
+    toolFixture: o['tool-fixture'] === true,
+  };
   const outFull = checkOutputPath(outPath, '--out');
   const reportFull = typeof o.report === 'string' ? checkOutputPath(o.report, '--report') : undefined;
   if (reportFull && reportFull === outFull) throw new CliError('--out and --report name the same file', 2);
@@ -83,6 +98,7 @@ export async function runFit(args: string[], io: Io): Promise<number> {
     }
     throw e;
   }
+  report.verdicts = fitVerdicts(report, session.poses, judgement);
   if (session.repeatGroups > 0) {
     report.iso9283 = iso9283(repeatGroups(session.poses, (q) => forwardPoint(report.calibrated, q)));
   }
@@ -93,7 +109,7 @@ export async function runFit(args: string[], io: Io): Promise<number> {
 
   for (const line of fitSummary(report, { modelPath, dataPath, hasSplit: session.hasSplit, holdout })) io.out(line);
   io.out(`Wrote ${outPath}${o.report ? ` and ${o.report}` : ''} (total ${ms(performance.now() - started)}).`);
-  return EXIT_OK;
+  return report.verdicts.level === 'implausible' ? EXIT_IMPLAUSIBLE : EXIT_OK;
 }
 
 /** --exclude P12,P30 (repeatable): pose labels or line:N, comma-separated. */
@@ -152,6 +168,11 @@ export function fitSummary(r: FitCliReport, ctx: { modelPath: string; dataPath: 
   if (Array.isArray(verdicts)) lines.push(...noteLines('Verdicts', verdicts));
   if (r.iso9283 && r.iso9283.poses.length) {
     lines.push(`ISO 9283, ${r.iso9283.poses.length} repeated poses (calibrated model as commanded position): AP ${mm(r.iso9283.ap)} (${r.iso9283.apPose}), RP ${mm(r.iso9283.rp)} (${r.iso9283.rpPose}).`);
+  }
+  if (r.verdicts) {
+    const mark = { pass: '✓', caution: '▲', implausible: '✕' } as const;
+    lines.push(`Plausibility: ${r.verdicts.level.toUpperCase()}`);
+    for (const v of r.verdicts.verdicts) lines.push(`  ${mark[v.level]} ${v.title}: ${v.reason}`);
   }
   lines.push(`Time: fit ${ms(r.timing.totalMs)} in-process.`);
   return lines;

@@ -2,6 +2,7 @@
 export const FIT_USAGE = `usage: offsetry fit --model NOMINAL.json --data SESSION.csv --out CALIBRATED.json
                    [--report REPORT.json] [--holdout 0.2] [--seed 1] [--loss huber|cauchy]
                    [--loss-scale-mm 0.05] [--exclude P12,P30] [--noise-mm 0.05] [--allow-outside-limits]
+                   [--length-bound 5] [--angle-bound 1] [--tool-fixture]
 
   --model      nominal arm geometry (offsetry-arm/1 JSON)
   --data       measurement session (CSV: pose,q1..qn,x,y,z[,split])
@@ -15,9 +16,15 @@ export const FIT_USAGE = `usage: offsetry fit --model NOMINAL.json --data SESSIO
   --loss-scale-mm  3-D error at which the robust loss starts to down-weight (default 0.05)
   --exclude    poses to leave out: labels (all visits) or line:N, comma-separated; repeatable
   --noise-mm   instrument noise, mm per coordinate (1 σ; default 0.05): a residual spread
-               above twice this is reported with its likely causes
+               above twice this is reported with its likely causes; the plausibility verdicts
+               compare it with the same figure
   --allow-outside-limits   accept joint readings outside the model's limits
-  Warnings (poor excitation, residuals above the noise) are printed after the summary.`;
+  --length-bound, --angle-bound   plausible change from nominal (mm, deg; default 5, 1)
+  --tool-fixture   the tool is a fixed fixture: judge its point too
+
+  Warnings (poor excitation, residuals above the noise) and the plausibility verdicts (the rules
+  the product applies to every fit) are printed after the summary; the command exits with status 3
+  when the fit is implausible (the files are still written).`;
 
 export const CHECK_USAGE = `usage: offsetry check --model GEOMETRY.json --data SESSION.csv [--allow-outside-limits]
 

@@ -1,5 +1,5 @@
 /**
- * Browser (Debian's chromium): quality staff see the fleet view with a unit flagged out of limits and open
+ * Browser (Debian's chromium): quality staff see the fleet view with a unit flagged out of line and open
  * its drift chart; a service manager exports a batch and gets a zip download.
  */
 import { readFile } from 'node:fs/promises';
@@ -56,7 +56,7 @@ describe('fleet and export in the browser', () => {
     const outsideList = page.locator('[data-outside-list]');
     await outsideList.waitFor();
     const row = outsideList.locator('tr', { hasText: outlier });
-    await expect(row.textContent()).resolves.toMatch(/J1\.a[\s\S]*▲ out of limits/);
+    await expect(row.textContent()).resolves.toMatch(/J1\.a[\s\S]*▲ out of line/);
     // Only the outlier is listed.
     await expect(outsideList.locator('tbody tr').count()).resolves.toBe(1);
     // The distribution chart of the flagged parameter is drawn (a recharts SVG).

@@ -90,7 +90,10 @@ describe('drift alerts', () => {
     const mail = await waitForMail((m) => m.recipients.includes(DEMO.quality) && m.subject.includes(unit.serial), 20_000);
     expect(mail.subject).toMatch(/v2 → v3/);
     expect(mail.text).toContain(`${BASE_URL}/units/${unit.serial}/drift`);
-    expect(mail.text).toMatch(/J1\.a: changed by 0\.300 mm \(tolerance 0\.2 mm\)/);
+    // The mail says which limits the change crossed: 0.3 mm against √(0.005² + 0.006²) = 0.0078102 mm is 38.4 combined SE.
+    expect(mail.text).toMatch(/J1\.a: changed by 0\.300 mm \(tolerance 0\.2 mm\) — beyond the tolerance and beyond 3 combined SE \(38\.4 combined SE\): a real change/);
+    expect(details.find((d) => d.key === 'J1.a')).toMatchObject({ crossed: ['tolerance', 'standard-error'] });
+    expect(details.find((d) => d.key === 'J1.a')!.multiple).toBeCloseTo(0.3 / Math.sqrt(0.005 ** 2 + 0.006 ** 2), 6);
   });
 
   it('shows the history with standard errors and the exceeded changes', async () => {

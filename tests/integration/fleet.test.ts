@@ -3,7 +3,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createDb } from '../../src/lib/server/db';
-import { fleetStatistics, outsideOthers, positionError, spread } from '../../src/lib/server/fleet';
+import { fleetStatistics, positionError } from '../../src/lib/server/fleet';
 import { approveSet, makeModel, makeUnit, moved, testArm } from '../support/approved-sets';
 import { DEMO, signedIn, uniq } from '../support/http';
 
@@ -19,15 +19,18 @@ afterAll(() => db.$client.end());
  *   C      +0.08       +0.02            2200
  *   D      +0.50        0.00            2300
  *
- * J1.a over all four, by hand: mean = 0.80 / 4 = 0.20; residuals −0.10, −0.08, −0.12, +0.30; squares
- *   0.0100 + 0.0064 + 0.0144 + 0.0900 = 0.1208; sample variance 0.1208 / 3 = 0.0402667; σ = 0.2006656;
- *   limits 0.20 ± 3σ = 0.20 ± 0.6019967 = −0.4019967 … 0.8019967. D's σ-score 0.30 / 0.2006656 = 1.495025 (Samuelson's bound for
- *   n = 4 is (n − 1)/√n = 1.5: no unit of four can leave its own fleet's ±3σ).
- * D against the OTHER three (A, B, C): mean 0.10, residuals 0, +0.02, −0.02, σ = √(0.0008 / 2) = 0.02,
- *   limits 0.04 … 0.16 ⇒ D (0.50) is outside. A against B, C, D: mean 0.23333, σ = 0.23180, inside; so are B, C.
- * J2.theta: mean 0.005; residuals 0.005, −0.015, 0.015, −0.005; squares sum 0.0005; σ = √(0.0005 / 3) = 0.0129099.
- *   Leave-one-out: C (0.02) vs A, B, D: mean 0, σ 0.01, limits ±0.03 ⇒ inside; nobody is outside.
- * base.x: mean 2150, σ = √(50000 / 3) = 129.0994; D vs A, B, C: mean 2100, σ 100, limits 1800 … 2400 ⇒ inside.
+ * J1.a over all four: mean 0.20, sample σ √(0.1208 / 3) = 0.2006656 (shown, not the rule).
+ * The rule (src/lib/engine/fleet-judgement.ts), α = 4 %, K = 2 judged parameters (J1.a, J2.theta; base.x
+ * never; every other parameter has no spread), so the level is 0.02 per parameter:
+ * D on J1.a: reference A, B, C (median 0.10, MAD 0.02, nobody set aside): x̄ = 0.10, s² = 0.0004, m = 3.
+ *   No spread prior (J1.a is the only length with spread): plain Student t, ν = 2.
+ *   scale = √(0.0004 · (1 + 1/3)) = 0.0230940; t = 0.40 / 0.0230940 = 17.3205.
+ *   For ν = 2 the two-sided tail is closed-form, p = 1 − |t| / √(2 + t²) = 1 − 17.3205 / √302 = 0.0033168 < 0.02 ⇒ out of line.
+ *   Critical t for p = 0.02: t / √(2 + t²) = 0.98 ⇒ t² = 2 · 0.9604 / 0.0396 = 48.50505, t = 6.964557;
+ *   limits 0.10 ± 6.964557 · 0.0230940 = 0.10 ± 0.1608393 ⇒ −0.0608393 … 0.2608393.
+ * A on J1.a: of B, C, D (median 0.12, MAD 0.04, robust σ 0.059304), D lies 0.38 > 5 · 0.059304 from the
+ *   median and is set aside; two units are left, fewer than three: A is not judged on J1.a (nor B, C).
+ * C on J2.theta: reference A, B, D: x̄ = 0, s = 0.01, scale 0.0115470, t = 1.73205, p = 1 − 1.73205 / √5 = 0.225403: in line.
  */
 const FLEET: Record<string, Record<string, number>> = {
   A: { 'J1.a': 0.1, 'J2.theta': 0.01, 'base.x': 2000 },
@@ -56,47 +59,39 @@ describe('fleet statistics', () => {
     await makeUnit(db, m.revisionId, `${tag}-E`);
   });
 
-  it('mean, sample σ and ±3σ limits match the hand-checked values', async () => {
+  it('reports the spread, judges only the arm, and flags D on J1.a by the hand-checked limits', async () => {
     const stats = (await fleetStatistics(modelId, db))!;
     expect(stats.unitCount).toBe(4);
     const p = (key: string) => stats.parameters.find((x) => x.key === key)!;
-    expect(p('J1.a').n).toBe(4);
+    expect(p('J1.a')).toMatchObject({ n: 4, judged: true });
     expect(p('J1.a').mean).toBeCloseTo(0.2, 10);
     expect(p('J1.a').sd).toBeCloseTo(0.2006656, 7);
-    expect(p('J1.a').lower).toBeCloseTo(-0.4019967, 7);
-    expect(p('J1.a').upper).toBeCloseTo(0.8019967, 7);
-    expect(p('J2.theta').mean).toBeCloseTo(0.005, 10);
     expect(p('J2.theta').sd).toBeCloseTo(0.0129099, 7);
-    expect(p('base.x').sd).toBeCloseTo(129.0994, 4);
-    // Parameters nobody moved: σ 0, nobody outside.
-    expect(p('J1.d')).toMatchObject({ mean: 0, sd: 0, outside: [] });
+    expect(p('base.x')).toMatchObject({ judged: false });
+    expect(p('base.x').reason).toMatch(/tracker/);
+    expect(p('J1.d')).toMatchObject({ judged: false, outside: [] });
+    expect(stats.statistics.judgedParameters).toBe(2);
     // Group order: lengths, twists, offsets, beta, base, tool.
     const groups = stats.parameters.map((x) => x.group).filter((g, i, all) => all.indexOf(g) === i);
     expect(groups).toEqual(['lengths', 'twists', 'offsets', 'beta', 'base', 'tool']);
-  });
 
-  it('lists the out-of-limit unit (D on J1.a) and nobody else', async () => {
-    const stats = (await fleetStatistics(modelId, db))!;
     expect(stats.outside.map((o) => [o.serial, o.key])).toEqual([[serial.D, 'J1.a']]);
+    expect(stats.flaggedUnits).toEqual([serial.D]);
     const o = stats.outside[0]!;
     expect(o.deviation).toBeCloseTo(0.5, 10);
-    expect(o.lower).toBeCloseTo(0.04, 10);
-    expect(o.upper).toBeCloseTo(0.16, 10);
+    expect(o.p).toBeCloseTo(0.0033168, 6);
+    expect(o.lower).toBeCloseTo(-0.0608393, 6);
+    expect(o.upper).toBeCloseTo(0.2608393, 6);
     const d = stats.units.find((u) => u.serial === serial.D)!;
     expect(d.outside).toEqual(['J1.a']);
     expect(d.version).toBe(2);
-    expect(d.sigmas['J1.a']).toBeCloseTo(1.495025, 6);
-    expect(d.deviations['J1.a']).toBeCloseTo(0.5, 10);
-  });
-
-  it('leave-one-out limits and spread helpers agree with the hand values', () => {
-    expect(spread([0.1, 0.12, 0.08])).toMatchObject({ n: 3 });
-    expect(spread([0.1, 0.12, 0.08]).sd).toBeCloseTo(0.02, 12);
-    expect(outsideOthers([0.1, 0.12, 0.08, 0.5], 3)).toMatchObject({ outside: true });
-    expect(outsideOthers([0.1, 0.12, 0.08, 0.5], 0)).toMatchObject({ outside: false });
-    // Fewer than two others: no σ, no verdict.
-    expect(outsideOthers([0.1, 0.5], 1)).toBeNull();
-    expect(spread([1]).sd).toBeNull();
+    // The score is beyond the chart's line exactly when the value is beyond the limits: one rule.
+    expect(Math.abs(d.scores['J1.a']!)).toBeGreaterThan(d.criticalScore);
+    const a = stats.units.find((u) => u.serial === serial.A)!;
+    expect(a.scores['J1.a']).toBeUndefined();
+    const c = stats.units.find((u) => u.serial === serial.C)!;
+    expect(c.limits['J2.theta']!.p).toBeCloseTo(0.225403, 5);
+    expect(Math.abs(c.scores['J2.theta']!)).toBeLessThan(c.criticalScore);
   });
 
   it('predicts the nominal-vs-calibrated position error exactly for hand-solvable changes', () => {
@@ -122,7 +117,7 @@ describe('fleet statistics', () => {
     const res = await quality.json(`/api/arm-models/${modelId}/fleet`);
     expect(res.status).toBe(200);
     expect(res.body.unitCount).toBe(4);
-    expect(res.body.statistics.standardDeviation).toMatch(/n − 1/);
+    expect(res.body.statistics.rule).toMatch(/Bonferroni/);
     expect(res.body.outside).toHaveLength(1);
     expect(res.body.outside[0].serial).toBe(serial.D);
     // D's nominal-vs-calibrated error: J1.a 0.5 mm exactly (J2.theta 0, base ignored).

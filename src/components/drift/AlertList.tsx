@@ -8,7 +8,7 @@ export interface AlertView {
   modelName: string;
   version: number;
   createdAt: string;
-  details: { key: string; change: number; tolerance: number | null; unit: string }[];
+  details: { key: string; change: number; tolerance: number | null; unit: string; multiple?: number | null; crossed?: string[] }[];
   acknowledgedAt: string | null;
   acknowledgeComment: string | null;
   acknowledgedByName: string | null;
@@ -39,7 +39,7 @@ function AlertItem({ alert, showSerial, onDone }: { alert: AlertView; showSerial
       </p>
       <ul className="text-sm">
         {alert.details.map((d) => (
-          <li key={d.key}>{d.key}: changed by <span className="num">{fmt(d.change, d.unit, true)} {d.unit}</span> ({d.tolerance === null ? 'not checked' : `tolerance ±${d.tolerance} ${d.unit}`})</li>
+          <li key={d.key}>{d.key}: changed by <span className="num">{fmt(d.change, d.unit, true)} {d.unit}</span> ({d.tolerance === null ? 'not checked' : `tolerance ±${d.tolerance} ${d.unit}`}{d.multiple === null || d.multiple === undefined ? '' : `; ${Math.abs(d.multiple).toFixed(1)}× its combined standard error`}) — {d.crossed ? (d.crossed.includes('standard-error') ? 'crossed the tolerance and 3 combined SE: a real change' : 'crossed the tolerance only, within 3 combined SE: possibly measurement uncertainty') : 'crossed the tolerance'}</li>
         ))}
       </ul>
       {open ? (

@@ -12,6 +12,9 @@ export interface DriftPointView {
   standardError: number | null;
   change: number | null;
   exceeded: boolean;
+  combinedSe?: number | null;
+  multiple?: number | null;
+  beyondSe?: boolean;
 }
 
 export interface DriftParameterView {
@@ -84,7 +87,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
       {p && (
         <section className="card flex flex-col gap-3" aria-label={`History of ${p.key}`}>
           <h2>{p.key}{p.joint ? ` (${p.joint})` : ''} over time</h2>
-          <p className="text-sm text-ink-soft">Nominal {fmt(p.nominal, p.unit)} {p.unit} · {p.tolerance === null ? 'not checked for drift (base frame: where the tracker stood)' : `tolerance for a change between versions ±${p.tolerance} ${p.unit}`}</p>
+          <p className="text-sm text-ink-soft">Nominal {fmt(p.nominal, p.unit)} {p.unit} · {p.tolerance === null ? 'not checked for drift (base frame: where the tracker stood)' : `tolerance for a change between versions ±${p.tolerance} ${p.unit}`}. Angle changes are wrapped at ±180°. Each change is also shown as a multiple of its combined standard error √(SE₁² + SE₂²); ▲ beyond 3× means more than the two fits' uncertainty explains. An alert fires on the tolerance and says whether the change is also beyond 3 combined SE.</p>
           <History p={p} />
           <div className="flex gap-2">
             <button
@@ -98,7 +101,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
             </button>
           </div>
           <table className="data-table">
-            <thead><tr><th>Version</th><th>Date</th><th className="num">Value ({p.unit})</th><th className="num">Standard error ({p.unit})</th><th className="num">Change ({p.unit})</th><th>Change vs tolerance</th></tr></thead>
+            <thead><tr><th>Version</th><th>Date</th><th className="num">Value ({p.unit})</th><th className="num">Standard error ({p.unit})</th><th className="num">Change ({p.unit})</th><th>Change vs tolerance</th><th className="num">Change / combined SE</th></tr></thead>
             <tbody>
               {p.points.map((x) => (
                 <tr key={`${x.kind}-${x.id}`} className={x.exceeded ? 'bg-attention-soft' : undefined}>
@@ -108,6 +111,7 @@ export default function DriftView({ serial, parameters, includeFits }: { serial:
                   <td className="num">{fmt(x.standardError, p.unit)}</td>
                   <td className="num">{fmt(x.change, p.unit, true)}</td>
                   <td>{x.exceeded ? <span className="badge text-attention">▲ beyond tolerance</span> : x.change === null ? '—' : p.tolerance === null ? <span className="text-ink-soft">◌ not checked</span> : <span className="text-ink-soft">● within</span>}</td>
+                  <td className="num">{x.multiple === null || x.multiple === undefined ? '—' : `${x.multiple >= 0 ? '+' : ''}${x.multiple.toFixed(1)}×`}{x.beyondSe ? ' ▲' : ''}</td>
                 </tr>
               ))}
             </tbody>

@@ -2,12 +2,14 @@ import { useEffect, useId, useMemo, useRef, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Cell, Legend, ResponsiveContainer, Scatter, ScatterChart, Symbols, Tooltip, XAxis, YAxis } from 'recharts';
 import type { FitReport as EngineReport, ParameterReport, PoseResidual } from '../../lib/engine/fit';
 import type { ErrorStats } from '../../lib/engine/types';
+import type { Verdicts } from '../../lib/engine/plausibility';
 import { api, type ApiError } from '../../lib/shared/api-client';
 import { focusResult, openResult, useFocusWhen } from '../../lib/shared/focus';
 import FitWarnings from './FitWarnings';
 import { crossMarker, PoseTip, roleOf } from './chart-bits';
 import FitSettingsList from './FitSettingsList';
 import { fitLabel } from '../../lib/shared/fit-label';
+import { OverrideField, VerdictList } from './Verdicts';
 import { byUnit, downloadCsv, FIT_STATE_LABEL, GROUP_LABEL, GROUP_ORDER, mm, REVIEW_STATE_LABEL, sci, when } from './format';
 
 /** The fit as GET /api/fits/{id} returns it (dates as ISO strings). */
@@ -38,6 +40,11 @@ export interface FitView {
   inputChecksums: { sessionFile: string; nominalGeometry: string } | null;
   report: EngineReport | null;
   parameterSet: { id: string; version: number; state: string } | null;
+  verdicts?: Verdicts | null;
+  submitNote?: string | null;
+  overrideNote?: string | null;
+  overrideByName?: string | null;
+  exclusionNote?: string | null;
 }
 
 interface Props {
@@ -46,6 +53,8 @@ interface Props {
   canRefit: boolean;
   /** Shown after the residual charts: the page passes the 3-D view island here (Astro slot). */
   children?: React.ReactNode;
+  /** May write the override an implausible fit needs (engineers, admins). */
+  canOverride?: boolean;
 }
 
 const ACCENT = '#0f6e6e';
@@ -370,10 +379,12 @@ function Observability({ report }: { report: EngineReport }) {
   );
 }
 
-export default function FitReport({ initial, canSubmit, canRefit, children }: Props) {
+export default function FitReport({ initial, canSubmit, canRefit, canOverride = false, children }: Props) {
   const [fit, setFit] = useState<FitView>(initial);
   const [picked, setPicked] = useState<string[]>([]);
   const [comment, setComment] = useState('');
+  const [override, setOverride] = useState('');
+  const [why, setWhy] = useState('');
   const [busy, setBusy] = useState(false);
   const [error, setError] = useState<ApiError | null>(null);
   const [message, setMessage] = useState<string | null>(null);
@@ -420,10 +431,13 @@ export default function FitReport({ initial, canSubmit, canRefit, children }: Pr
     return [...new Set([...report.outliers, ...ranked])];
   }, [report]);
 
+  const implausible = fit.verdicts?.level === 'implausible';
+
   async function refit() {
     setBusy(true);
     setError(null);
-    const res = await api<{ id: string }>(`/api/fits/${fit.id}/refit`, { method: 'POST', json: { exclude: picked } });
+    // Only the exclusions (and why): the server keeps every other setting of this fit.
+    const res = await api<{ id: string }>(`/api/fits/${fit.id}/refit`, { method: 'POST', json: { exclude: picked, ...(why.trim() ? { note: why.trim() } : {}) } });
     if (res.error) {
       setError(res.error);
       setBusy(false);
@@ -435,7 +449,7 @@ export default function FitReport({ initial, canSubmit, canRefit, children }: Pr
   async function submit() {
     setBusy(true);
     setError(null);
-    const res = await api(`/api/fits/${fit.id}/submit`, { method: 'POST', json: comment.trim() ? { comment: comment.trim() } : {} });
+    const res = await api(`/api/fits/${fit.id}/submit`, { method: 'POST', json: { ...(comment.trim() ? { comment: comment.trim() } : {}), ...(implausible ? { override: override.trim() } : {}) } });
     setBusy(false);
     if (res.error) return setError(res.error);
     setMessage('Submitted for review. The engineers have been notified by e-mail.');
@@ -445,6 +459,7 @@ export default function FitReport({ initial, canSubmit, canRefit, children }: Pr
 
   return (
     <div data-fit-report data-fit-state={fit.state} data-review-state={fit.reviewState ?? ''}>
+      {fit.verdicts && <VerdictList verdicts={fit.verdicts} />}
       <section className="card mb-6">
         <div className="flex flex-wrap items-center gap-3">
           <span className="badge" data-state-badge>{FIT_STATE_LABEL[fit.state]}</span>
@@ -531,9 +546,16 @@ export default function FitReport({ initial, canSubmit, canRefit, children }: Pr
                 </tbody>
               </table>
               {canRefit && (
-                <button type="button" className="btn mt-3" disabled={busy || picked.length === 0} onClick={refit}>
-                  Fit again without these ({picked.length})
-                </button>
+                <>
+                  <label className="field mt-3">
+                    <span>Why exclude them (shown to the reviewer)</span>
+                    <input className="input" name="exclusion-note" value={why} onChange={(e) => setWhy(e.target.value)} maxLength={4000} />
+                  </label>
+                  <button type="button" className="btn mt-3" disabled={busy || picked.length === 0} onClick={refit}>
+                    Fit again without these ({picked.length})
+                  </button>
+                  <p className="mt-1 text-sm text-ink-soft">The new fit keeps every other setting of this one (parameter groups, hold-out, cross-validation, robust loss, seed).</p>
+                </>
               )}
             </section>
           </div>
@@ -545,10 +567,11 @@ export default function FitReport({ initial, canSubmit, canRefit, children }: Pr
           <h2 className="mb-2">Submit for review</h2>
           <label className="field mb-3">
             <span>Note for the reviewer (optional)</span>
-            <textarea className="input" value={comment} onChange={(e) => setComment(e.target.value)} maxLength={4000} />
+            <textarea className="input" name="submit-note" value={comment} onChange={(e) => setComment(e.target.value)} maxLength={4000} />
           </label>
-          <button type="button" className="btn" disabled={busy} onClick={submit}>
-            Submit for review
+          {implausible && <OverrideField value={override} onChange={setOverride} allowed={canOverride} />}
+          <button type="button" className="btn" disabled={busy || (implausible && (!canOverride || override.trim().length < 20))} onClick={submit}>
+            {implausible ? 'Submit with override' : 'Submit for review'}
           </button>
         </section>
       )}

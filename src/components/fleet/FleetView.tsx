@@ -18,8 +18,10 @@ export interface FleetParameterView {
   n: number;
   mean: number | null;
   sd: number | null;
-  lower: number | null;
-  upper: number | null;
+  median: number | null;
+  robustSd: number | null;
+  judged: boolean;
+  reason?: string;
   outside: string[];
 }
 
@@ -28,7 +30,11 @@ export interface FleetUnitView {
   version: number;
   needsAttention: boolean;
   deviations: Record<string, number>;
-  sigmas: Record<string, number | null>;
+  /** Normal-equivalent score against the other units; lines at ± criticalScore. */
+  scores: Record<string, number>;
+  limits: Record<string, { centre: number; lower: number; upper: number; p: number }>;
+  criticalScore: number;
+  flagged: boolean;
   outside: string[];
   positionError: { maxMm: number; rmsMm: number };
 }
@@ -37,7 +43,8 @@ export interface FleetViewProps {
   modelName: string;
   parameters: FleetParameterView[];
   units: FleetUnitView[];
-  outside: { serial: string; key: string; unit: 'mm' | 'deg'; deviation: number; lower: number; upper: number; sigma: number | null }[];
+  outside: { serial: string; key: string; unit: 'mm' | 'deg'; deviation: number; lower: number; upper: number; score: number; p: number }[];
+  statistics: { rule: string; alpha: number; criticalScore: number | null; judgedParameters: number };
   positionError: { samples: number; fleet: { maxMm: number; meanMaxMm: number; rmsMm: number } | null };
 }
 
@@ -50,50 +57,54 @@ function UnitMark(props: { cx?: number; cy?: number; payload?: { outside: boolea
   return <circle cx={cx} cy={cy} r={5} fill="var(--color-accent)" />;
 }
 
-function Distribution({ p, units }: { p: FleetParameterView; units: FleetUnitView[] }) {
+function Distribution({ p, units, critical }: { p: FleetParameterView; units: FleetUnitView[]; critical: number | null }) {
   const data = units
     .filter((u) => u.deviations[p.key] !== undefined)
-    .map((u) => ({ serial: u.serial, deviation: u.deviations[p.key]!, outside: u.outside.includes(p.key) }));
+    .map((u) => ({ serial: u.serial, deviation: u.deviations[p.key]!, score: u.scores[p.key] ?? null, limits: u.limits[p.key], outside: u.outside.includes(p.key) }));
   const [table, setTable] = useState(false);
+  const plotted = p.judged ? data.filter((d) => d.score !== null).map((d) => ({ ...d, y: d.score! })) : data.map((d) => ({ ...d, y: d.deviation }));
   return (
     <section className="card flex flex-col gap-3" aria-label={`Distribution of ${p.key}`} data-distribution={p.key}>
       <div className="flex flex-wrap items-baseline gap-x-6 gap-y-1">
-        <h3>{p.key}{p.joint ? ` (${p.joint})` : ''} — deviation from nominal, {p.unit}</h3>
+        <h3>{p.key}{p.joint ? ` (${p.joint})` : ''} — {p.judged ? 'score against the other units' : `deviation from nominal, ${p.unit}`}</h3>
         <dl className="flex flex-wrap gap-x-5 text-sm">
           <div><dt className="inline text-ink-soft">units </dt><dd className="inline num">{p.n}</dd></div>
-          <div><dt className="inline text-ink-soft">mean </dt><dd className="inline num">{fmt(p.mean, p.unit, true)} {p.unit}</dd></div>
-          <div><dt className="inline text-ink-soft">σ (sample, n − 1) </dt><dd className="inline num">{fmt(p.sd, p.unit)} {p.unit}</dd></div>
-          <div><dt className="inline text-ink-soft">limits ±3σ </dt><dd className="inline num">{fmt(p.lower, p.unit, true)} … {fmt(p.upper, p.unit, true)} {p.unit}</dd></div>
+          <div><dt className="inline text-ink-soft">median </dt><dd className="inline num">{fmt(p.median, p.unit, true)} {p.unit}</dd></div>
+          <div><dt className="inline text-ink-soft">robust σ (1.4826·MAD) </dt><dd className="inline num">{fmt(p.robustSd, p.unit)} {p.unit}</dd></div>
+          {p.judged && critical !== null && <div><dt className="inline text-ink-soft">lines </dt><dd className="inline num">±{critical.toFixed(2)}</dd></div>}
         </dl>
       </div>
+      {!p.judged && <p className="notice">● Not judged: {p.reason}.</p>}
       <div style={{ width: '100%', height: 280 }}>
         <ResponsiveContainer>
-          <ComposedChart data={data} margin={{ top: 10, right: 50, bottom: 30, left: 20 }}>
+          <ComposedChart data={plotted} margin={{ top: 10, right: 50, bottom: 30, left: 20 }}>
             <CartesianGrid stroke="var(--color-rule)" />
             <XAxis dataKey="serial" type="category" label={{ value: 'Unit (serial number)', position: 'insideBottom', offset: -20 }} />
-            <YAxis label={{ value: `Deviation from nominal (${p.unit})`, angle: -90, position: 'insideLeft', style: { textAnchor: 'middle' } }} width={90} tickFormatter={(v: number) => fmt(v, p.unit)} />
-            <Tooltip formatter={(v) => [`${fmt(Number(v), p.unit, true)} ${p.unit}`, 'deviation']} />
+            <YAxis label={{ value: p.judged ? 'Score (normal-equivalent)' : `Deviation (${p.unit})`, angle: -90, position: 'insideLeft', style: { textAnchor: 'middle' } }} width={90} tickFormatter={(v: number) => (p.judged ? v.toFixed(1) : fmt(v, p.unit))} />
+            <Tooltip formatter={(v) => [p.judged ? Number(v).toFixed(2) : `${fmt(Number(v), p.unit, true)} ${p.unit}`, p.judged ? 'score' : 'deviation']} />
             <Legend verticalAlign="top" />
-            {p.mean !== null && <ReferenceLine y={p.mean} stroke="var(--color-nominal)" strokeDasharray="4 3" ifOverflow="extendDomain" label={{ value: 'mean', position: 'right' }} />}
-            {p.upper !== null && <ReferenceLine y={p.upper} stroke="var(--color-error)" ifOverflow="extendDomain" label={{ value: '+3σ', position: 'right' }} />}
-            {p.lower !== null && <ReferenceLine y={p.lower} stroke="var(--color-error)" ifOverflow="extendDomain" label={{ value: '−3σ', position: 'right' }} />}
-            <Scatter name="Unit's current set (▲ = out of limits; red lines = fleet ±3σ)" dataKey="deviation" fill="var(--color-accent)" shape={UnitMark} isAnimationActive={false} />
+            {p.judged && critical !== null && <ReferenceLine y={critical} stroke="var(--color-error)" ifOverflow="extendDomain" label={{ value: `+${critical.toFixed(2)}`, position: 'right' }} />}
+            {p.judged && critical !== null && <ReferenceLine y={-critical} stroke="var(--color-error)" ifOverflow="extendDomain" label={{ value: `−${critical.toFixed(2)}`, position: 'right' }} />}
+            {p.judged && <ReferenceLine y={0} stroke="var(--color-nominal)" strokeDasharray="4 3" />}
+            <Scatter name={p.judged ? 'Unit (▲ = out of line: beyond the red lines, the rule above)' : 'Unit (not judged)'} dataKey="y" fill="var(--color-accent)" shape={UnitMark} isAnimationActive={false} />
           </ComposedChart>
         </ResponsiveContainer>
       </div>
       <div className="flex gap-2">
         <button type="button" className="btn btn-quiet" onClick={() => setTable(!table)} aria-expanded={table}>{table ? 'Hide numbers' : 'Show numbers'}</button>
-        <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(`fleet-${p.key}.csv`, ['serial', `deviation_${p.unit}`, 'outside'], data.map((d) => [d.serial, d.deviation, d.outside ? 'yes' : 'no']))}>Download CSV</button>
+        <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(`fleet-${p.key}.csv`, ['serial', `deviation_${p.unit}`, 'score', `lower_${p.unit}`, `upper_${p.unit}`, 'p', 'out_of_line'], data.map((d) => [d.serial, d.deviation, d.score ?? '', d.limits?.lower ?? '', d.limits?.upper ?? '', d.limits?.p ?? '', d.outside ? 'yes' : 'no']))}>Download CSV</button>
       </div>
       {table && (
-        <table className="data-table">
-          <thead><tr><th>Unit</th><th className="num">Deviation ({p.unit})</th><th>Limits</th></tr></thead>
-          <tbody>
-            {data.map((d) => (
-              <tr key={d.serial}><td>{d.serial}</td><td className="num">{fmt(d.deviation, p.unit, true)}</td><td>{d.outside ? <span className="badge text-error">▲ out of limits</span> : <span className="text-ink-soft">● within</span>}</td></tr>
-            ))}
-          </tbody>
-        </table>
+        <div className="overflow-x-auto">
+          <table className="data-table">
+            <thead><tr><th>Unit</th><th className="num">Deviation ({p.unit})</th><th className="num">Limits from the others ({p.unit})</th><th className="num">Score</th><th>Judgement</th></tr></thead>
+            <tbody>
+              {data.map((d) => (
+                <tr key={d.serial}><td>{d.serial}</td><td className="num">{fmt(d.deviation, p.unit, true)}</td><td className="num">{d.limits ? `${fmt(d.limits.lower, p.unit, true)} … ${fmt(d.limits.upper, p.unit, true)}` : '—'}</td><td className="num">{fmtSigma(d.score)}</td><td>{!p.judged ? <span className="text-ink-soft">not judged</span> : d.outside ? <span className="badge text-error">▲ out of line</span> : <span className="text-ink-soft">● in line</span>}</td></tr>
+              ))}
+            </tbody>
+          </table>
+        </div>
       )}
     </section>
   );
@@ -104,6 +115,7 @@ const column = createColumnHelper<Row>();
 
 function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units: FleetUnitView[] }) {
   const [sorting, setSorting] = useState<SortingState>([]);
+  const judged = parameters.filter((p) => p.judged);
   const columns = useMemo(
     () => [
       column.accessor('serial', {
@@ -114,10 +126,10 @@ function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units
           </a>
         ),
       }),
-      ...parameters.map((p) =>
-        column.accessor((r) => r.sigmas[p.key] ?? null, {
+      ...judged.map((p) =>
+        column.accessor((r) => r.scores[p.key] ?? null, {
           id: p.key,
-          header: `${p.key} (σ)`,
+          header: `${p.key}`,
           sortUndefined: 'last',
           sortingFn: (a, b, id) => Math.abs((a.getValue<number | null>(id) ?? 0)) - Math.abs((b.getValue<number | null>(id) ?? 0)),
           cell: (c) => {
@@ -126,7 +138,7 @@ function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units
             const dev = c.row.original.deviations[p.key];
             return (
               <span title={`deviation ${fmt(dev, p.unit, true)} ${p.unit}`} className="flex items-center justify-end gap-1">
-                {out && <span aria-label="out of limits" className="text-error">▲</span>}
+                {out && <span aria-label="out of line" className="text-error">▲</span>}
                 {fmtSigma(z)}
               </span>
             );
@@ -139,7 +151,7 @@ function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units
   const table = useReactTable({ data: units, columns, state: { sorting }, onSortingChange: setSorting, getCoreRowModel: getCoreRowModel(), getSortedRowModel: getSortedRowModel() });
   return (
     <div className="overflow-x-auto">
-      <table className="data-table" aria-label="Units × parameters, deviation in σ">
+      <table className="data-table" aria-label="Units × judged parameters, score against the other units">
         <thead>
           {table.getHeaderGroups().map((hg) => (
             <tr key={hg.id}>
@@ -173,49 +185,51 @@ function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units
         </tbody>
       </table>
       <p className="mt-2 text-sm text-ink-soft">
-        Each cell: (unit's deviation − fleet mean) / fleet σ. Teal below the mean, amber above, stronger toward 3σ; ▲ marks a unit
-        outside the limits. Click a column title to sort by |σ|.
+        Each cell: the unit's score against the other units (the normal-equivalent of its Student-t prediction p-value; the base frame and
+        parameters without spread are not judged). Teal below the others, amber above; ▲ marks a score beyond the line of the rule. Click a column title to sort by |score|.
       </p>
     </div>
   );
 }
 
-export default function FleetView({ modelName, parameters, units, outside, positionError }: FleetViewProps) {
-  const spreadParams = parameters.filter((p) => p.sd !== null && p.sd > 0);
+export default function FleetView({ modelName, parameters, units, outside, statistics, positionError }: FleetViewProps) {
+  const judged = parameters.filter((p) => p.judged);
   const firstOutside = outside[0]?.key;
-  const [selected, setSelected] = useState(firstOutside ?? spreadParams[0]?.key ?? parameters[0]?.key ?? '');
+  const [selected, setSelected] = useState(firstOutside ?? judged[0]?.key ?? parameters[0]?.key ?? '');
   const p = parameters.find((x) => x.key === selected);
   const groups = [...new Set(parameters.map((x) => x.group))];
+  const flagged = units.filter((u) => u.flagged);
   if (!units.length) return <p className="notice">No unit of {modelName} has an approved parameter set yet.</p>;
   return (
     <div className="flex flex-col gap-6">
-      <section aria-label="Units outside the limits" className="flex flex-col gap-2">
-        <h2>Units outside the limits</h2>
-        {outside.length === 0 ? (
-          <p className="notice">● No unit lies outside the ±3σ limits of the rest of the fleet.</p>
-        ) : (
-          <table className="data-table" data-outside-list>
-            <thead><tr><th>Unit</th><th>Parameter</th><th className="num">Deviation</th><th className="num">Limits of the other units</th><th className="num">σ</th><th>State</th></tr></thead>
-            <tbody>
-              {outside.map((o) => (
-                <tr key={`${o.serial}-${o.key}`}>
-                  <td><a href={`/units/${encodeURIComponent(o.serial)}/drift`} className="font-semibold">{o.serial}</a></td>
-                  <td><button type="button" className="btn-quiet min-h-11 underline" onClick={() => setSelected(o.key)}>{o.key}</button></td>
-                  <td className="num">{fmt(o.deviation, o.unit, true)} {o.unit}</td>
-                  <td className="num">{fmt(o.lower, o.unit, true)} … {fmt(o.upper, o.unit, true)} {o.unit}</td>
-                  <td className="num">{fmtSigma(o.sigma)}</td>
-                  <td><span className="badge text-error">▲ out of limits</span></td>
-                </tr>
-              ))}
-            </tbody>
-          </table>
-        )}
+      <section aria-label="Units out of line" className="flex flex-col gap-2" data-fleet-flags={flagged.map((u) => u.serial).join(' ')}>
+        <h2>Units out of line with the fleet</h2>
+        <p className="text-sm" data-fleet-rule>{statistics.rule}</p>
         <p className="text-sm text-ink-soft">
-          A unit is out of limits when its deviation lies outside mean ± 3σ of the <em>other</em> units (sample σ, n − 1). With the unit
-          itself included, no unit of a fleet of ten or fewer could ever leave ±3σ (Samuelson's inequality), so small fleets are judged this way.
-          With few units σ itself is uncertain: across a few dozen parameters, expect the odd flag by chance, and look for units flagged on
-          several parameters or again after the next calibration.
+          {statistics.judgedParameters} parameter{statistics.judgedParameters === 1 ? '' : 's'} judged per unit; the line is ±{statistics.criticalScore?.toFixed(2) ?? '—'} on the score scale in every chart below.
+          Measured by seeded simulation of fleets of identical units (8, 20 and 200 units, 24 parameters): about 4 % of units flagged by chance; a unit with one parameter 6 fleet σ off is flagged in over 95 % of fleets of 8 or more.
         </p>
+        {outside.length === 0 ? (
+          <p className="notice">● No unit is out of line with the rest of the fleet by this rule.</p>
+        ) : (
+          <div className="overflow-x-auto">
+            <table className="data-table" data-outside-list>
+              <thead><tr><th>Unit</th><th>Parameter</th><th className="num">Deviation</th><th className="num">Limits from the other units</th><th className="num">Score</th><th>State</th></tr></thead>
+              <tbody>
+                {outside.map((o) => (
+                  <tr key={`${o.serial}-${o.key}`}>
+                    <td><a href={`/units/${encodeURIComponent(o.serial)}/drift`} className="font-semibold">{o.serial}</a></td>
+                    <td><button type="button" className="btn-quiet min-h-11 underline" onClick={() => setSelected(o.key)}>{o.key}</button></td>
+                    <td className="num">{fmt(o.deviation, o.unit, true)} {o.unit}</td>
+                    <td className="num">{fmt(o.lower, o.unit, true)} … {fmt(o.upper, o.unit, true)} {o.unit}</td>
+                    <td className="num">{fmtSigma(o.score)}</td>
+                    <td><span className="badge text-error">▲ out of line</span></td>
+                  </tr>
+                ))}
+              </tbody>
+            </table>
+          </div>
+        )}
       </section>
 
       <section className="flex flex-col gap-3" aria-label="Distribution per parameter">
@@ -226,24 +240,25 @@ export default function FleetView({ modelName, parameters, units, outside, posit
             {groups.map((g) => (
               <optgroup key={g} label={GROUP_LABEL[g] ?? g}>
                 {parameters.filter((x) => x.group === g).map((x) => (
-                  <option key={x.key} value={x.key}>{x.key}{x.joint ? ` (${x.joint})` : ''}{x.outside.length ? ' ▲' : ''}</option>
+                  <option key={x.key} value={x.key}>{x.key}{x.joint ? ` (${x.joint})` : ''}{x.outside.length ? ' ▲' : ''}{x.judged ? '' : ' (not judged)'}</option>
                 ))}
               </optgroup>
             ))}
           </select>
         </label>
-        {p && <Distribution p={p} units={units} />}
+        {p && <Distribution p={p} units={units} critical={statistics.criticalScore} />}
         <details>
-          <summary className="min-h-11 cursor-pointer font-semibold">All parameters: mean, σ and limits</summary>
+          <summary className="min-h-11 cursor-pointer font-semibold">All parameters: spread and what is judged</summary>
           <div className="overflow-x-auto">
             <table className="data-table">
-              <thead><tr><th>Group</th><th>Parameter</th><th>Unit</th><th className="num">n</th><th className="num">Mean</th><th className="num">σ (n − 1)</th><th className="num">−3σ</th><th className="num">+3σ</th><th>Outside</th></tr></thead>
+              <thead><tr><th>Group</th><th>Parameter</th><th>Unit</th><th className="num">n</th><th className="num">Mean</th><th className="num">σ (n − 1)</th><th className="num">Median</th><th className="num">Robust σ</th><th>Judged</th><th>Out of line</th></tr></thead>
               <tbody>
                 {parameters.map((x) => (
                   <tr key={x.key}>
                     <td>{GROUP_LABEL[x.group] ?? x.group}</td><td>{x.key}</td><td>{x.unit}</td><td className="num">{x.n}</td>
                     <td className="num">{fmt(x.mean, x.unit, true)}</td><td className="num">{fmt(x.sd, x.unit)}</td>
-                    <td className="num">{fmt(x.lower, x.unit, true)}</td><td className="num">{fmt(x.upper, x.unit, true)}</td>
+                    <td className="num">{fmt(x.median, x.unit, true)}</td><td className="num">{fmt(x.robustSd, x.unit)}</td>
+                    <td>{x.judged ? 'yes' : <span className="text-ink-soft">no: {x.reason}</span>}</td>
                     <td>{x.outside.length ? <span className="text-error">▲ {x.outside.join(', ')}</span> : '—'}</td>
                   </tr>
                 ))}
@@ -254,7 +269,7 @@ export default function FleetView({ modelName, parameters, units, outside, posit
       </section>
 
       <section className="flex flex-col gap-2" aria-label="Units × parameters">
-        <h2>Units × parameters (deviation in σ)</h2>
+        <h2>Units × judged parameters (score against the other units)</h2>
         <Matrix parameters={parameters} units={units} />
       </section>
 

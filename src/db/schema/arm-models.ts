@@ -18,6 +18,18 @@ export interface GroupTolerances {
   tool: number;
 }
 
+/**
+ * Per-model settings of the judgements an engineer may edit (defaults in src/lib/engine/plausibility.ts):
+ * plausible parameter change from nominal (mm, deg), the instrument's stated noise (mm, 1σ per coordinate),
+ * and whether the tool is a fixed fixture (then the fleet view judges the tool point too).
+ */
+export interface JudgementSettings {
+  lengthBoundMm: number;
+  angleBoundDeg: number;
+  instrumentNoiseMm: number;
+  toolFixture: boolean;
+}
+
 /** A model type (for example a 6-axis articulated arm); its geometry lives in revisions. */
 export const armModels = pgTable(
   'arm_models',
@@ -27,6 +39,7 @@ export const armModels = pgTable(
     manufacturer: text().notNull().default(''),
     description: text().notNull().default(''),
     tolerances: jsonb().$type<GroupTolerances>(),
+    judgement: jsonb().$type<JudgementSettings>(),
     createdBy: uuid().references(() => users.id),
     createdAt: createdAt(),
   },

@@ -36,6 +36,16 @@ export const fits = pgTable(
     decidedBy: uuid().references(() => users.id),
     decidedAt: timestamp({ withTimezone: true }),
     decisionComment: text(),
+    /** Plausibility verdicts of the fitted result (src/lib/engine/plausibility.ts). */
+    verdicts: jsonb().$type<Record<string, unknown>>(),
+    /** The submitter's note to the reviewer. */
+    submitNote: text(),
+    /** Written override of an implausible verdict, by an engineer, shown to the reviewer. */
+    overrideNote: text(),
+    overrideBy: uuid().references(() => users.id),
+    overrideAt: timestamp({ withTimezone: true }),
+    /** Why the poses this fit excludes beyond its parent's were excluded (the refit's note). */
+    exclusionNote: text(),
     createdBy: uuid().references(() => users.id),
     createdAt: createdAt(),
     startedAt: timestamp({ withTimezone: true }),

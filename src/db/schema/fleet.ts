@@ -12,8 +12,13 @@ export const driftAlerts = pgTable(
     unitId: uuid().notNull().references(() => units.id),
     parameterSetId: uuid().notNull().references(() => parameterSets.id),
     previousSetId: uuid().references(() => parameterSets.id),
-    /** Parameters beyond tolerance: key, change, tolerance, unit. */
-    details: jsonb().$type<{ key: string; change: number; tolerance: number; unit: string }[]>().notNull(),
+    /**
+     * Parameters beyond tolerance: key, change (angles wrapped at ±180°), tolerance, unit, the combined standard
+     * error of the two sets and the change as a multiple of it, and which limits it crossed.
+     */
+    details: jsonb()
+      .$type<{ key: string; change: number; tolerance: number; unit: string; combinedSe?: number | null; multiple?: number | null; crossed?: ('tolerance' | 'standard-error')[] }[]>()
+      .notNull(),
     createdAt: createdAt(),
     acknowledgedBy: uuid().references(() => users.id),
     acknowledgedAt: timestamp({ withTimezone: true }),

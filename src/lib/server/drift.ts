@@ -48,6 +48,23 @@ export function toleranceFor(p: { group: ParameterGroup; unit: 'mm' | 'deg' }, t
   return p.unit === 'mm' ? t.lengths : t.twists;
 }
 
+/** A change beyond this many combined standard errors is more than the two fits' uncertainty explains. */
+export const SE_MULTIPLE = 3;
+
+/** b − a; for angles wrapped into (−180°, 180°], so 179.9° → −179.9° is a change of 0.2°, not 359.8°. */
+export function parameterDifference(a: number, b: number, unit: 'mm' | 'deg'): number {
+  const d = b - a;
+  if (unit !== 'deg') return d;
+  const w = d - 360 * Math.floor((d + 180) / 360);
+  return w === -180 ? 180 : w;
+}
+
+/** Combined standard error √(a² + b²) of a change between two independent fits; null when neither has one. */
+export function combinedStandardError(a: number | null | undefined, b: number | null | undefined): number | null {
+  if ((a === null || a === undefined) && (b === null || b === undefined)) return null;
+  return Math.sqrt((a ?? 0) ** 2 + (b ?? 0) ** 2);
+}
+
 export interface ParameterChange {
   key: string;
   joint?: string;
@@ -59,20 +76,49 @@ export interface ParameterChange {
   /** null: this parameter is not checked for drift (base frame without a tolerance). */
   tolerance: number | null;
   exceeded: boolean;
+  /** √(SE_before² + SE_after²); null when neither set carries a standard error. */
+  combinedSe: number | null;
+  /** change / combinedSe. */
+  multiple: number | null;
+  /** |change| > SE_MULTIPLE combined standard errors. */
+  beyondSe: boolean;
 }
 
-/** Parameter-by-parameter change from `before` to `after`; keys missing on one side are skipped. */
-export function compareGeometries(before: ArmGeometry, after: ArmGeometry, t: GroupTolerances): ParameterChange[] {
+/**
+ * Parameter-by-parameter change from `before` to `after` (angles wrapped at ±180°); keys missing on one side
+ * are skipped. With the two sets' standard errors, each change is also a multiple of its combined SE.
+ */
+export function compareGeometries(
+  before: ArmGeometry,
+  after: ArmGeometry,
+  t: GroupTolerances,
+  se: { before?: Record<string, number | null>; after?: Record<string, number | null> } = {},
+): ParameterChange[] {
   const prev = new Map(parameterValues(before).map((p) => [p.key, p]));
   const out: ParameterChange[] = [];
   for (const p of parameterValues(after)) {
     const q = prev.get(p.key);
     if (!q) continue;
-    const change = p.value - q.value;
+    const change = parameterDifference(q.value, p.value, p.unit);
     const tolerance = toleranceFor(p, t);
-    out.push({ key: p.key, joint: p.joint, group: p.group, unit: p.unit, previous: q.value, value: p.value, change, tolerance, exceeded: tolerance !== null && Math.abs(change) > tolerance });
+    const combinedSe = combinedStandardError(se.before?.[p.key], se.after?.[p.key]);
+    const multiple = combinedSe && combinedSe > 0 ? change / combinedSe : null;
+    out.push({
+      key: p.key, joint: p.joint, group: p.group, unit: p.unit, previous: q.value, value: p.value, change, tolerance,
+      exceeded: tolerance !== null && Math.abs(change) > tolerance,
+      combinedSe, multiple, beyondSe: multiple !== null && Math.abs(multiple) > SE_MULTIPLE,
+    });
   }
   return out;
+}
+
+/** Which limits a change crossed, in words for alerts and mails. */
+export function crossedWords(c: { exceeded: boolean; beyondSe: boolean; multiple: number | null }): string {
+  const se = c.multiple === null ? 'no standard error to compare' : `${Math.abs(c.multiple).toFixed(1)} combined SE`;
+  if (c.exceeded && c.beyondSe) return `beyond the tolerance and beyond ${SE_MULTIPLE} combined SE (${se}): a real change`;
+  if (c.exceeded) return `beyond the tolerance but within ${SE_MULTIPLE} combined SE (${se}): possibly measurement uncertainty`;
+  if (c.beyondSe) return `within the tolerance, beyond ${SE_MULTIPLE} combined SE (${se})`;
+  return `within the tolerance and ${SE_MULTIPLE} combined SE`;
 }
 
 export async function modelTolerances(modelId: string, database: Conn = sharedDb()) {
@@ -127,9 +173,14 @@ export async function checkDriftOnApproval(tx: Conn, options: DriftCheckOptions)
   if (!previous) return null;
   const model = await unitModel(options.unitId, tx);
   if (!model) throw new Error(`unit ${options.unitId} not found`);
-  const beyond = compareGeometries(previous.geometry, current.geometry, model.tolerances).filter((c) => c.exceeded); // exceeded ⇒ the parameter has a tolerance
+  // The alert fires on the tolerance (exceeded ⇒ the parameter has one); each entry says whether the change
+  // is also beyond SE_MULTIPLE combined standard errors of the two fits.
+  const beyond = compareGeometries(previous.geometry, current.geometry, model.tolerances, { before: previous.standardErrors, after: current.standardErrors }).filter((c) => c.exceeded);
   if (!beyond.length) return null;
-  const details = beyond.map((c) => ({ key: c.key, change: c.change, tolerance: c.tolerance!, unit: c.unit }));
+  const details = beyond.map((c) => ({
+    key: c.key, change: c.change, tolerance: c.tolerance!, unit: c.unit, combinedSe: c.combinedSe, multiple: c.multiple,
+    crossed: ['tolerance', ...(c.beyondSe ? ['standard-error'] : [])] as ('tolerance' | 'standard-error')[],
+  }));
   const [alert] = await tx.insert(driftAlerts).values({ unitId: options.unitId, parameterSetId: current.id, previousSetId: previous.id, details }).returning();
   await tx.update(units).set({ needsAttention: true }).where(eq(units.id, options.unitId));
   await recordWebhookEvent(tx, 'drift_alert.raised', {
@@ -152,7 +203,7 @@ export async function checkDriftOnApproval(tx: Conn, options: DriftCheckOptions)
     .where(and(eq(users.active, true), sql`'quality' = any(${users.roles})`));
   const base = (options.baseUrl ?? config().PUBLIC_BASE_URL).replace(/\/$/, '');
   const fmt = (c: (typeof details)[number]) =>
-    `${c.key}: changed by ${c.change.toFixed(c.unit === 'mm' ? 3 : 4)} ${c.unit} (tolerance ${c.tolerance} ${c.unit})`;
+    `${c.key}: changed by ${c.change.toFixed(c.unit === 'mm' ? 3 : 4)} ${c.unit} (tolerance ${c.tolerance} ${c.unit}) — ${crossedWords({ exceeded: true, beyondSe: c.crossed.includes('standard-error'), multiple: c.multiple })}`;
   const subject = `Drift beyond tolerance on unit ${model.serial} (v${previous.version} → v${current.version})`;
   const lines = [
     `Parameter set v${current.version} of unit ${model.serial} (${model.modelName}) was approved and differs from v${previous.version} beyond the tolerance of ${details.length} parameter${details.length === 1 ? '' : 's'}:`,
@@ -234,9 +285,13 @@ export interface DriftPoint {
   at: string;
   value: number;
   standardError: number | null;
-  /** Change from the previous approved version (sets only). */
+  /** Change from the previous approved version (sets only; angles wrapped at ±180°). */
   change: number | null;
   exceeded: boolean;
+  /** Combined SE of the change and the change as a multiple of it; beyondSe: more than SE_MULTIPLE. */
+  combinedSe: number | null;
+  multiple: number | null;
+  beyondSe: boolean;
 }
 
 export interface DriftParameter {
@@ -288,22 +343,28 @@ export async function unitDrift(serial: string, options: { includeFits?: boolean
     const tolerance = toleranceFor(p, tolerances);
     const points: DriftPoint[] = [];
     let prev: number | undefined;
+    let prevSe: number | null = null;
     sets.forEach((s, i) => {
       const v = setValues[i]!.get(p.key);
       if (!v) return;
-      const change = prev === undefined ? null : v.value - prev;
+      const change = prev === undefined ? null : parameterDifference(prev, v.value, p.unit);
+      const se = s.standardErrors[p.key] ?? null;
+      const combinedSe = change === null ? null : combinedStandardError(prevSe, se);
+      const multiple = change !== null && combinedSe && combinedSe > 0 ? change / combinedSe : null;
       points.push({
         kind: 'set', id: s.id, version: s.version, state: s.state, at: iso(s.approvedAt), value: v.value,
-        standardError: s.standardErrors[p.key] ?? null, change, exceeded: change !== null && tolerance !== null && Math.abs(change) > tolerance,
+        standardError: se, change, exceeded: change !== null && tolerance !== null && Math.abs(change) > tolerance,
+        combinedSe, multiple, beyondSe: multiple !== null && Math.abs(multiple) > SE_MULTIPLE,
       });
       prev = v.value;
+      prevSe = se;
     });
     for (const { f, values } of fitValues) {
       const v = values.get(p.key);
       if (!v) continue;
       const reportParams = (f.report as { parameters?: { key: string; standardError: number | null }[] } | null)?.parameters;
       const se = reportParams?.find((r) => r.key === p.key)?.standardError ?? null;
-      points.push({ kind: 'fit', id: f.id, version: null, state: f.reviewState ?? 'fitted', at: iso(f.finishedAt ?? f.createdAt), value: v.value, standardError: se, change: null, exceeded: false });
+      points.push({ kind: 'fit', id: f.id, version: null, state: f.reviewState ?? 'fitted', at: iso(f.finishedAt ?? f.createdAt), value: v.value, standardError: se, change: null, exceeded: false, combinedSe: null, multiple: null, beyondSe: false });
     }
     return { key: p.key, joint: p.joint, name: p.name, group: p.group, unit: p.unit, nominal: nominalValues.get(p.key) ?? null, tolerance, points };
   });

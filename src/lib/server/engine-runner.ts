@@ -11,7 +11,10 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { fitSession, type FitOptions, type FitReport, type IterationInfo } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
+import { runTask, type EngineTaskInput } from './engine-tasks';
 import type { FitThreadInput, FitThreadMessage } from './fit-thread';
+import type { FleetComputeInput, FleetComputeResult } from './fleet-compute';
+import type { WorkspaceDifference } from '../engine/workspace';
 import { log } from './log';
 
 const THREAD_FILE = path.join('src', 'lib', 'server', 'fit-thread.ts');
@@ -157,5 +160,54 @@ async function inThread(code: string, run: EngineRun): Promise<FitReport> {
     worker.on('exit', onExit);
     worker.ref();
     worker.postMessage(input);
+  });
+}
+
+/**
+ * Fleet statistics in a worker thread (in-process as a fallback), through the same idle threads as the
+ * fits: the judgement of every unit and the position errors grow with the fleet, the page must not.
+ */
+export async function runFleetTask(input: FleetComputeInput): Promise<FleetComputeResult> {
+  return (await runEngineTask({ task: 'fleet', input })) as FleetComputeResult;
+}
+
+/** Workspace position difference of two geometries (engine workspaceDifference) off the caller's thread. */
+export async function runWorkspaceDifference(input: Extract<EngineTaskInput, { task: 'workspace' }>['input']): Promise<WorkspaceDifference> {
+  return (await runEngineTask({ task: 'workspace', input })) as WorkspaceDifference;
+}
+
+async function runEngineTask(task: EngineTaskInput, timeoutMs = 120_000): Promise<unknown> {
+  const code = bootstrap();
+  if (!code) return runTask(task);
+  let worker: Worker;
+  try {
+    worker = idle.pop() ?? (await startThread(code));
+  } catch (err) {
+    if (!(err instanceof ThreadDidNotStart)) throw err;
+    log('warn', 'engine threads unavailable; statistics run in-process', { error: err.message });
+    threadCode = null;
+    return runTask(task);
+  }
+  return new Promise<unknown>((resolve, reject) => {
+    const finish = (fn: () => void, reusable: boolean) => {
+      clearTimeout(timer);
+      worker.off('message', onMessage);
+      worker.off('error', onError);
+      if (reusable && idle.length < 8) {
+        worker.unref();
+        idle.push(worker);
+      } else void worker.terminate();
+      fn();
+    };
+    const timer = setTimeout(() => finish(() => reject(new Error('the fleet statistics did not finish in time')), false), timeoutMs);
+    const onMessage = (m: FitThreadMessage) => {
+      if (m.type === 'task-done') finish(() => resolve(m.result), true);
+      else if (m.type === 'error') finish(() => reject(new Error(m.message)), false);
+    };
+    const onError = (err: Error) => finish(() => reject(err), false);
+    worker.on('message', onMessage);
+    worker.on('error', onError);
+    worker.ref();
+    worker.postMessage(task);
   });
 }

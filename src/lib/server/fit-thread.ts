@@ -6,6 +6,7 @@
 import { parentPort } from 'node:worker_threads';
 import { fitSession, type FitOptions } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
+import { runTask, type EngineTaskInput } from './engine-tasks';
 
 export interface FitThreadInput {
   nominal: ArmGeometry;
@@ -13,7 +14,10 @@ export interface FitThreadInput {
   options: Omit<FitOptions, 'onIteration'>;
 }
 
+export type { EngineTaskInput } from './engine-tasks';
+
 export type FitThreadMessage =
+  | { type: 'task-done'; result: unknown }
   | { type: 'ready' }
   | { type: 'iteration'; iteration: number; cost: number; rmsMm: number }
   | { type: 'done'; report: unknown }
@@ -25,7 +29,15 @@ export type FitThreadMessage =
 const port = parentPort;
 if (port) {
   const post = (m: FitThreadMessage) => port.postMessage(m);
-  port.on('message', (input: FitThreadInput) => {
+  port.on('message', (input: FitThreadInput | EngineTaskInput) => {
+    if ('task' in input) {
+      try {
+        post({ type: 'task-done', result: runTask(input) });
+      } catch (err) {
+        post({ type: 'error', message: String((err as Error)?.stack ?? err) });
+      }
+      return;
+    }
     try {
       const report = fitSession(input.nominal, input.poses, {
         ...input.options,

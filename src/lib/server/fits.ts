@@ -8,6 +8,7 @@ import { aliasedTable, and, count, desc, eq, isNull, sql, type SQL } from 'drizz
 import { z } from 'zod';
 import { FIT_STATES, REVIEW_STATES, fits, parameterSets, sessionPoses, sessions, units, users, type FitState, type ReviewState } from '../../db/schema';
 import type { FitOptions } from '../engine/fit';
+import type { Verdicts } from '../engine/plausibility';
 import { PARAMETER_GROUPS } from '../engine/types';
 import { audit } from './audit';
 import { db as sharedDb, type Db } from './db';
@@ -52,8 +53,18 @@ export function toFitOptions(s: FitSettings): Omit<FitOptions, 'onIteration'> {
   };
 }
 
-/** Refit body: poses to exclude (added to the parent's) and any setting to change. */
-export const refitSchema = fitSettingsSchema.partial();
+/**
+ * Refit body: poses to exclude (added to the parent's), any setting to change, and a note saying why.
+ * Without the defaults: a setting the body leaves out keeps the parent's value (a partial schema with
+ * defaults would quietly reset it, e.g. drop the parent's cross-validation).
+ */
+const settingsShape = fitSettingsSchema.shape;
+export const refitSchema = z.strictObject({
+  ...(Object.fromEntries(Object.entries(settingsShape).map(([k, v]) => [k, v.unwrap().optional()])) as {
+    [K in keyof typeof settingsShape]: z.ZodOptional<ReturnType<(typeof settingsShape)[K]['unwrap']>>;
+  }),
+  note: z.string({ error: 'note must be text' }).trim().max(4000, 'note is at most 4000 characters').optional(),
+});
 export type RefitInput = z.infer<typeof refitSchema>;
 
 export type CreateResult = { ok: true; id: string } | { ok: false; status: 400 | 404 | 409; error: string; errors?: FieldProblem[] };
@@ -79,7 +90,7 @@ export async function createFit(
   sessionId: string,
   settings: FitSettings,
   actorId: string,
-  options: { parentFitId?: string; database?: Db; enqueue?: (fitId: string) => Promise<void> } = {},
+  options: { parentFitId?: string; exclusionNote?: string; database?: Db; enqueue?: (fitId: string) => Promise<void> } = {},
 ): Promise<CreateResult> {
   const database = options.database ?? sharedDb();
   const [session] = await database.select({ id: sessions.id, unitId: sessions.unitId, poseCount: sessions.poseCount }).from(sessions).where(eq(sessions.id, sessionId));
@@ -89,7 +100,7 @@ export async function createFit(
   const id = await database.transaction(async (tx) => {
     const [row] = await tx
       .insert(fits)
-      .values({ sessionId, unitId: session.unitId, parentFitId: options.parentFitId ?? null, state: 'queued', settings, createdBy: actorId })
+      .values({ sessionId, unitId: session.unitId, parentFitId: options.parentFitId ?? null, state: 'queued', settings, createdBy: actorId, exclusionNote: options.exclusionNote || null })
       .returning({ id: fits.id });
     await audit(tx, {
       actorId,
@@ -97,7 +108,7 @@ export async function createFit(
       entityType: 'fit',
       entityId: row!.id,
       action: 'fit.created',
-      details: { sessionId, settings, ...(options.parentFitId ? { parentFitId: options.parentFitId } : {}) },
+      details: { sessionId, settings, ...(options.parentFitId ? { parentFitId: options.parentFitId } : {}), ...(options.exclusionNote ? { note: options.exclusionNote } : {}) },
     });
     return row!.id;
   });
@@ -116,16 +127,19 @@ export async function refit(parentId: string, input: RefitInput, actorId: string
   const [parent] = await database.select().from(fits).where(eq(fits.id, parentId));
   if (!parent) return { ok: false, status: 404, error: 'No such fit.' };
   const base = fitSettingsSchema.safeParse(parent.settings);
-  const merged = { ...(base.success ? base.data : {}), ...input };
+  const { note, ...changes } = input;
+  const given = Object.fromEntries(Object.entries(changes).filter(([, v]) => v !== undefined));
+  const merged = { ...(base.success ? base.data : {}), ...given };
   merged.exclude = [...new Set([...(base.success ? base.data.exclude : []), ...(input.exclude ?? [])])];
   const parsed = fitSettingsSchema.safeParse(merged);
   if (!parsed.success) return { ok: false, status: 400, error: 'Invalid fit settings.', errors: parsed.error.issues.map((i) => ({ field: i.path.join('.') || undefined, message: i.message })) };
-  return createFit(parent.sessionId, parsed.data, actorId, { parentFitId: parentId, database });
+  return createFit(parent.sessionId, parsed.data, actorId, { parentFitId: parentId, exclusionNote: note, database });
 }
 
 const creator = aliasedTable(users, 'creator');
 const submitter = aliasedTable(users, 'submitter');
 const decider = aliasedTable(users, 'decider');
+const overrider = aliasedTable(users, 'overrider');
 
 const summaryColumns = {
   id: fits.id,
@@ -155,12 +169,24 @@ const summaryColumns = {
   decidedByName: decider.name,
   decidedAt: fits.decidedAt,
   decisionComment: fits.decisionComment,
+  plausibility: sql<string | null>`(${fits.verdicts} ->> 'level')`,
   // Read inside PostgreSQL so lists never load whole reports.
   rmsBeforeMm: sql<number | null>`(${fits.report} #>> '{statistics,fit,before,rms}')::float8`,
   rmsAfterMm: sql<number | null>`(${fits.report} #>> '{statistics,fit,after,rms}')::float8`,
 };
 
-const detailColumns = { ...summaryColumns, inputChecksums: fits.inputChecksums, report: fits.report, calibrated: fits.calibrated };
+const detailColumns = {
+  ...summaryColumns,
+  inputChecksums: fits.inputChecksums,
+  report: fits.report,
+  calibrated: fits.calibrated,
+  verdicts: fits.verdicts,
+  submitNote: fits.submitNote,
+  overrideNote: fits.overrideNote,
+  overrideByName: overrider.name,
+  overrideAt: fits.overrideAt,
+  exclusionNote: fits.exclusionNote,
+};
 
 function joinedSummary(database: Db) {
   return database
@@ -181,7 +207,8 @@ function joinedDetail(database: Db) {
     .innerJoin(sessions, eq(sessions.id, fits.sessionId))
     .leftJoin(creator, eq(creator.id, fits.createdBy))
     .leftJoin(submitter, eq(submitter.id, fits.submittedBy))
-    .leftJoin(decider, eq(decider.id, fits.decidedBy));
+    .leftJoin(decider, eq(decider.id, fits.decidedBy))
+    .leftJoin(overrider, eq(overrider.id, fits.overrideBy));
 }
 
 export interface FitSummary {
@@ -212,6 +239,8 @@ export interface FitSummary {
   decidedByName: string | null;
   decidedAt: Date | null;
   decisionComment: string | null;
+  /** Worst plausibility verdict once fitted: pass, caution or implausible. */
+  plausibility?: string | null;
   /** Before/after RMS of the fit poses (mm), once fitted. */
   rmsBeforeMm?: number | null;
   rmsAfterMm?: number | null;
@@ -221,6 +250,12 @@ export interface FitDetail extends FitSummary {
   inputChecksums: { sessionFile: string; nominalGeometry: string } | null;
   report: Record<string, unknown> | null;
   calibrated: unknown;
+  verdicts: Verdicts | null;
+  submitNote: string | null;
+  overrideNote: string | null;
+  overrideByName: string | null;
+  overrideAt: Date | null;
+  exclusionNote: string | null;
   /** The parameter set this fit's approval created, if any. */
   parameterSet: { id: string; version: number; state: string } | null;
 }

@@ -1,79 +1,38 @@
 /**
- * Fleet statistics of one arm model: for every parameter, the spread of the deviation from nominal across
- * all units' CURRENT approved sets, control limits, the units outside them, a units × parameters matrix in
- * σ, and the predicted position error of using the nominal geometry instead of each unit's calibrated one.
- *
- * Statistics (simple-statistics): mean, SAMPLE standard deviation (n − 1 in the denominator), control
- * limits mean ± 3σ (Shewhart's three-sigma limits, common practice).
- *
- * Which units are "outside the limits": a unit is flagged for a parameter when its deviation lies outside
- * the ±3σ limits of the OTHER units (leave-one-out). With the unit itself included no unit could ever be
- * flagged in a small fleet: by Samuelson's inequality |x_i − mean| ≤ (n − 1)/√n · s, which stays under 3 s
- * for n ≤ 10. Leaving the unit out is the usual remedy (a "deleted" statistic, common practice); a unit
- * outside the all-unit limits is always outside its leave-one-out limits too. Needs at least two other
- * units. The reported limits per parameter are those of all units.
+ * Fleet statistics of one arm model: each unit's CURRENT approved set as deviations from nominal, every
+ * unit judged against the others (src/lib/engine/fleet-judgement.ts: robust reference, moderated Student-t
+ * prediction limits, Bonferroni across the unit's parameters; base frame never, tool point only for a
+ * fixed fixture), a units × parameters matrix of scores, and the predicted position error of using the
+ * nominal geometry instead of each unit's calibrated one. The computation runs in the engine's worker
+ * thread (engine-runner.ts); this module only reads the rows and shapes the answer.
  */
 import { and, asc, eq, inArray } from 'drizzle-orm';
-import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics';
 import { armModelRevisions, armModels, fits, parameterSets, sessions, units, users } from '../../db/schema';
-import { jointRanges, workspaceDifference } from '../engine/workspace';
-import type { ArmGeometry, ParameterGroup } from '../engine/types';
+import { FLEET_ALPHA } from '../engine/fleet-judgement';
+import type { ParameterGroup } from '../engine/types';
 import { db as sharedDb, type Db } from './db';
-import { mergedOrder, parameterValues } from './parameter-values';
+import { runFleetTask } from './engine-runner';
+import { POSITION_SAMPLES, POSITION_SEED } from './fleet-compute';
+import { modelJudgement } from './judgement';
 
-/** Control limits at mean ± K·σ. */
-export const SIGMA_LIMIT = 3;
-/** Deviations closer than this (mm or deg) to the others' mean are never flagged: rounding, not spread. */
-const FLAG_FLOOR = 1e-9;
-/** Joint configurations sampled per unit for the position error, and the generator's seed. */
-export const POSITION_SAMPLES = 1000;
-export const POSITION_SEED = 9283;
+export { positionError, POSITION_SAMPLES, POSITION_SEED } from './fleet-compute';
 
-export interface SpreadStats {
-  n: number;
-  mean: number | null;
-  /** Sample standard deviation (n − 1); null for fewer than two values. */
-  sd: number | null;
-  lower: number | null;
-  upper: number | null;
-}
-
-/** mean, sample σ and mean ± 3σ of a list of deviations. */
-export function spread(values: number[]): SpreadStats {
-  const n = values.length;
-  if (n === 0) return { n, mean: null, sd: null, lower: null, upper: null };
-  const m = ssMean(values);
-  if (n < 2) return { n, mean: m, sd: null, lower: null, upper: null };
-  const sd = sampleStandardDeviation(values);
-  return { n, mean: m, sd, lower: m - SIGMA_LIMIT * sd, upper: m + SIGMA_LIMIT * sd };
-}
-
-/** Leave-one-out check of value i: outside the others' mean ± 3σ? Null when fewer than two others. */
-export function outsideOthers(values: number[], i: number): { outside: boolean; lower: number; upper: number } | null {
-  const others = values.filter((_, k) => k !== i);
-  const s = spread(others);
-  if (s.sd === null) return null;
-  const dev = Math.abs(values[i]! - s.mean!);
-  return { outside: dev > SIGMA_LIMIT * s.sd && dev > FLAG_FLOOR, lower: s.lower!, upper: s.upper! };
-}
-
-/**
- * Predicted position error of the nominal geometry against the calibrated one: |p_nominal(q) − p_calibrated(q)|
- * at seeded joint configurations within the nominal's limits (the engine's `jointRanges`). Both in the robot base frame: the base is dropped from both, since a calibrated base
- * is where the tracker stood, not a property of the arm. The tool point is kept (it is the measured point).
- */
-export function positionError(nominal: ArmGeometry, calibrated: ArmGeometry, samples = POSITION_SAMPLES, seed = POSITION_SEED) {
-  const d = workspaceDifference(nominal, calibrated, jointRanges(nominal), { samples, seed });
-  return { maxMm: d.maxMm, rmsMm: d.rmsMm };
-}
-
-export interface FleetParameter extends SpreadStats {
+export interface FleetParameter {
   key: string;
   joint?: string;
   name: string;
   group: ParameterGroup;
   unit: 'mm' | 'deg';
-  /** Serial numbers flagged outside the limits (leave-one-out, see above). */
+  n: number;
+  mean: number | null;
+  /** Sample standard deviation (n − 1) of all units; null for fewer than two. */
+  sd: number | null;
+  median: number | null;
+  robustSd: number | null;
+  /** Judged at all (base frame never; tool point only for a fixed fixture; not without spread). */
+  judged: boolean;
+  reason?: string;
+  /** Serial numbers flagged on this parameter. */
   outside: string[];
 }
 
@@ -88,9 +47,13 @@ export interface FleetUnit {
   revision: number;
   /** calibrated − nominal per key, file units. */
   deviations: Record<string, number>;
-  /** (deviation − fleet mean) / fleet σ per key; null when σ is 0 or undefined. */
-  sigmas: Record<string, number | null>;
-  /** Keys for which this unit is outside the limits. */
+  /** Normal-equivalent score against the other units per judged key (the lines are ± criticalScore). */
+  scores: Record<string, number>;
+  /** This unit's prediction limits per judged key (file units): centre, lower, upper, p. */
+  limits: Record<string, { centre: number; lower: number; upper: number; p: number }>;
+  criticalScore: number;
+  flagged: boolean;
+  /** Keys on which this unit is out of line with the others. */
   outside: string[];
   positionError: { maxMm: number; rmsMm: number };
 }
@@ -100,16 +63,18 @@ export interface FleetOutside {
   key: string;
   unit: 'mm' | 'deg';
   deviation: number;
-  /** Limits of the other units (the flagging basis). */
+  /** This unit's prediction limits from the other units (the flagging basis). */
   lower: number;
   upper: number;
-  sigma: number | null;
+  score: number;
+  p: number;
 }
 
 /** The fleet statistics of an arm model; undefined when the model does not exist. */
 export async function fleetStatistics(modelId: string, database: Db = sharedDb()) {
   const [model] = await database.select({ id: armModels.id, name: armModels.name }).from(armModels).where(eq(armModels.id, modelId));
   if (!model) return undefined;
+  const settings = (await modelJudgement(modelId, database))!.settings;
   const revisionIds = (await database.select({ id: armModelRevisions.id }).from(armModelRevisions).where(eq(armModelRevisions.modelId, modelId))).map((r) => r.id);
   const rows = revisionIds.length
     ? await database
@@ -135,58 +100,63 @@ export async function fleetStatistics(modelId: string, database: Db = sharedDb()
         .where(inArray(units.modelRevisionId, revisionIds))
         .orderBy(asc(units.serial))
     : [];
-  const perUnit = rows.map((r) => {
-    const nominal = new Map(parameterValues(r.nominal).map((p) => [p.key, p.value]));
-    const cal = parameterValues(r.calibrated);
-    const deviations: Record<string, number> = {};
-    for (const p of cal) deviations[p.key] = p.value - (nominal.get(p.key) ?? 0);
-    return { r, cal, deviations };
-  });
-  const order = mergedOrder(perUnit.map((u) => u.cal));
+  const computed = await runFleetTask({ units: rows.map((r) => ({ id: r.unitId, nominal: r.nominal, calibrated: r.calibrated })), judgeTool: settings.toolFixture });
+  const j = computed.judgement;
   const outsideList: FleetOutside[] = [];
-  const sigmas = perUnit.map(() => ({}) as Record<string, number | null>);
-  const outsideKeys = perUnit.map(() => [] as string[]);
-  const parameters: FleetParameter[] = order.map((p) => {
-    const holders = perUnit.map((u, i) => ({ i, v: u.deviations[p.key] })).filter((x): x is { i: number; v: number } => x.v !== undefined);
-    const values = holders.map((h) => h.v);
-    const s = spread(values);
-    const flagged: string[] = [];
-    holders.forEach((h, k) => {
-      const z = s.sd && s.sd > 0 ? (h.v - s.mean!) / s.sd : null;
-      sigmas[h.i]![p.key] = z;
-      const check = outsideOthers(values, k);
-      if (check?.outside) {
-        const serial = perUnit[h.i]!.r.serial;
-        flagged.push(serial);
-        outsideKeys[h.i]!.push(p.key);
-        outsideList.push({ serial, key: p.key, unit: p.unit, deviation: h.v, lower: check.lower, upper: check.upper, sigma: z });
-      }
-    });
-    return { key: p.key, joint: p.joint, name: p.name, group: p.group, unit: p.unit, ...s, outside: flagged };
+  const fleetUnits: FleetUnit[] = rows.map((r, i) => {
+    const uj = j.units[i]!;
+    const scores: FleetUnit['scores'] = {};
+    const limits: FleetUnit['limits'] = {};
+    for (const [key, pj] of Object.entries(uj.parameters)) {
+      scores[key] = pj.score;
+      limits[key] = { centre: pj.centre, lower: pj.lower, upper: pj.upper, p: pj.p };
+    }
+    const deviations = computed.deviations[i]!;
+    for (const key of uj.flags) {
+      const pj = uj.parameters[key]!;
+      const unit = computed.order.find((p) => p.key === key)!.unit;
+      outsideList.push({ serial: r.serial, key, unit, deviation: deviations[key]!, lower: pj.lower, upper: pj.upper, score: pj.score, p: pj.p });
+    }
+    return {
+      unitId: r.unitId,
+      serial: r.serial,
+      needsAttention: r.needsAttention,
+      setId: r.setId,
+      version: r.version,
+      approvedAt: new Date(r.approvedAt).toISOString(),
+      approvedBy: r.approvedBy,
+      revision: r.revision,
+      deviations,
+      scores,
+      limits,
+      criticalScore: uj.criticalScore,
+      flagged: uj.flagged,
+      outside: uj.flags,
+      positionError: computed.positionErrors[i]!,
+    };
   });
-  const fleetUnits: FleetUnit[] = perUnit.map((u, i) => ({
-    unitId: u.r.unitId,
-    serial: u.r.serial,
-    needsAttention: u.r.needsAttention,
-    setId: u.r.setId,
-    version: u.r.version,
-    approvedAt: new Date(u.r.approvedAt).toISOString(),
-    approvedBy: u.r.approvedBy,
-    revision: u.r.revision,
-    deviations: u.deviations,
-    sigmas: sigmas[i]!,
-    outside: outsideKeys[i]!,
-    positionError: positionError(u.r.nominal, u.r.calibrated),
-  }));
+  const parameters: FleetParameter[] = computed.order.map((p) => {
+    const jp = j.parameters.find((x) => x.key === p.key)!;
+    return {
+      key: p.key, joint: p.joint, name: p.name, group: p.group, unit: p.unit,
+      n: jp.n, mean: jp.mean, sd: jp.sd, median: jp.median, robustSd: jp.robustSd, judged: jp.judged, ...(jp.reason ? { reason: jp.reason } : {}),
+      outside: fleetUnits.filter((u) => u.outside.includes(p.key)).map((u) => u.serial),
+    };
+  });
   const errs = fleetUnits.map((u) => u.positionError);
+  const mean = (v: number[]) => v.reduce((a, b) => a + b, 0) / v.length;
   return {
     model,
     statistics: {
-      standardDeviation: 'sample (n − 1)',
-      limits: `mean ± ${SIGMA_LIMIT}σ of all units' current sets`,
-      flagging: `a unit is outside when its deviation lies outside the mean ± ${SIGMA_LIMIT}σ of the other units (needs ≥ 2 others)`,
+      alpha: j.alpha,
+      rule: j.rule,
+      priors: j.priors,
+      judgedParameters: parameters.filter((p) => p.judged).length,
+      criticalScore: fleetUnits.length ? Math.max(...fleetUnits.map((u) => u.criticalScore)) : null,
+      toolFixture: settings.toolFixture,
     },
     unitCount: fleetUnits.length,
+    flaggedUnits: fleetUnits.filter((u) => u.flagged).map((u) => u.serial),
     parameters,
     units: fleetUnits,
     outside: outsideList,
@@ -197,14 +167,17 @@ export async function fleetStatistics(modelId: string, database: Db = sharedDb()
       fleet: errs.length
         ? {
             maxMm: Math.max(...errs.map((e) => e.maxMm)),
-            meanMaxMm: ssMean(errs.map((e) => e.maxMm)),
+            meanMaxMm: mean(errs.map((e) => e.maxMm)),
             // RMS over every sampled configuration of every unit (same sample count per unit).
-            rmsMm: Math.sqrt(ssMean(errs.map((e) => e.rmsMm * e.rmsMm))),
+            rmsMm: Math.sqrt(mean(errs.map((e) => e.rmsMm * e.rmsMm))),
           }
         : null,
     },
   };
 }
+
+/** Unit-level false-alarm rate the rule is built for (shown on the page). */
+export const FLEET_FALSE_ALARM = FLEET_ALPHA;
 
 export type FleetStatistics = NonNullable<Awaited<ReturnType<typeof fleetStatistics>>>;
 

@@ -16,12 +16,14 @@ import { z } from 'zod';
 import { armModelRevisions, fits, sessionPoses, sessions } from '../../db/schema';
 import type { FitReport } from '../engine/fit';
 import { serializeGeometry } from '../engine/geometry';
+import { fitVerdicts } from '../engine/plausibility';
 import { EngineInputError, formatProblem, type ArmGeometry, type SessionPose } from '../engine/types';
 import { audit } from './audit';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
 import { engineMode, runEngine } from './engine-runner';
 import { fitSettingsSchema, toFitOptions } from './fits';
+import { unitJudgement } from './judgement';
 import { log } from './log';
 import { sha256 } from './tokens';
 import { recordWebhookEvent } from './webhooks';
@@ -196,6 +198,8 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
   const durationMs = Math.round(performance.now() - started);
   await writing;
   const safe = jsonSafe(report);
+  // The plausibility gate (one rule set with the session check and the command line), with the model's settings.
+  const verdicts = jsonSafe(fitVerdicts(report, poses, await unitJudgement(claimed.unitId, database)));
   const last = report.iterations.at(-1);
   const done = await database.transaction(async (tx) => {
     const updated = await tx
@@ -204,6 +208,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
         state: 'fitted',
         report: safe as unknown as Record<string, unknown>,
         calibrated: safe.calibrated,
+        verdicts: verdicts as unknown as Record<string, unknown>,
         engineVersion: report.engineVersion,
         inputChecksums: { sessionFile: session.fileSha256, nominalGeometry: sha256(serializeGeometry(nominal)) },
         progress: { iteration: last?.iteration ?? 0, rmsMm: report.statistics.fit.after.rms, cost: last?.cost ?? 0, worker: WORKER_ID },
@@ -223,6 +228,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
       details: {
         rmsBeforeMm: report.statistics.fit.before.rms,
         rmsAfterMm: report.statistics.fit.after.rms,
+        plausibility: verdicts.level,
         engineVersion: report.engineVersion,
         durationMs,
         attempt: claimed.attempts,

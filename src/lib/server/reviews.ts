@@ -25,16 +25,32 @@ export const rejectSchema = z.strictObject({
   comment: z.string({ error: 'a reason is required (comment)' }).trim().min(1, 'say why the fit is returned (comment is required)').max(4000, 'comment is at most 4000 characters'),
 });
 
+/** Submit body: a note to the reviewer, and the written override an implausible fit needs (engineers only). */
+export const submitSchema = decisionSchema.extend({
+  override: z
+    .string({ error: 'override must be text' })
+    .trim()
+    .min(20, 'say in at least 20 characters why this implausible fit should be reviewed anyway (override)')
+    .max(4000, 'override is at most 4000 characters')
+    .optional(),
+});
+
 export type ReviewResult<T extends object = object> = ({ ok: true } & T) | { ok: false; status: 403 | 404 | 409; error: string };
 
 const isAdmin = (u: CurrentUser) => u.roles.includes('admin');
 const link = (path: string) => `${config().PUBLIC_BASE_URL}${path}`;
 
 /** Submit a fitted fit for review; mails every active engineer except the submitter. */
-export async function submitFit(fitId: string, user: CurrentUser, comment: string | undefined, database: Db = sharedDb()): Promise<ReviewResult> {
+export async function submitFit(
+  fitId: string,
+  user: CurrentUser,
+  comment: string | undefined,
+  database: Db = sharedDb(),
+  extra: { override?: string } = {},
+): Promise<ReviewResult> {
   return database.transaction(async (tx) => {
     const [fit] = await tx
-      .select({ id: fits.id, state: fits.state, reviewState: fits.reviewState, unitId: fits.unitId, serial: units.serial })
+      .select({ id: fits.id, state: fits.state, reviewState: fits.reviewState, unitId: fits.unitId, serial: units.serial, plausibility: sql<string | null>`${fits.verdicts} ->> 'level'` })
       .from(fits)
       .innerJoin(units, eq(units.id, fits.unitId))
       .where(eq(fits.id, fitId))
@@ -46,11 +62,23 @@ export async function submitFit(fitId: string, user: CurrentUser, comment: strin
     if (fit.reviewState === 'returned') {
       return { ok: false, status: 409, error: 'This fit was returned by a reviewer and stays on record as it is; fit the session again and submit the new fit.' };
     }
+    // The plausibility gate: an implausible fit goes to review only with an engineer's written override.
+    const implausible = fit.plausibility === 'implausible';
+    if (implausible && !extra.override) {
+      return { ok: false, status: 409, error: 'This fit is implausible (see its verdicts); an engineer must write an override saying why it should be reviewed anyway.' };
+    }
+    if (implausible && !user.roles.some((r) => r === 'engineer' || r === 'admin')) {
+      return { ok: false, status: 403, error: 'Only a metrology engineer (or an administrator) can override an implausible verdict.' };
+    }
+    const override = implausible ? extra.override! : null;
     await tx
       .update(fits)
-      .set({ reviewState: 'awaiting_review', submittedBy: user.id, submittedAt: sql`now()`, decisionComment: null })
+      .set({
+        reviewState: 'awaiting_review', submittedBy: user.id, submittedAt: sql`now()`, decisionComment: null, submitNote: comment || null,
+        overrideNote: override, overrideBy: override ? user.id : null, overrideAt: override ? sql`now()` : null,
+      })
       .where(eq(fits.id, fitId));
-    await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'fit.submitted', comment: comment || null });
+    await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'fit.submitted', comment: comment || null, ...(override ? { details: { override } } : {}) });
     const reviewers = await tx
       .select({ email: users.email, name: users.name })
       .from(users)
@@ -61,7 +89,12 @@ export async function submitFit(fitId: string, user: CurrentUser, comment: strin
         composeMail(
           r.email,
           `Fit for unit ${fit.serial} awaits your review`,
-          [`Hello ${r.name},`, `${user.name} submitted a fit of unit ${fit.serial} for review.`, ...(comment ? [`Their note: ${comment}`] : [])],
+          [
+            `Hello ${r.name},`,
+            `${user.name} submitted a fit of unit ${fit.serial} for review.`,
+            ...(comment ? [`Their note: ${comment}`] : []),
+            ...(override ? [`The fit is IMPLAUSIBLE by its verdicts; ${user.name} overrode that: ${override}`] : []),
+          ],
           { label: 'Review the fit', url: link(`/reviews/${fitId}`) },
         ),
       ),

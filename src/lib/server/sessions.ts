@@ -6,6 +6,8 @@
  * new session id; then the session row, every pose and the audit entry go in one transaction. If the
  * transaction fails the object is deleted again; if S3 fails no row is written.
  */
+import { sessionVerdicts, type Verdicts } from '../engine/plausibility';
+import { unitJudgement } from './judgement';
 import { CopyObjectCommand, PutObjectCommand } from '@aws-sdk/client-s3';
 import { and, asc, count, desc, eq, sql } from 'drizzle-orm';
 import { createHash, randomUUID } from 'node:crypto';
@@ -853,6 +855,8 @@ export interface SessionCheck {
   registered: boolean;
   poses: { label: string; line: number; error: number }[];
   problem?: string;
+  /** The plausibility rules that need no fit (src/lib/engine/plausibility.ts), the same the fit applies. */
+  verdicts?: Verdicts;
 }
 
 /** The nominal model of the unit's revision against the measured points (engine checkGeometry). */
@@ -873,8 +877,10 @@ export async function sessionCheckDetail(id: string, database: Db = sharedDb()):
   const poses = await allSessionPoses(id, database);
   try {
     const report = checkGeometry(geometry, poses);
+    const [unit] = await database.select({ unitId: sessions.unitId }).from(sessions).where(eq(sessions.id, id));
+    const verdicts = sessionVerdicts(geometry, poses, unit ? await unitJudgement(unit.unitId, database) : undefined, report.stats.rms);
     return {
-      check: { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })) },
+      check: { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })), verdicts },
       geometry,
       base: report.base,
       residuals: report.poses.map((p) => ({ line: p.line, residual: p.residual })),

@@ -65,6 +65,7 @@ export const API_ROUTES: readonly RouteRule[] = [
   // Fleet, drift and exports (issue 6)
   { pattern: '/api/arm-models/[id]/fleet', methods: { GET: FLEET_VIEWERS } },
   { pattern: '/api/arm-models/[id]/tolerances', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
+  { pattern: '/api/arm-models/[id]/judgement', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
   { pattern: '/api/units/[serial]/drift', methods: { GET: FLEET_VIEWERS } },
   { pattern: '/api/alerts', methods: { GET: FLEET_VIEWERS } },
   { pattern: '/api/alerts/[id]/acknowledge', methods: { POST: FLEET_VIEWERS } },
