@@ -18,3 +18,6 @@ export * from './planner';
 export * from './geometry';
 export * from './session-csv';
 export * from './iso9283';
+export * from './ik';
+export * from './compensate';
+export * from './program-csv';
