@@ -3,7 +3,7 @@
  * naming file, line and field; outputs are written only after success.
  */
 import { CliError, EXIT_INTERNAL, EXIT_OK, EXIT_USAGE, type Io } from './common';
-import { CHECK_USAGE, FIT_USAGE, PLAN_USAGE } from './usage';
+import { CHECK_USAGE, COMPENSATE_USAGE, FIT_USAGE, PLAN_USAGE } from './usage';
 
 export const USAGE = `Offsetry — kinematic calibration of robot arms from laser-tracker sessions.
 
@@ -13,12 +13,15 @@ commands:
   fit     identify a calibrated geometry from a nominal geometry and a measured session
   check   error statistics of a geometry against a session, without fitting
   plan    suggest joint configurations (a pose plan) for the next session
+  compensate  correct a robot program for a calibrated geometry (inverse kinematics)
 
 ${FIT_USAGE}
 
 ${CHECK_USAGE}
 
 ${PLAN_USAGE}
+
+${COMPENSATE_USAGE}
 
 Exit status: 0 success, 1 bad input (nothing written), 2 bad usage, 3 internal error.`;
 
@@ -28,6 +31,7 @@ const commands: Record<string, { load: () => Promise<Run>; usage: string }> = {
   fit: { load: async () => (await import('./fit')).runFit, usage: FIT_USAGE },
   check: { load: async () => (await import('./check')).runCheck, usage: CHECK_USAGE },
   plan: { load: async () => (await import('./plan')).runPlan, usage: PLAN_USAGE },
+  compensate: { load: async () => (await import('./compensate')).runCompensate, usage: COMPENSATE_USAGE },
 };
 
 const consoleIo: Io = { out: (l) => process.stdout.write(l + '\n'), err: (l) => process.stderr.write(l + '\n') };
@@ -40,7 +44,7 @@ export async function main(argv: string[], io: Io = consoleIo): Promise<number> 
   }
   const cmd = commands[name];
   if (!cmd) {
-    io.err(`offsetry: unknown command "${name}" (expected fit, check or plan; see offsetry --help)`);
+    io.err(`offsetry: unknown command "${name}" (expected fit, check, plan or compensate; see offsetry --help)`);
     return EXIT_USAGE;
   }
   if (rest.includes('--help') || rest.includes('-h')) {

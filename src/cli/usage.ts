@@ -20,3 +20,15 @@ export const PLAN_USAGE = `usage: offsetry plan --model GEOMETRY.json --count 60
 
   Picks --count joint configurations within the joint limits that maximise an observability
   index (default O1) for the default parameter set, and writes them as CSV (pose,q1..qn).`;
+
+export const COMPENSATE_USAGE = `usage: offsetry compensate --model CALIBRATED.json --nominal NOMINAL.json --targets TARGETS.csv --out OUT.csv
+                          [--frame base|measurement] [--tool x,y,z,rx,ry,rz]
+
+  Corrects a robot program for a calibrated geometry: for every target, the joint values that bring the
+  calibrated arm onto it, and the target the nominal model needs to drive to those joint values.
+  --model      calibrated geometry (offsetry-arm/1 JSON, e.g. from offsetry fit)
+  --nominal    the arm model's nominal geometry (the controller's model)
+  --targets    program (CSV: target,x,y,z[,rx,ry,rz][,q1..qn] or target,q1..qn)
+  --out        compensated program to write (CSV: target,q1..qn,x,y,z,rx,ry,rz,status,message)
+  --frame      frame of the targets: base (robot base, default) or measurement (tracker frame of the fit)
+  --tool       tool centre point in the flange frame (mm, deg), replacing both geometries' tools`;

@@ -75,11 +75,11 @@ function checkPair(calibrated: ArmGeometry, nominal: ArmGeometry, frame: Program
   if (problems.length) throw new EngineInputError(problems);
 }
 
-/** Rotation angle (deg) between two row-major rotations. */
+/** Rotation angle (deg) between two row-major rotations: ‖A − B‖_F = 2√2·sin(θ/2), well conditioned near 0. */
 function angleBetween(A: ArrayLike<number>, B: ArrayLike<number>): number {
-  let tr = 0;
-  for (let k = 0; k < 9; k++) tr += A[k] * B[k];
-  return (Math.acos(Math.min(1, Math.max(-1, (tr - 1) / 2))) * 180) / Math.PI;
+  let s = 0;
+  for (let k = 0; k < 9; k++) s += (A[k] - B[k]) ** 2;
+  return (2 * Math.asin(Math.min(1, Math.sqrt(s) / (2 * Math.SQRT2))) * 180) / Math.PI;
 }
 
 export function compensateProgram(calibrated: ArmGeometry, nominal: ArmGeometry, program: ParsedProgram, options: CompensateOptions = {}): CompensationResult {
