@@ -34,4 +34,5 @@ process.on('SIGTERM', () => void stop('SIGTERM'));
 process.on('SIGINT', () => void stop('SIGINT'));
 
 await startWorker({ concurrency });
+await (await import('../src/lib/server/compensations')).startCompensationWorker();
 log('info', 'fit worker ready', { pid: process.pid, concurrency, engine: engineMode() });

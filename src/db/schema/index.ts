@@ -7,3 +7,4 @@ export * from './parameter-sets';
 export * from './audit';
 export * from './mail';
 export * from './fleet';
+export * from './compensations';

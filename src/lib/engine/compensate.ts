@@ -83,6 +83,28 @@ function angleBetween(A: ArrayLike<number>, B: ArrayLike<number>): number {
 }
 
 export function compensateProgram(calibrated: ArmGeometry, nominal: ArmGeometry, program: ParsedProgram, options: CompensateOptions = {}): CompensationResult {
+  const steps = compensationSteps(calibrated, nominal, program, options);
+  for (;;) {
+    const r = steps.next();
+    if (r.done) return r.value;
+  }
+}
+
+/**
+ * The same, giving the event loop back every `progressEvery` targets (default 500: a few milliseconds),
+ * so a job in an app process never holds requests up for the whole program.
+ */
+export async function compensateProgramAsync(calibrated: ArmGeometry, nominal: ArmGeometry, program: ParsedProgram, options: CompensateOptions = {}): Promise<CompensationResult> {
+  const steps = compensationSteps(calibrated, nominal, program, options);
+  for (;;) {
+    const r = steps.next();
+    if (r.done) return r.value;
+    await new Promise((done) => setImmediate(done));
+  }
+}
+
+/** The compensation loop; yields the count of targets done every `progressEvery` targets. */
+export function* compensationSteps(calibrated: ArmGeometry, nominal: ArmGeometry, program: ParsedProgram, options: CompensateOptions = {}): Generator<number, CompensationResult> {
   const t0 = performance.now();
   const frame = options.frame ?? 'base';
   checkPair(calibrated, nominal, frame);
@@ -149,7 +171,10 @@ export function compensateProgram(calibrated: ArmGeometry, nominal: ArmGeometry,
     });
     if (r.status !== 'unreachable' && r.status !== 'outside-limits') previous = r.q;
     previousHint = hint;
-    if (options.onProgress && (k + 1) % every === 0) options.onProgress(k + 1, total);
+    if ((k + 1) % every === 0) {
+      options.onProgress?.(k + 1, total);
+      yield k + 1;
+    }
   }
   const good = out.filter((t) => t.status !== 'unreachable' && t.status !== 'outside-limits');
   const maxCorrection = good.reduce((m, t) => Math.max(m, t.correction), 0);

@@ -153,7 +153,7 @@ export function armLengthScale(geometry: ArmGeometry): number {
 }
 
 /** Symmetric eigenvalues of a k×k row-major matrix (cyclic Jacobi), into `out`; `A` is destroyed. */
-export function symmetricEigenvalues(A: Float64Array, k: number, out: Float64Array): void {
+export function jacobiEigenvalues(A: Float64Array, k: number, out: Float64Array): void {
   for (let sweep = 0; sweep < 50; sweep++) {
     let off = 0;
     for (let i = 0; i < k; i++) for (let j = i + 1; j < k; j++) off += A[i * k + j] * A[i * k + j];
@@ -386,7 +386,7 @@ export class IkSolver {
         G[a * k + b] = t;
       }
     }
-    symmetricEigenvalues(G, k, this.eig);
+    jacobiEigenvalues(G, k, this.eig);
     let least = Infinity;
     for (let i = 0; i < k; i++) least = Math.min(least, this.eig[i]);
     return Math.sqrt(Math.max(0, least));

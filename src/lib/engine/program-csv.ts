@@ -64,7 +64,7 @@ export function parseProgramCsv(text: string, fileName: string, jointCount: numb
 
   let records: { record: string[]; info: { lines: number } }[];
   try {
-    records = parse(text, { bom: true, trim: true, skip_empty_lines: true, relax_column_count: true, info: true }) as { record: string[]; info: { lines: number } }[];
+    records = parse(text, { bom: true, trim: true, skip_empty_lines: true, relax_column_count: true, info: true }) as unknown as { record: string[]; info: { lines: number } }[];
   } catch (e) {
     const err = e as { message: string; lines?: number };
     return fail({ line: err.lines, message: `not readable as CSV: ${err.message.replace(/^Invalid [^:]*: /, '')}`, expected: 'comma-separated values, text fields in double quotes' });
