@@ -7,7 +7,7 @@ import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { parse } from 'csv-parse/sync';
-import { IkSolver, anglesFromRotation, rotationFromAngles, rotationVector, type IkTarget } from '../../src/lib/engine/ik';
+import { IkSolver, anglesFromRotation, rotationFromAngles, rotationVector } from '../../src/lib/engine/ik';
 import { compensateProgram } from '../../src/lib/engine/compensate';
 import { compensatedCsv, parseProgramCsv, programCsv, type ParsedProgram, type ProgramTarget } from '../../src/lib/engine/program-csv';
 import { forwardFrames, compileArm } from '../../src/lib/engine/kinematics';

@@ -102,24 +102,33 @@ export async function createCompensation(request: Request, serial: string, actor
   const parsed = parseProgramCsv(text, name, unit.set.geometry.joints.length);
   if (!parsed.ok) return refuse(400, `${name} cannot be read as a program (${parsed.problems.length}${parsed.truncated ? '+' : ''} problem${parsed.problems.length === 1 ? '' : 's'}).`, parsed.problems.map(toProblem));
 
+  const id = await storeCompensation({ unitId: unit.unitId, parameterSetId: unit.set.id, nominalRevisionId: unit.revisionId, frame: frame.data!, tool, name, bytes: file.bytes, targetCount: parsed.targets.length, actorId }, database);
+  await enqueueCompensation(id).catch((err) => log('warn', 'compensation not queued; the sweep will queue it', { id, error: String(err) }));
+  return { ok: true, status: 202, body: { id, url: `/compensations/${id}` } };
+}
+
+/** Store a checked program: S3 object first, then its row and audit entry in one transaction (object removed if that fails). */
+export async function storeCompensation(
+  o: { unitId: string; parameterSetId: string; nominalRevisionId: string; frame: 'base' | 'measurement'; tool?: FrameSpec; name: string; bytes: Buffer; targetCount: number; actorId: string },
+  database: Db = sharedDb(),
+): Promise<string> {
   const id = randomUUID();
-  const key = `compensations/${unit.unitId}/${id}/input.csv`;
-  const digest = sha256(file.bytes);
-  await putObject(key, file.bytes, 'text/csv; charset=utf-8', { sha256: digest });
+  const key = `compensations/${o.unitId}/${id}/input.csv`;
+  const digest = sha256(o.bytes);
+  await putObject(key, o.bytes, 'text/csv; charset=utf-8', { sha256: digest });
   try {
     await database.transaction(async (tx) => {
       await tx.insert(compensations).values({
-        id, unitId: unit.unitId, parameterSetId: unit.set!.id, nominalRevisionId: unit.revisionId, frame: frame.data!, tool: tool ?? null,
-        targetCount: parsed.targets.length, inputName: name, inputKey: key, inputSha256: digest, inputBytes: file!.bytes.length, createdBy: actorId,
+        id, unitId: o.unitId, parameterSetId: o.parameterSetId, nominalRevisionId: o.nominalRevisionId, frame: o.frame, tool: o.tool ?? null,
+        targetCount: o.targetCount, inputName: o.name, inputKey: key, inputSha256: digest, inputBytes: o.bytes.length, createdBy: o.actorId,
       });
-      await audit(tx, { actorId, unitId: unit.unitId, entityType: 'parameter_set', entityId: unit.set!.id, action: 'compensation.created', details: { compensationId: id, targets: parsed.targets.length, frame: frame.data, inputSha256: digest } });
+      await audit(tx, { actorId: o.actorId, unitId: o.unitId, entityType: 'parameter_set', entityId: o.parameterSetId, action: 'compensation.created', details: { compensationId: id, targets: o.targetCount, frame: o.frame, inputSha256: digest } });
     });
   } catch (e) {
     await deleteObject(key).catch(() => {});
     throw e;
   }
-  await enqueueCompensation(id).catch((err) => log('warn', 'compensation not queued; the sweep will queue it', { id, error: String(err) }));
-  return { ok: true, status: 202, body: { id, url: `/compensations/${id}` } };
+  return id;
 }
 
 async function queue(): Promise<PgBoss> {
