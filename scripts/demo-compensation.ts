@@ -26,8 +26,8 @@ export function drillingProgram(jointCount: number): string {
   return programCsv(targets, jointCount);
 }
 
-export async function seedCompensation(db: Db): Promise<string> {
-  const [unit] = await db.select({ id: units.id, revisionId: units.modelRevisionId }).from(units).where(eq(units.serial, DEMO_PROGRAM_UNIT));
+export async function seedCompensation(db: Db, serial = DEMO_PROGRAM_UNIT): Promise<string> {
+  const [unit] = await db.select({ id: units.id, revisionId: units.modelRevisionId }).from(units).where(eq(units.serial, serial));
   if (!unit) return 'demo program: unit not found, skipped';
   const [set] = await db.select({ id: parameterSets.id, geometry: parameterSets.geometry }).from(parameterSets).where(and(eq(parameterSets.unitId, unit.id), eq(parameterSets.state, 'current')));
   if (!set) return 'demo program: the unit has no current parameter set, skipped';
@@ -39,5 +39,5 @@ export async function seedCompensation(db: Db): Promise<string> {
   if (exists) return 'demo program: already there';
   const id = await storeCompensation({ unitId: unit.id, parameterSetId: set.id, nominalRevisionId: rev!.id, frame: 'base', name: DEMO_PROGRAM_NAME, bytes, targetCount: 240, actorId: eng!.id }, db);
   const outcome = await runCompensation(id, db);
-  return `demo program: ${DEMO_PROGRAM_NAME} for ${DEMO_PROGRAM_UNIT} compensated (${outcome})`;
+  return `demo program: ${DEMO_PROGRAM_NAME} for ${serial} compensated (${outcome})`;
 }

@@ -13,10 +13,11 @@
  *   reached         within the tolerances (default 1e-9 mm, 1e-9°);
  *   unreachable     the closest configuration found is still `positionError` mm / `orientationError`° away;
  *   outside-limits  the target is reachable only with a joint beyond its limit (which joint, by how much);
- *   singular        reached, but the normalised Jacobian's smallest singular value is below the threshold
- *                   (joint values are ill-determined there: wrist or elbow aligned);
  *   jump            reached, but a joint moves more than the threshold from the previous target's solution
- *                   (a different arm configuration: a continuous path would not pass there).
+ *                   (a different arm configuration: a continuous path would not pass there); reported
+ *                   before "singular" when both hold, the message naming both;
+ *   singular        reached, but the normalised Jacobian's smallest singular value is below the threshold
+ *                   (joint values are ill-determined there: wrist, elbow or shoulder aligned).
  *
  * Model / data split as in kinematics.ts: an IkSolver holds every buffer once; solve() allocates nothing
  * but its result record.
@@ -466,9 +467,9 @@ export class IkSolver {
       positionError: Math.hypot(this.r[0], this.r[1], this.r[2]),
       orientationError: m === 6 ? Math.hypot(this.r[3], this.r[4], this.r[5]) / o.lengthScale / DEG : 0,
     };
-    if (sigma < o.singularThreshold) {
-      return { ...base, status: 'singular', message: `near a singularity: smallest singular value ${sigma.toPrecision(3)} (threshold ${o.singularThreshold}); the joint values are ill-determined here` };
-    }
+    const singular = sigma < o.singularThreshold;
+    const singularWords = `smallest singular value ${sigma.toPrecision(3)} (threshold ${o.singularThreshold})`;
+    // A jump is reported before a singularity (it is the larger motion on the cell); the message names both.
     if (seed.previous) {
       let worst = -1, ratio = 1, change = 0;
       for (let i = 0; i < n; i++) {
@@ -481,9 +482,12 @@ export class IkSolver {
         const unit = j.type === 'prismatic' ? ' mm' : '°';
         return {
           ...base, status: 'jump', jump: { joint: j.name, change },
-          message: `configuration jump: ${j.name} changes by ${fmt(change, 4)}${unit} from the previous target (threshold ${j.type === 'prismatic' ? o.jumpMillimetres : o.jumpDegrees}${unit})`,
+          message: `configuration jump: ${j.name} changes by ${fmt(change, 4)}${unit} from the previous target (threshold ${j.type === 'prismatic' ? o.jumpMillimetres : o.jumpDegrees}${unit})${singular ? `; also near a singularity: ${singularWords}` : ''}`,
         };
       }
+    }
+    if (singular) {
+      return { ...base, status: 'singular', message: `near a singularity: ${singularWords}; the joint values are ill-determined here` };
     }
     return { ...base, status: 'reached', message: 'reached' };
   }

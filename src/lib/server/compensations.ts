@@ -155,11 +155,13 @@ export async function enqueueCompensation(id: string): Promise<void> {
 /** Summary for the page: counts, histogram, the largest corrections and the targets not reached. */
 export function summarise(result: CompensationResult): CompensationSummary {
   const good = result.targets.filter((t) => t.status !== 'unreachable' && t.status !== 'outside-limits');
-  const top = result.maxCorrection > 0 ? result.maxCorrection : 1;
-  const width = top / HISTOGRAM_BINS;
+  // Bins over the range the corrections span (a calibration moves most targets by similar amounts).
+  const lo = good.reduce((m, t) => Math.min(m, t.correction), good.length ? Infinity : 0);
+  const hi = Math.max(result.maxCorrection, lo + 1e-6);
+  const width = (hi - lo) / HISTOGRAM_BINS;
   const counts = new Array(HISTOGRAM_BINS).fill(0);
-  for (const t of good) counts[Math.min(HISTOGRAM_BINS - 1, Math.floor(t.correction / width))]++;
-  const edges = Array.from({ length: HISTOGRAM_BINS + 1 }, (_, k) => k * width);
+  for (const t of good) counts[Math.min(HISTOGRAM_BINS - 1, Math.max(0, Math.floor((t.correction - lo) / width)))]++;
+  const edges = Array.from({ length: HISTOGRAM_BINS + 1 }, (_, k) => lo + k * width);
   const largest = [...good].sort((a, b) => b.correction - a.correction).slice(0, LIST_CAP)
     .map((t) => ({ target: t.target, line: t.line, correctionMm: t.correction, rotationDeg: t.rotationCorrection, status: t.status }));
   const notReached = result.targets.filter((t) => t.status !== 'reached').slice(0, LIST_CAP)
