@@ -32,7 +32,8 @@ function upload(client: Client, serial: string, csv: string, name = 'drill.csv',
 async function finished(client: Client, id: string, timeoutMs = 60_000) {
   const until = Date.now() + timeoutMs;
   for (;;) {
-    const r = await client.json(`/api/compensations/${id}`);
+    // A reused keep-alive socket closed by the server at the same moment resets the request (undici); ask again.
+    const r = await client.json(`/api/compensations/${id}`).catch(() => ({ status: 0, body: { state: 'unknown' } }));
     if (r.body.state === 'done' || r.body.state === 'failed' || Date.now() > until) return r.body;
     await new Promise((d) => setTimeout(d, 300));
   }
