@@ -59,6 +59,12 @@ describe('program compensation in the browser', () => {
     const problem = await page.locator('[data-problems] tbody tr').first().textContent();
     expect(problem).toContain('2');
     expect(problem).toContain('z');
+    for (const width of [390, 768, 1440]) {
+      await page.setViewportSize({ width, height: 1000 });
+      await page.screenshot({ path: `tmp/screens/compensate-form-${width}.png`, fullPage: true });
+      expect(await page.evaluate(() => document.documentElement.scrollWidth <= window.innerWidth + 1)).toBe(true);
+    }
+    await page.setViewportSize({ width: 768, height: 1024 });
     await page.locator('[data-file-input]').setInputFiles({ name: 'panel-drill.csv', mimeType: 'text/csv', buffer: Buffer.from(program) });
     await expect(page.locator('[data-chosen-file]').textContent()).resolves.toContain('panel-drill.csv');
     await Promise.all([page.waitForURL(/\/compensations\/[0-9a-f-]{36}$/, { timeout: 30_000 }), page.getByRole('button', { name: 'Compensate the program' }).click()]);

@@ -70,16 +70,16 @@ export default function CompensateForm({ serial, jointCount, setVersion, hasBase
         )}
       </div>
       <div className="grid gap-4 md:grid-cols-2">
-        <label className="field">
+        <label className="field min-w-0">
           <span>Frame of the targets</span>
-          <select className="input" name="frame" value={frame} onChange={(e) => setFrame(e.target.value as 'base' | 'measurement')}>
+          <select className="input w-full min-w-0" name="frame" value={frame} onChange={(e) => setFrame(e.target.value as 'base' | 'measurement')}>
             <option value="base">Robot base frame</option>
             <option value="measurement" disabled={!hasBase}>Measurement (tracker) frame of the calibration</option>
           </select>
         </label>
-        <label className="field">
+        <label className="field min-w-0">
           <span>Tool centre point (optional): x,y,z[,rx,ry,rz] in mm and degrees, flange frame</span>
-          <input className="input" name="tool" value={tool} onChange={(e) => setTool(e.target.value)} placeholder="the geometries' own tools" maxLength={200} inputMode="decimal" />
+          <input className="input w-full min-w-0" name="tool" value={tool} onChange={(e) => setTool(e.target.value)} placeholder="the geometries' own tools" maxLength={200} inputMode="decimal" />
         </label>
       </div>
       <p className="text-sm text-ink-soft">Compensated for parameter set v{setVersion} against the arm model's nominal geometry. Programs of up to 100 000 targets run as a job; the page shows its progress.</p>
