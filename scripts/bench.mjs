@@ -1,6 +1,7 @@
 #!/usr/bin/env node
 // npm run bench: prints figures; never fails on a target (targets are printed beside the figures).
 //   engine — fit time at 60 / 500 / 5 000 / 20 000 poses, beside ml-levenberg-marquardt and SciPy
+//   ik     — compensation of a 10 000-target program (targets/second), beside SciPy least_squares
 //   load   — HTTP load against a seeded app (scripts/bench-load.mjs), when present
 //   certificate — time to draw a calibration certificate and its accuracy map
 // Pass a name to run one: npm run bench -- engine
@@ -10,6 +11,7 @@ import { existsSync } from 'node:fs';
 const only = process.argv[2];
 const parts = [
   { name: 'engine', cmd: ['npx', 'tsx', 'scripts/bench-engine.ts'] },
+  { name: 'ik', cmd: ['npx', 'tsx', 'scripts/bench-ik.ts'] },
   { name: 'load', cmd: ['node', 'scripts/bench-load.mjs'], file: 'scripts/bench-load.mjs' },
   { name: 'certificate', cmd: ['npx', 'tsx', 'scripts/bench-certificate.ts'] },
 ];

@@ -32,6 +32,7 @@ if (!process.argv.includes('--users-only')) {
     console.log('seed: ' + (await mod.seedScenario(db)));
     const history = (await import(new URL('./demo-history.ts', import.meta.url).href)) as typeof import('./demo-history');
     console.log('seed: ' + (await history.seedHistory(db, mod.UNITS.map((u) => u.serial))));
+    console.log('seed: ' + (await (await import(new URL('./demo-compensation.ts', import.meta.url).href)).seedCompensation(db)));
   }
 }
 await db.$client.end();

@@ -36,4 +36,5 @@ process.on('SIGINT', () => void stop('SIGINT'));
 await startWorker({ concurrency });
 // The worker also sends signed webhooks (the queue is shared, so any process may send any delivery).
 (await import('../src/lib/server/webhooks')).startWebhookSender();
+await (await import('../src/lib/server/compensations')).startCompensationWorker();
 log('info', 'fit worker ready', { pid: process.pid, concurrency, engine: engineMode() });

@@ -34,7 +34,7 @@ export interface FitCliReport extends FitReport {
 }
 
 /** Exit status of an implausible fit (the files are written all the same). */
-export const EXIT_IMPLAUSIBLE = 3;
+export const EXIT_IMPLAUSIBLE = 7;
 
 export async function runFit(args: string[], io: Io): Promise<number> {
   const started = performance.now();

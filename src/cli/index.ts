@@ -1,10 +1,9 @@
 /**
- * Offsetry command line: `offsetry fit | check | plan | --help`. Bad input exits non-zero with a message
+ * Offsetry command line: `offsetry fit | check | plan | upload | pull | status | compensate | --help`. Bad input exits non-zero with a message
  * naming file, line and field; outputs are written only after success.
  */
 import { CliError, EXIT_INTERNAL, EXIT_OK, EXIT_USAGE, type Io } from './common';
-import { CHECK_USAGE, FIT_USAGE, PLAN_USAGE } from './usage';
-import { PULL_USAGE, STATUS_USAGE, UPLOAD_USAGE } from './usage';
+import { CHECK_USAGE, COMPENSATE_USAGE, FIT_USAGE, PLAN_USAGE, PULL_USAGE, STATUS_USAGE, UPLOAD_USAGE } from './usage';
 
 export const USAGE = `Offsetry — kinematic calibration of robot arms from laser-tracker sessions.
 
@@ -17,6 +16,7 @@ commands:
   upload  send a session file to an Offsetry server
   pull    download a unit's current approved parameter set from the server
   status  a unit's current set, open fits and reviews, open drift alerts
+  compensate  correct a robot program for a calibrated geometry (inverse kinematics)
 
 ${FIT_USAGE}
 
@@ -30,9 +30,11 @@ ${PULL_USAGE}
 
 ${STATUS_USAGE}
 
+${COMPENSATE_USAGE}
+
 Exit status: 0 success, 1 bad input (nothing written), 2 bad usage, 3 internal error,
 4 the server refused the token or its roles, 5 the server is unreachable or failed (try again),
-6 nothing to pull (no approved parameter set).`;
+6 nothing to pull (no approved parameter set), 7 the fit was written but judged implausible.`;
 
 type Run = (args: string[], io: Io) => Promise<number>;
 // Loaded on demand: a command pulls in only the engine modules it uses.
@@ -43,6 +45,7 @@ const commands: Record<string, { load: () => Promise<Run>; usage: string }> = {
   upload: { load: async () => (await import('./upload')).runUpload, usage: UPLOAD_USAGE },
   pull: { load: async () => (await import('./pull')).runPull, usage: PULL_USAGE },
   status: { load: async () => (await import('./status')).runStatus, usage: STATUS_USAGE },
+  compensate: { load: async () => (await import('./compensate')).runCompensate, usage: COMPENSATE_USAGE },
 };
 
 const consoleIo: Io = { out: (l) => process.stdout.write(l + '\n'), err: (l) => process.stderr.write(l + '\n') };

@@ -23,7 +23,7 @@ export const FIT_USAGE = `usage: offsetry fit --model NOMINAL.json --data SESSIO
   --tool-fixture   the tool is a fixed fixture: judge its point too
 
   Warnings (poor excitation, residuals above the noise) and the plausibility verdicts (the rules
-  the product applies to every fit) are printed after the summary; the command exits with status 3
+  the product applies to every fit) are printed after the summary; the command exits with status 7
   when the fit is implausible (the files are still written).`;
 
 export const CHECK_USAGE = `usage: offsetry check --model GEOMETRY.json --data SESSION.csv [--allow-outside-limits]
@@ -61,3 +61,14 @@ export const STATUS_USAGE = `usage: offsetry status --unit SERIAL [--json] [--se
   The unit's current parameter set version, fits queued or running, fits awaiting review and
   open drift alerts (--json: the same as JSON).
 ${REMOTE}`;
+export const COMPENSATE_USAGE = `usage: offsetry compensate --model CALIBRATED.json --nominal NOMINAL.json --targets TARGETS.csv --out OUT.csv
+                          [--frame base|measurement] [--tool x,y,z,rx,ry,rz]
+
+  Corrects a robot program for a calibrated geometry: for every target, the joint values that bring the
+  calibrated arm onto it, and the target the nominal model needs to drive to those joint values.
+  --model      calibrated geometry (offsetry-arm/1 JSON, e.g. from offsetry fit)
+  --nominal    the arm model's nominal geometry (the controller's model)
+  --targets    program (CSV: target,x,y,z[,rx,ry,rz][,q1..qn] or target,q1..qn)
+  --out        compensated program to write (CSV: target,q1..qn,x,y,z,rx,ry,rz,status,message)
+  --frame      frame of the targets: base (robot base, default) or measurement (tracker frame of the fit)
+  --tool       tool centre point in the flange frame (mm, deg), replacing both geometries' tools`;

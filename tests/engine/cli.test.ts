@@ -77,14 +77,14 @@ describe('offsetry --help and usage errors', () => {
 });
 
 describe('offsetry fit', () => {
-  it('prints the plausibility verdicts and exits 3 for a session of a different arm model', async () => {
+  it('prints the plausibility verdicts and exits 7 for a session of a different arm model', async () => {
     const vx = JSON.parse(readFileSync(VX, 'utf8'));
     // Another six-axis model: the VX-620 session does not belong to it (J3.a 560 mm instead of 470 mm …).
     const other = { ...vx, name: 'other', joints: vx.joints.map((j: Record<string, number>, k: number) => ({ ...j, a: [0, 75, 560, 35, 0, 0][k], d: [420, 0, 0, 515, 0, 90][k], min: j.min! - 10, max: j.max! + 10 })) };
     const model = join(dir, 'other-model.json');
     writeFileSync(model, JSON.stringify(other));
     const r = await offsetry(['fit', '--model', model, '--data', VX_SESSION, '--out', join(dir, 'other-cal.json')]);
-    expect(r.code).toBe(3);
+    expect(r.code).toBe(7);
     expect(r.stdout).toMatch(/Plausibility: IMPLAUSIBLE/);
     expect(r.stdout).toMatch(/✕ These measurements do not look like this arm model: The nominal model is \d+\.\d{3} mm RMS off/);
     expect(r.stdout).toMatch(/✕ \d parameter changes beyond the plausible bounds: .*J3\.a -9\d\.\d{3} mm/);

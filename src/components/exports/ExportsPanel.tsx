@@ -15,7 +15,7 @@ export interface ExportableUnit {
 export interface LogEntry {
   id: string;
   at: string;
-  kind: 'single' | 'batch';
+  kind: 'single' | 'batch' | 'compensation';
   format: string;
   items: { serial: string; version: number; parameterSetId: string }[];
   userName: string;
@@ -58,7 +58,7 @@ function ExportLog({ initial, refresh }: { initial: LogPage; refresh: number }) 
               <tr key={e.id}>
                 <td className="whitespace-nowrap">{e.at.slice(0, 19).replace('T', ' ')}</td>
                 <td>{e.userName}<br /><span className="text-xs text-ink-soft">{e.userEmail}</span></td>
-                <td>{e.kind === 'batch' ? 'batch (zip)' : 'single file'}</td>
+                <td>{e.kind === 'batch' ? 'batch (zip)' : e.kind === 'compensation' ? 'compensated program' : 'single file'}</td>
                 <td>{e.format}</td>
                 <td>{e.items.map((i) => `${i.serial} v${i.version}`).join(', ')}</td>
               </tr>

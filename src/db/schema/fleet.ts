@@ -31,7 +31,7 @@ export const driftAlerts = pgTable(
 export const exportLog = pgTable('export_log', {
   id: id(),
   userId: uuid().notNull().references(() => users.id),
-  kind: text().$type<'single' | 'batch'>().notNull(),
+  kind: text().$type<'single' | 'batch' | 'compensation'>().notNull(),
   format: text().notNull(),
   items: jsonb().$type<{ serial: string; version: number; parameterSetId: string }[]>().notNull(),
   at: timestamp({ withTimezone: true }).notNull().defaultNow(),

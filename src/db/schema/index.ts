@@ -8,3 +8,4 @@ export * from './audit';
 export * from './mail';
 export * from './fleet';
 export * from './webhooks';
+export * from './compensations';

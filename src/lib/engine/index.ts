@@ -20,3 +20,6 @@ export * from './session-csv';
 export * from './iso9283';
 export * from './warnings';
 export * from './rotations';
+export * from './ik';
+export * from './compensate';
+export * from './program-csv';

@@ -15,6 +15,7 @@ export function startBackground() {
     void import('./jobs').then(({ startWorker, stopWorker }) => {
       void startWorker({ concurrency: 1 }).catch((err) => log('error', 'fit worker did not start', { error: String(err) }));
       void import('./webhooks').then(({ startWebhookSender }) => startWebhookSender());
+      void import('./compensations').then(({ startCompensationWorker }) => startCompensationWorker()).catch((err) => log('error', 'compensation worker did not start', { error: String(err) }));
       // A running fit finishes (or is handed back to the queue) before the process exits.
       process.once('SIGTERM', () => void stopWorker(10_000).finally(() => process.exit(0)));
     });

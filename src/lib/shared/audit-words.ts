@@ -14,6 +14,9 @@ const WORDS: Record<string, string> = {
   'fit.fit.returned': 'Returned to the submitter',
   'parameter_set.parameter_set.created': 'Parameter set created',
   'parameter_set.parameter_set.superseded': 'Parameter set superseded',
+  'parameter_set.compensation.created': 'Program uploaded for compensation',
+  'parameter_set.compensation.done': 'Program compensated',
+  'parameter_set.compensation.failed': 'Program compensation failed',
   'alert.drift.alert': 'Drift beyond tolerance: alert raised',
   'alert.drift.acknowledged': 'Drift alert acknowledged',
 };

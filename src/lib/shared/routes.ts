@@ -23,6 +23,8 @@ const MODEL_EDITORS: readonly Role[] = ['engineer', 'admin'];
 const EXPORTERS: readonly Role[] = ['service', 'admin'];
 const FLEET_VIEWERS: readonly Role[] = ['quality', 'engineer', 'admin'];
 const CERTIFICATE_READERS: readonly Role[] = ['quality', 'service', 'engineer', 'admin'];
+const COMPENSATORS: readonly Role[] = ['engineer', 'service', 'admin'];
+const COMPENSATION_VIEWERS: readonly Role[] = ['engineer', 'service', 'quality', 'admin'];
 
 export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/health', methods: { GET: 'public' } },
@@ -74,6 +76,11 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/parameter-sets/[id]/certificate', methods: { GET: CERTIFICATE_READERS } },
   { pattern: '/api/parameter-sets/[id]/accuracy-map', methods: { GET: CERTIFICATE_READERS } },
   { pattern: '/api/exports', methods: { GET: ['service', 'quality', 'admin'], POST: EXPORTERS } },
+  // Compensated programs: engineers and service managers make and download them; quality reads them.
+  { pattern: '/api/units/[serial]/compensations', methods: { GET: COMPENSATION_VIEWERS, POST: COMPENSATORS } },
+  { pattern: '/api/compensations', methods: { GET: COMPENSATION_VIEWERS } },
+  { pattern: '/api/compensations/[id]', methods: { GET: COMPENSATION_VIEWERS } },
+  { pattern: '/api/compensations/[id]/file', methods: { GET: COMPENSATORS } },
 ];
 
 /** Page prefixes that need more than a signed-in user; the longest matching prefix wins. */
@@ -91,6 +98,8 @@ export const PAGE_RULES: readonly { prefix: string; roles: Access }[] = [
   // Unit sub-pages show what their API routes show, to the same roles.
   { prefix: '/units/[serial]/compare', roles: ENGINEERING },
   { prefix: '/units/[serial]/drift', roles: FLEET_VIEWERS },
+  { prefix: '/units/[serial]/compensate', roles: COMPENSATORS },
+  { prefix: '/compensations', roles: COMPENSATION_VIEWERS },
   { prefix: '/account', roles: 'signed-in' },
 ];
 
