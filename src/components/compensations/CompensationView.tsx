@@ -128,7 +128,7 @@ export default function CompensationView({ initial, canDownload = true }: { init
         <h2>Download</h2>
         <SafetyNotice />
         <p className="text-sm">A compensated program moves the arm to new positions. Run it first with safeguards active and at reduced speed, confirm positions against known references, and keep the original program ready to restore.</p>
-        <label className="flex min-h-10 items-center gap-3">
+        <label className="flex min-h-11 items-center gap-3">
           <input type="checkbox" className="h-6 w-6" checked={read} onChange={(e) => setRead(e.target.checked)} data-caution-read />
           <span>I have read the safety caution.</span>
         </label>

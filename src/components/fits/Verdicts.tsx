@@ -23,7 +23,7 @@ export function VerdictList({ verdicts, subject = 'fit' }: { verdicts: Verdicts;
         ))}
       </ul>
       <details className="mt-2 text-sm">
-        <summary className="flex min-h-10 cursor-pointer items-center">The rules (engineer-editable bounds on the fleet page of the model)</summary>
+        <summary className="flex min-h-11 cursor-pointer items-center">The rules (engineer-editable bounds on the fleet page of the model)</summary>
         <ul className="list-disc pl-5">{verdicts.rules.map((r) => <li key={r}>{r}</li>)}</ul>
       </details>
     </section>

@@ -40,7 +40,7 @@ export default function JudgementEditor({ modelId, initial, defaults, canEdit }:
           </label>
         ))}
       </div>
-      <label className="flex min-h-10 items-center gap-2">
+      <label className="flex min-h-11 items-center gap-2">
         <input type="checkbox" className="h-5 w-5 accent-accent" name="toolFixture" checked={fixture} disabled={!canEdit} onChange={(e) => setFixture(e.target.checked)} />
         <span>The tool is a fixed fixture (judge the tool point in the fleet view and by the change bounds)</span>
       </label>

@@ -128,12 +128,12 @@ export default function ArmView3D({ geometry, poses, total, errorMeaning, initia
               </label>
             )}
             {geometry && (
-              <label className="flex min-h-10 items-center gap-2">
+              <label className="flex min-h-11 items-center gap-2">
                 <input type="checkbox" className="h-5 w-5 accent-accent" checked={showArm} onChange={(e) => setShowArm(e.target.checked)} /> Arm
               </label>
             )}
             {hasVectors && (
-              <label className="flex min-h-10 items-center gap-2">
+              <label className="flex min-h-11 items-center gap-2">
                 <input type="checkbox" className="h-5 w-5 accent-accent" checked={showVectors} onChange={(e) => setShowVectors(e.target.checked)} /> Error vectors
               </label>
             )}
@@ -158,7 +158,7 @@ export default function ArmView3D({ geometry, poses, total, errorMeaning, initia
                 <li key={i}>
                   <button
                     type="button"
-                    className={`flex min-h-10 w-full items-center gap-2 px-2 text-left ${i === selected ? 'bg-accent-soft font-semibold' : 'hover:bg-paper'}`}
+                    className={`flex min-h-11 w-full items-center gap-2 px-2 text-left ${i === selected ? 'bg-accent-soft font-semibold' : 'hover:bg-paper'}`}
                     aria-pressed={i === selected}
                     data-pose-label={p.label}
                     data-role={p.role}

@@ -348,6 +348,7 @@ export default function Scene(props: SceneProps) {
         gl.setClearColor('#ffffff');
         gl.domElement.addEventListener('webglcontextlost', props.onContextLost);
       }}
+      role="img"
       aria-label="3-D view of the arm and the poses; drag to turn, wheel or pinch to zoom"
       data-view3d-canvas
     >
