@@ -26,6 +26,7 @@ const FLEET_VIEWERS: readonly Role[] = ['quality', 'engineer', 'admin'];
 export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/health', methods: { GET: 'public' } },
   { pattern: '/api/me', methods: { GET: 'signed-in' } },
+  { pattern: '/api/me/sign-out-everywhere', methods: { POST: 'signed-in' } },
   { pattern: '/api/invitations/[token]', methods: { GET: 'public', POST: 'public' } },
   { pattern: '/api/tokens', methods: { GET: 'signed-in', POST: 'signed-in' } },
   { pattern: '/api/tokens/[id]', methods: { DELETE: 'signed-in' } },
