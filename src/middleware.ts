@@ -1,4 +1,4 @@
-import type { APIContext } from 'astro';
+import type { APIContext, MiddlewareNext } from 'astro';
 import { defineMiddleware, sequence } from 'astro:middleware';
 import { getSession } from 'auth-astro/server';
 import { randomUUID } from 'node:crypto';
@@ -8,6 +8,7 @@ import { isServiceUnavailable, json } from './lib/server/http';
 import { log } from './lib/server/log';
 import { activeUserBySession, userByBearer } from './lib/server/users';
 import { startBackground } from './lib/server/background';
+import { BodyTooLarge, LIMITED_BY_ENDPOINT, bodyLimit, limitedStream, readCapped } from './lib/server/body-limit';
 
 const isApi = (path: string) => path === '/api' || path.startsWith('/api/');
 const isAuthRoute = (route: string) => route === '/api/auth/[...auth]';
@@ -15,6 +16,34 @@ const UNSAFE = new Set(['POST', 'PUT', 'PATCH', 'DELETE']);
 export const CLIENT_HEADER = 'x-offsetry-client-address';
 
 let configChecked = false;
+const DEFAULT_LIMIT_FOR_LOG = 1024 * 1024;
+const tooLarge = (limit: number) => json({ error: `Request body over ${limit} bytes; reading stopped there.`, errors: [{ field: 'body', message: `the body is larger than ${limit} bytes`, expected: `at most ${limit} bytes` }] }, 413, { connection: 'close' });
+
+/**
+ * Hand the request on with its body limited while it streams (see body-limit.ts): a Content-Length over
+ * the limit is refused unread; the sign-in callback's small body is read up to its limit; any other body is
+ * counted chunk by chunk as the endpoint reads it. The endpoint receives the limited request in place of
+ * the original (the same context object, as Astro's own sequence() does for rewrites); the route stays the
+ * one the guard checked.
+ */
+async function limitedNext(context: APIContext, next: MiddlewareNext): Promise<Response> {
+  const req = context.request;
+  if (req.method === 'GET' || req.method === 'HEAD' || !req.body || LIMITED_BY_ENDPOINT.has(context.routePattern)) return next();
+  const limit = bodyLimit(context.routePattern, req.method);
+  const declared = Number(req.headers.get('content-length') ?? 0);
+  if (declared > limit) return tooLarge(limit);
+  let body: BodyInit;
+  if (isAuthRoute(context.routePattern)) {
+    const bytes = await readCapped(req.body, limit);
+    if (!bytes) return tooLarge(limit);
+    body = bytes;
+  } else {
+    body = limitedStream(req.body, limit, () => (context.locals.bodyTooLarge = limit));
+  }
+  (context as { request: Request }).request = new Request(req.url, { method: req.method, headers: req.headers, body, signal: req.signal, duplex: 'half' } as RequestInit);
+  return next();
+}
+
 
 /**
  * The configuration check at first use, for deployments that start dist/server/entry.mjs directly rather than
@@ -59,8 +88,11 @@ const observe = defineMiddleware(async (context, next) => {
   let response: Response;
   try {
     response = await next();
+    if (context.locals.bodyTooLarge && response.status >= 400) response = tooLarge(context.locals.bodyTooLarge);
   } catch (err) {
-    if (isServiceUnavailable(err)) {
+    if (context.locals.bodyTooLarge || err instanceof BodyTooLarge || (err as { cause?: unknown })?.cause instanceof BodyTooLarge) {
+      response = tooLarge(context.locals.bodyTooLarge ?? DEFAULT_LIMIT_FOR_LOG);
+    } else if (isServiceUnavailable(err)) {
       log('warn', 'service unavailable', { requestId: context.locals.requestId, path: context.url.pathname, error: String(err) });
       response = json({ error: 'A backing service is unavailable; try again shortly.' }, 503, { 'retry-after': '5' });
     } else {
@@ -170,10 +202,10 @@ const guard = defineMiddleware(async (context, next) => {
   return response;
 });
 
-async function decide(context: APIContext, next: (path?: string) => Promise<Response>): Promise<Response> {
+async function decide(context: APIContext, next: MiddlewareNext): Promise<Response> {
   const route = context.routePattern;
   const shown = context.url.pathname;
-  if (isAuthRoute(route)) return next();
+  if (isAuthRoute(route)) return limitedNext(context, next);
   const user = context.locals.user;
   if (isApi(route) || (ERROR_PAGES.has(route) && isApi(servedPath(shown)))) {
     // Deny by default: an API route the table does not list (or nothing matched) is refused.
@@ -183,12 +215,12 @@ async function decide(context: APIContext, next: (path?: string) => Promise<Resp
     if (!access) {
       return json({ error: `Method ${context.request.method} is not allowed on ${shown}.` }, 405, { allow: Object.keys(rule.methods).join(', ') });
     }
-    if (access === 'public') return apiNext(context, next);
+    if (access === 'public') return apiNext(context, () => limitedNext(context, next));
     if (!user) return json({ error: 'Sign in or send an API token (Authorization: Bearer …).' }, 401);
     if (!allows(access, user.roles)) {
       return json({ error: `Your roles (${user.roles.join(', ')}) do not allow ${context.request.method} ${route}.`, allowedRoles: access }, 403);
     }
-    return apiNext(context, next);
+    return apiNext(context, () => limitedNext(context, next));
   }
   const access = ERROR_PAGES.has(route) ? 'public' : pageAccess(route);
   if (access === 'public') return next();

@@ -314,7 +314,8 @@ describe('path traversal', () => {
     const unit = await newUnit();
     const res = await cookie.technician.json('/api/sessions', { method: 'POST', body: uploadForm(unit.serial, name) });
     expect(res.status, JSON.stringify(res.body)).toBe(400);
-    expect(res.body.errors.find((e: { field?: string }) => e.field === 'file')?.message).toMatch(/looks like a path|no name/);
+    // A NUL inside the part header makes the whole form malformed to the multipart parser (busboy): refused as unreadable.
+    expect(res.body.errors.find((e: { field?: string }) => e.field === 'file')?.message ?? res.body.error).toMatch(/looks like a path|no name|could not be read/);
     const [n] = await db.select({ n: sql<number>`count(*)::int` }).from(sessions).where(eq(sessions.unitId, unit.id));
     expect(n!.n).toBe(0);
   });

@@ -88,7 +88,10 @@ describe('sessions end on the server', () => {
     const a = await signedIn(p.email, PASSWORD);
     const b = await signedIn(p.email, PASSWORD);
     const other = await signedIn(DEMO.quality);
-    const res = await a.json('/api/me/sign-out-everywhere', { method: 'POST' });
+    // Without the explicit confirmation nothing ends.
+    expect((await a.json('/api/me/sign-out-everywhere', { method: 'POST', json: {} })).status).toBe(400);
+    expect((await b.json('/api/me')).status).toBe(200);
+    const res = await a.json('/api/me/sign-out-everywhere', { method: 'POST', json: { confirm: true } });
     expect(res.status).toBe(200);
     expect(res.body.ended).toBeGreaterThanOrEqual(2);
     expect((await a.json('/api/me')).status).toBe(401);
