@@ -7,6 +7,7 @@
  * transaction fails the object is deleted again; if S3 fails no row is written.
  */
 import { CopyObjectCommand, PutObjectCommand } from '@aws-sdk/client-s3';
+import { cleanText, isCalendarDate } from '../shared/input';
 import { and, asc, count, desc, eq, sql } from 'drizzle-orm';
 import { createHash, randomUUID } from 'node:crypto';
 import { createReadStream, createWriteStream, type WriteStream } from 'node:fs';
@@ -54,7 +55,9 @@ const text = (field: string, max: number) =>
     .string()
     .trim()
     .max(max, `${field} is at most ${max} characters`)
-    .refine((s) => !CONTROL.test(s), `${field} contains control characters`);
+    .refine((s) => !CONTROL.test(s), `${field} contains control characters`)
+    // Bidi overrides, isolates and zero-width characters would reorder or hide text on screen: removed.
+    .overwrite((s) => cleanText(s, true));
 
 const today = () => new Date().toISOString().slice(0, 10);
 
@@ -69,10 +72,7 @@ export const sessionMetaSchema = z.strictObject({
     .string({ error: 'measuredOn is required (YYYY-MM-DD)' })
     .trim()
     .regex(/^\d{4}-\d{2}-\d{2}$/, 'measuredOn must be a date written YYYY-MM-DD')
-    .refine((s) => {
-      const d = new Date(`${s}T00:00:00Z`);
-      return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === s;
-    }, 'measuredOn is not a calendar date')
+    .refine((s) => isCalendarDate(s, '0001-01-01', '9999-12-31'), 'measuredOn is not a calendar date')
     .refine((s) => s >= '1990-01-01', 'measuredOn is before 1990')
     // One day of slack: the technician's time zone may be ahead of the server's.
     .refine((s) => s <= new Date(Date.now() + 86_400_000).toISOString().slice(0, 10), 'measuredOn is in the future'),
@@ -586,7 +586,8 @@ export async function storeSession(input: StoreSessionInput, database: Db = shar
         ambientC: input.meta.ambientC,
         target: input.meta.target,
         notes: input.meta.notes,
-        fileName: input.fileName,
+        // Shown on pages and in lists: without control or bidi characters (the file itself is kept as uploaded).
+        fileName: cleanText(input.fileName),
         fileKey: key,
         fileSha256: input.sha256,
         fileBytes: input.bytes,

@@ -1,6 +1,7 @@
 import { and, asc, count, eq, gt, isNull, sql } from 'drizzle-orm';
 import { z } from 'zod';
 import { apiTokens, invitations, loginAttempts, userSessions, users } from '../../db/schema';
+import { cleanText } from '../shared/input';
 import { ROLES, type Role } from '../shared/roles';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
@@ -146,7 +147,7 @@ export async function listUsers(database: Db = sharedDb()) {
 
 export const inviteSchema = z.object({
   email: z.email().max(200),
-  name: z.string().trim().min(1).max(200),
+  name: z.string().trim().overwrite((s) => cleanText(s)).min(1, 'name must not be empty').max(200),
   roles: z.array(z.enum(ROLES)).min(1, 'choose at least one role'),
 });
 
@@ -224,7 +225,7 @@ export const userPatchSchema = z
   .object({
     roles: z.array(z.enum(ROLES)).min(1, 'a user needs at least one role').optional(),
     active: z.boolean().optional(),
-    name: z.string().trim().min(1).max(200).optional(),
+    name: z.string().trim().overwrite((s) => cleanText(s)).min(1, 'name must not be empty').max(200).optional(),
   })
   .refine((v) => Object.keys(v).length > 0, 'nothing to change');
 
@@ -265,7 +266,7 @@ export async function upsertUserWithPassword(
 
 // ---------- API tokens ----------
 
-export const tokenCreateSchema = z.object({ name: z.string().trim().min(1).max(100) });
+export const tokenCreateSchema = z.object({ name: z.string().trim().overwrite((s) => cleanText(s)).min(1, 'name must not be empty').max(100) });
 
 export async function createApiToken(userId: string, name: string, database: Db = sharedDb()) {
   const { token, hash } = newToken('ofs');
