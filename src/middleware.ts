@@ -8,6 +8,7 @@ import { isServiceUnavailable, json } from './lib/server/http';
 import { log } from './lib/server/log';
 import { activeUserBySession, userByBearer } from './lib/server/users';
 import { startBackground } from './lib/server/background';
+import { harden } from './lib/server/security-headers';
 import { BodyTooLarge, LIMITED_BY_ENDPOINT, bodyLimit, limitedStream, readCapped } from './lib/server/body-limit';
 
 const isApi = (path: string) => path === '/api' || path.startsWith('/api/');
@@ -102,6 +103,7 @@ const observe = defineMiddleware(async (context, next) => {
         : new Response('Internal error. Request id: ' + context.locals.requestId, { status: 500 });
     }
   }
+  response = await harden(response);
   try {
     response.headers.set('x-request-id', context.locals.requestId);
   } catch {

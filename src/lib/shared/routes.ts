@@ -35,7 +35,8 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/admin/mail', methods: { GET: ['admin'] } },
   // Arm models, units, sessions (issue 4)
   { pattern: '/api/arm-models', methods: { GET: ENGINEERING, POST: MODEL_EDITORS } },
-  { pattern: '/api/arm-models/[id]', methods: { GET: [...ENGINEERING, 'service'], PUT: MODEL_EDITORS } },
+  // Geometry is read by the same roles on the page (/arm-models/…), in the model API and as a file.
+  { pattern: '/api/arm-models/[id]', methods: { GET: ENGINEERING, PUT: MODEL_EDITORS } },
   { pattern: '/api/arm-models/[id]/geometry', methods: { GET: ENGINEERING } },
   { pattern: '/api/units', methods: { GET: ALL, POST: ['technician', 'engineer', 'admin'] } },
   { pattern: '/api/units/[serial]', methods: { GET: ALL } },
