@@ -11,6 +11,7 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { fitSession, type FitOptions, type FitReport, type IterationInfo } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
+import { ENGINE_TASKS, type EngineTaskInput, type EngineTaskName } from './engine-tasks';
 import type { FitThreadInput, FitThreadMessage } from './fit-thread';
 import { log } from './log';
 
@@ -120,9 +121,44 @@ function startThread(code: string): Promise<Worker> {
 }
 
 async function inThread(code: string, run: EngineRun): Promise<FitReport> {
-  const worker = idle.pop() ?? (await startThread(code));
   const input: FitThreadInput = { nominal: run.nominal, poses: run.poses, options: run.options };
-  return new Promise<FitReport>((resolve, reject) => {
+  return (await onThread(code, input, run.onIteration, run.timeoutMs)) as FitReport;
+}
+
+// Request-driven tasks share the threads with fits but at most TASK_THREADS run at once; the rest wait
+// their turn, so a burst of heavy requests cannot start a thread each.
+const TASK_THREADS = Math.max(1, Number(process.env.OFFSETRY_TASK_THREADS ?? 2));
+let tasksRunning = 0;
+const taskQueue: (() => void)[] = [];
+
+/**
+ * Run a heavy engine call (ENGINE_TASKS) on a worker thread and resolve with its result; in-process only
+ * where threads cannot load the engine. Rejects with EngineInputError on bad input, as the call would.
+ */
+export async function runEngineTask<N extends EngineTaskName>(task: N, ...args: Parameters<(typeof ENGINE_TASKS)[N]>): Promise<ReturnType<(typeof ENGINE_TASKS)[N]>> {
+  const direct = () => (ENGINE_TASKS[task] as (...a: unknown[]) => ReturnType<(typeof ENGINE_TASKS)[N]>)(...args);
+  const code = bootstrap();
+  if (!code) return direct();
+  if (tasksRunning >= TASK_THREADS) await new Promise<void>((resolve) => taskQueue.push(resolve));
+  tasksRunning++;
+  try {
+    const input: EngineTaskInput<N> = { task, args };
+    return (await onThread(code, input, undefined, 5 * 60_000)) as ReturnType<(typeof ENGINE_TASKS)[N]>;
+  } catch (err) {
+    if (!(err instanceof ThreadDidNotStart)) throw err;
+    log('warn', 'engine threads unavailable; the task runs in-process', { task, error: err.message });
+    threadCode = null;
+    return direct();
+  } finally {
+    tasksRunning--;
+    taskQueue.shift()?.();
+  }
+}
+
+async function onThread(code: string, input: FitThreadInput | EngineTaskInput, onIteration: EngineRun['onIteration'], timeoutMs: number | undefined): Promise<unknown> {
+  const worker = idle.pop() ?? (await startThread(code));
+  const run = { onIteration, timeoutMs };
+  return new Promise<unknown>((resolve, reject) => {
     let settled = false;
     const finish = (fn: () => void, reusable: boolean) => {
       if (settled) return;
@@ -143,7 +179,7 @@ async function inThread(code: string, run: EngineRun): Promise<FitReport> {
     );
     const onMessage = (m: FitThreadMessage) => {
       if (m.type === 'iteration') run.onIteration?.(m);
-      else if (m.type === 'done') finish(() => resolve(m.report as FitReport), true);
+      else if (m.type === 'done') finish(() => resolve(m.report), true);
       else if (m.type === 'input-error') finish(() => reject(new EngineInputError(m.problems)), true);
       else if (m.type === 'error') finish(() => reject(new Error(m.message)), false);
     };

@@ -5,6 +5,7 @@
  */
 import { parentPort } from 'node:worker_threads';
 import { fitSession, type FitOptions } from '../engine/fit';
+import { ENGINE_TASKS, type EngineTaskInput } from './engine-tasks';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
 
 export interface FitThreadInput {
@@ -25,7 +26,17 @@ export type FitThreadMessage =
 const port = parentPort;
 if (port) {
   const post = (m: FitThreadMessage) => port.postMessage(m);
-  port.on('message', (input: FitThreadInput) => {
+  port.on('message', (input: FitThreadInput | EngineTaskInput) => {
+    if ('task' in input) {
+      // Other heavy engine work (pose plans, …): one call, its result posted back.
+      try {
+        post({ type: 'done', report: ENGINE_TASKS[input.task](...(input.args as [never, never])) });
+      } catch (err) {
+        if (err instanceof EngineInputError) post({ type: 'input-error', message: err.message, problems: err.problems });
+        else post({ type: 'error', message: String((err as Error)?.stack ?? err) });
+      }
+      return;
+    }
     try {
       const report = fitSession(input.nominal, input.poses, {
         ...input.options,

@@ -11,6 +11,7 @@ import { planPoses, type PoseSetQuality } from '../engine/planner';
 import { planToCsv } from '../engine/session-csv';
 import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine/types';
 import { audit } from './audit';
+import { runEngineTask } from './engine-runner';
 import type { FieldProblem } from './http';
 import { db as sharedDb, type Db } from './db';
 import { pageTotal, windowTotal } from './paging';
@@ -325,7 +326,8 @@ export async function posePlan(unit: UnitView, options: PosePlanOptions, databas
   const { geometry, source } = await unitPlanningGeometry(unit, database);
   let result: ReturnType<typeof planPoses>;
   try {
-    result = planPoses(geometry, { count: options.count, seed: options.seed, index: options.index });
+    // Hundreds of poses take seconds: planned on an engine thread, never on the request thread.
+    result = await runEngineTask('planPoses', geometry, { count: options.count, seed: options.seed, index: options.index });
   } catch (e) {
     if (e instanceof EngineInputError) return { ok: false, problems: e.problems };
     throw e;
