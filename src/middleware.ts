@@ -37,7 +37,7 @@ async function limitedNext(context: APIContext, next: MiddlewareNext): Promise<R
   if (isAuthRoute(context.routePattern)) {
     const bytes = await readCapped(req.body, limit);
     if (!bytes) return tooLarge(limit);
-    body = bytes;
+    body = bytes as Uint8Array<ArrayBuffer>;
   } else {
     body = limitedStream(req.body, limit, () => (context.locals.bodyTooLarge = limit));
   }

@@ -30,7 +30,8 @@ if (port) {
     if ('task' in input) {
       // Other heavy engine work (pose plans, …): one call, its result posted back.
       try {
-        post({ type: 'done', report: ENGINE_TASKS[input.task](...(input.args as [never, never])) });
+        const call = ENGINE_TASKS[input.task] as (...args: unknown[]) => unknown;
+        post({ type: 'done', report: call(...(input.args as unknown[])) });
       } catch (err) {
         if (err instanceof EngineInputError) post({ type: 'input-error', message: err.message, problems: err.problems });
         else post({ type: 'error', message: String((err as Error)?.stack ?? err) });

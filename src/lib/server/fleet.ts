@@ -18,6 +18,7 @@ import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics';
 import { armModelRevisions, armModels, fits, parameterSets, sessions, units, users } from '../../db/schema';
 import { jointRanges, workspaceDifference } from '../engine/workspace';
 import type { ArmGeometry, ParameterGroup } from '../engine/types';
+import { runEngineTask } from './engine-runner';
 import { db as sharedDb, type Db } from './db';
 import { mergedOrder, parameterValues } from './parameter-values';
 
@@ -164,6 +165,8 @@ export async function fleetStatistics(modelId: string, database: Db = sharedDb()
     });
     return { key: p.key, joint: p.joint, name: p.name, group: p.group, unit: p.unit, ...s, outside: flagged };
   });
+  // Every unit's position error over 1000 workspace samples: on an engine thread, in one task.
+  const positionErrors = await runEngineTask('positionErrors', perUnit.map((u) => ({ nominal: u.r.nominal, calibrated: u.r.calibrated })), POSITION_SAMPLES, POSITION_SEED);
   const fleetUnits: FleetUnit[] = perUnit.map((u, i) => ({
     unitId: u.r.unitId,
     serial: u.r.serial,
@@ -176,7 +179,7 @@ export async function fleetStatistics(modelId: string, database: Db = sharedDb()
     deviations: u.deviations,
     sigmas: sigmas[i]!,
     outside: outsideKeys[i]!,
-    positionError: positionError(u.r.nominal, u.r.calibrated),
+    positionError: positionErrors[i]!,
   }));
   const errs = fleetUnits.map((u) => u.positionError);
   return {

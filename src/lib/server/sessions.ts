@@ -17,8 +17,8 @@ import { join } from 'node:path';
 import type { Readable } from 'node:stream';
 import { z } from 'zod';
 import { armModelRevisions, armModels, sessionPoses as poseRows, sessions, units, users } from '../../db/schema';
-import { checkGeometry } from '../engine/fit';
 import { poseSetQuality, type PoseSetQuality } from '../engine/planner';
+import { runEngineTask } from './engine-runner';
 import { parseSessionCsv, type ParsedSession } from '../engine/session-csv';
 import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine/types';
 import { audit } from './audit';
@@ -862,7 +862,8 @@ export async function sessionCheck(id: string, database: Db = sharedDb()): Promi
   if (!geometry) return undefined;
   const poses = await allSessionPoses(id, database);
   try {
-    const report = checkGeometry(geometry, poses);
+    // Registration and residuals over every pose: on an engine thread, not the request thread.
+    const report = await runEngineTask('checkGeometry', geometry, poses);
     return { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })) };
   } catch (e) {
     if (!(e instanceof EngineInputError)) throw e;
