@@ -102,12 +102,22 @@ export async function* readMultipart(body: AsyncIterable<Uint8Array>, boundary: 
   });
   parser.on('partsLimit', () => fail(new MultipartError(`the form has more than ${limits.parts ?? 100} parts`)));
   parser.on('error', (e: Error) => fail(e));
-  parser.on('close', () => push({ kind: 'end' }));
+  let finished = false;
+  parser.on('close', () => {
+    // A normal end of the form (not our own destroy() after the consumer stopped).
+    if (!stopped && !failed) finished = true;
+    push({ kind: 'end' });
+  });
 
   // Feed the body in, waiting whenever busboy (or a file stream the consumer has not read yet) is full.
   const pump = (async () => {
     for await (const chunk of body) {
-      if (stopped || failed) return;
+      // After the closing boundary the rest (an epilogue, the end of the stream) is read and dropped:
+      // leaving the loop early would cancel the request body, and with it the connection the answer
+      // still has to go out on.
+      if (failed) return;
+      if (finished) continue;
+      if (stopped) return;
       if (!parser.write(chunk)) await new Promise<void>((resolve) => {
         const go = () => {
           parser.off('drain', go);
@@ -120,7 +130,7 @@ export async function* readMultipart(body: AsyncIterable<Uint8Array>, boundary: 
         parser.on('error', go);
       });
     }
-    if (!stopped && !failed) parser.end();
+    if (!stopped && !failed && !finished) parser.end();
   })().catch((e: Error) => {
     // The body's own error (e.g. a size cap) is the caller's to see as it is.
     failed ??= e;
