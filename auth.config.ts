@@ -1,7 +1,8 @@
 import Credentials from '@auth/core/providers/credentials';
 import { CredentialsSignin } from '@auth/core/errors';
 import { defineConfig } from 'auth-astro';
-import { authenticate } from './src/lib/server/users';
+import { authenticate, endSession, startSession } from './src/lib/server/users';
+import { safeNextPath } from './src/lib/shared/safe-redirect';
 
 class RateLimited extends CredentialsSignin {
   code = 'rate_limited';
@@ -31,15 +32,24 @@ export default defineConfig({
           if (result.reason === 'rate-limited') throw new RateLimited();
           return null;
         }
-        return { id: result.user.id, email: result.user.email, name: result.user.name, roles: result.user.roles };
+        // A server-side session row: the cookie names it, every request checks it, sign-out ends it.
+        const sid = await startSession(result.user.id);
+        return { id: result.user.id, email: result.user.email, name: result.user.name, roles: result.user.roles, sid };
       },
     }),
   ],
   callbacks: {
+    // After sign-in or sign-out Auth.js follows callbackUrl: only to a path on this origin.
+    redirect({ url, baseUrl }) {
+      const origin = new URL(baseUrl).origin;
+      const path = url.startsWith(origin + '/') ? url.slice(origin.length) : url;
+      return origin + safeNextPath(path);
+    },
     jwt({ token, user }) {
       if (user) {
         token.uid = user.id;
         token.roles = (user as { roles?: string[] }).roles ?? [];
+        token.sid = (user as { sid?: string }).sid;
       }
       return token;
     },
@@ -47,7 +57,14 @@ export default defineConfig({
       const u = session.user as unknown as Record<string, unknown>;
       u.id = token.uid;
       u.roles = token.roles;
+      u.sid = token.sid;
       return session;
+    },
+  },
+  events: {
+    async signOut(message) {
+      const sid = 'token' in message ? (message.token?.sid as string | undefined) : undefined;
+      if (sid) await endSession(sid, 'sign-out');
     },
   },
 });

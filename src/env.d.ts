@@ -6,5 +6,7 @@ declare namespace App {
     user?: import('./lib/server/users').CurrentUser;
     /** Correlates a request's log lines and its response (x-request-id). */
     requestId: string;
+    /** Set when the request body passed its route's limit while streaming (the answer becomes 413). */
+    bodyTooLarge?: number;
   }
 }

@@ -1,20 +1,50 @@
-import type { APIContext } from 'astro';
+import type { APIContext, MiddlewareNext } from 'astro';
 import { defineMiddleware, sequence } from 'astro:middleware';
 import { getSession } from 'auth-astro/server';
 import { randomUUID } from 'node:crypto';
-import { allows, matchApiRoute, pageAccess, type Method } from './lib/shared/routes';
+import { allows, API_ROUTES, pageAccess, type Method } from './lib/shared/routes';
 import { config, configProblems } from './lib/server/config';
 import { isServiceUnavailable, json } from './lib/server/http';
 import { log } from './lib/server/log';
-import { activeUserById, userByBearer } from './lib/server/users';
+import { activeUserBySession, userByBearer } from './lib/server/users';
 import { startBackground } from './lib/server/background';
+import { harden } from './lib/server/security-headers';
+import { BodyTooLarge, LIMITED_BY_ENDPOINT, bodyLimit, limitedStream, readCapped } from './lib/server/body-limit';
 
 const isApi = (path: string) => path === '/api' || path.startsWith('/api/');
-const isAuthRoute = (path: string) => path.startsWith('/api/auth/');
+const isAuthRoute = (route: string) => route === '/api/auth/[...auth]';
 const UNSAFE = new Set(['POST', 'PUT', 'PATCH', 'DELETE']);
 export const CLIENT_HEADER = 'x-offsetry-client-address';
 
 let configChecked = false;
+const DEFAULT_LIMIT_FOR_LOG = 1024 * 1024;
+const tooLarge = (limit: number) => json({ error: `Request body over ${limit} bytes; reading stopped there.`, errors: [{ field: 'body', message: `the body is larger than ${limit} bytes`, expected: `at most ${limit} bytes` }] }, 413, { connection: 'close' });
+
+/**
+ * Hand the request on with its body limited while it streams (see body-limit.ts): a Content-Length over
+ * the limit is refused unread; the sign-in callback's small body is read up to its limit; any other body is
+ * counted chunk by chunk as the endpoint reads it. The endpoint receives the limited request in place of
+ * the original (the same context object, as Astro's own sequence() does for rewrites); the route stays the
+ * one the guard checked.
+ */
+async function limitedNext(context: APIContext, next: MiddlewareNext): Promise<Response> {
+  const req = context.request;
+  if (req.method === 'GET' || req.method === 'HEAD' || !req.body || LIMITED_BY_ENDPOINT.has(context.routePattern)) return next();
+  const limit = bodyLimit(context.routePattern, req.method);
+  const declared = Number(req.headers.get('content-length') ?? 0);
+  if (declared > limit) return tooLarge(limit);
+  let body: BodyInit;
+  if (isAuthRoute(context.routePattern)) {
+    const bytes = await readCapped(req.body, limit);
+    if (!bytes) return tooLarge(limit);
+    body = bytes as Uint8Array<ArrayBuffer>;
+  } else {
+    body = limitedStream(req.body, limit, () => (context.locals.bodyTooLarge = limit));
+  }
+  (context as { request: Request }).request = new Request(req.url, { method: req.method, headers: req.headers, body, signal: req.signal, duplex: 'half' } as RequestInit);
+  return next();
+}
+
 
 /**
  * The configuration check at first use, for deployments that start dist/server/entry.mjs directly rather than
@@ -59,8 +89,11 @@ const observe = defineMiddleware(async (context, next) => {
   let response: Response;
   try {
     response = await next();
+    if (context.locals.bodyTooLarge && response.status >= 400) response = tooLarge(context.locals.bodyTooLarge);
   } catch (err) {
-    if (isServiceUnavailable(err)) {
+    if (context.locals.bodyTooLarge || err instanceof BodyTooLarge || (err as { cause?: unknown })?.cause instanceof BodyTooLarge) {
+      response = tooLarge(context.locals.bodyTooLarge ?? DEFAULT_LIMIT_FOR_LOG);
+    } else if (isServiceUnavailable(err)) {
       log('warn', 'service unavailable', { requestId: context.locals.requestId, path: context.url.pathname, error: String(err) });
       response = json({ error: 'A backing service is unavailable; try again shortly.' }, 503, { 'retry-after': '5' });
     } else {
@@ -70,6 +103,7 @@ const observe = defineMiddleware(async (context, next) => {
         : new Response('Internal error. Request id: ' + context.locals.requestId, { status: 500 });
     }
   }
+  response = await harden(response);
   try {
     response.headers.set('x-request-id', context.locals.requestId);
   } catch {
@@ -103,7 +137,7 @@ const sameOrigin = defineMiddleware(async (context, next) => {
 
 /** Resolve the user once: bearer token first, else the Auth.js session cookie. */
 const resolveUser = defineMiddleware(async (context, next) => {
-  if (isAuthRoute(context.url.pathname)) return next();
+  if (isAuthRoute(context.routePattern)) return next();
   const authz = context.request.headers.get('authorization');
   if (authz?.startsWith('Bearer ')) {
     context.locals.user = await userByBearer(authz.slice(7).trim());
@@ -111,8 +145,10 @@ const resolveUser = defineMiddleware(async (context, next) => {
     return next();
   }
   const session = await getSession(context.request);
-  const id = (session?.user as { id?: string } | undefined)?.id;
-  if (id) context.locals.user = await activeUserById(id);
+  const who = session?.user as { id?: string; sid?: string } | undefined;
+  // The cookie alone is not enough: its session row must still be live (sign-out, deactivation and role
+  // changes end it on the server).
+  if (who?.id && who.sid) context.locals.user = await activeUserBySession(who.id, who.sid);
   return next();
 });
 
@@ -136,33 +172,66 @@ async function apiNext(context: APIContext, next: () => Promise<Response>) {
   return response;
 }
 
-/** Enforce the access table for every API route and page. */
+/**
+ * The path the router served, in the router's own form: Astro strips the base (one leading "/"), decodes
+ * percent-encodings and matches case-sensitively, so "//api/…", "/%61pi/…" and "/api/./…" reach the endpoint
+ * of "/api/…". The rule is therefore looked up by the route Astro matched (context.routePattern), never by
+ * the raw URL; this function only decides whether an unmatched request should get a JSON answer.
+ */
+export function servedPath(pathname: string): string {
+  let p = pathname;
+  try {
+    p = decodeURI(p);
+  } catch {
+    // Astro refuses undecodable paths itself (400).
+  }
+  return '/' + p.replace(/^\/+/, '');
+}
+
+const ERROR_PAGES = new Set(['/404', '/500']);
+
+/**
+ * Enforce the access table for every API route and page, chosen by the route the router matched. The
+ * response names that route (x-offsetry-route), so a client or test can see which rule answered.
+ */
 const guard = defineMiddleware(async (context, next) => {
-  const path = context.url.pathname;
-  if (isAuthRoute(path)) return next();
+  const response = await decide(context, next);
+  try {
+    response.headers.set('x-offsetry-route', context.routePattern);
+  } catch {
+    // Immutable headers (a redirect made by Response.redirect).
+  }
+  return response;
+});
+
+async function decide(context: APIContext, next: MiddlewareNext): Promise<Response> {
+  const route = context.routePattern;
+  const shown = context.url.pathname;
+  if (isAuthRoute(route)) return limitedNext(context, next);
   const user = context.locals.user;
-  if (isApi(path)) {
-    const rule = matchApiRoute(path);
-    if (!rule) return json({ error: `No API route ${path}.` }, 404);
+  if (isApi(route) || (ERROR_PAGES.has(route) && isApi(servedPath(shown)))) {
+    // Deny by default: an API route the table does not list (or nothing matched) is refused.
+    const rule = API_ROUTES.find((r) => r.pattern === route);
+    if (!rule) return json({ error: `No API route ${shown}.` }, 404);
     const access = rule.methods[context.request.method as Method];
     if (!access) {
-      return json({ error: `Method ${context.request.method} is not allowed on ${path}.` }, 405, { allow: Object.keys(rule.methods).join(', ') });
+      return json({ error: `Method ${context.request.method} is not allowed on ${shown}.` }, 405, { allow: Object.keys(rule.methods).join(', ') });
     }
-    if (access === 'public') return apiNext(context, next);
+    if (access === 'public') return apiNext(context, () => limitedNext(context, next));
     if (!user) return json({ error: 'Sign in or send an API token (Authorization: Bearer …).' }, 401);
     if (!allows(access, user.roles)) {
-      return json({ error: `Your roles (${user.roles.join(', ')}) do not allow ${context.request.method} ${path}.`, allowedRoles: access }, 403);
+      return json({ error: `Your roles (${user.roles.join(', ')}) do not allow ${context.request.method} ${route}.`, allowedRoles: access }, 403);
     }
-    return apiNext(context, next);
+    return apiNext(context, () => limitedNext(context, next));
   }
-  const access = pageAccess(path);
+  const access = ERROR_PAGES.has(route) ? 'public' : pageAccess(route);
   if (access === 'public') return next();
   if (!user) {
-    const nextUrl = path + context.url.search;
+    const nextUrl = servedPath(shown) + context.url.search;
     return context.redirect(`/signin?next=${encodeURIComponent(nextUrl)}`, 303);
   }
   if (!allows(access, user.roles)) return next('/forbidden');
   return next();
-});
+}
 
 export const onRequest = sequence(observe, sameOrigin, resolveUser, guard);

@@ -97,7 +97,7 @@ describe('invitation by e-mail', () => {
 });
 
 describe('administering people', () => {
-  it('changes roles and deactivates a user, with immediate effect on an existing session', async () => {
+  it('changes roles and deactivates a user, ending the existing sessions at once', async () => {
     const admin = await signedIn(DEMO.admin);
     const email = `${uniq('deact')}@example.com`.toLowerCase();
     await admin.json('/api/admin/users', { method: 'POST', json: { email, name: 'Short Stay', roles: ['technician'] } });
@@ -110,10 +110,13 @@ describe('administering people', () => {
     const list = await admin.json('/api/admin/users');
     const id = list.body.users.find((u: { email: string }) => u.email === email).id;
     expect((await admin.json(`/api/admin/users/${id}`, { method: 'PATCH', json: { roles: ['technician', 'admin'] } })).status).toBe(200);
-    expect((await person.json('/api/admin/users')).status).toBe(200);
+    // A role change ends the sessions signed in under the old roles; signing in again carries the new ones.
+    expect((await person.json('/api/me')).status).toBe(401);
+    const again = await signedIn(email, 'temporary password 1');
+    expect((await again.json('/api/admin/users')).status).toBe(200);
 
     expect((await admin.json(`/api/admin/users/${id}`, { method: 'PATCH', json: { active: false } })).status).toBe(200);
-    expect((await person.json('/api/me')).status).toBe(401);
+    expect((await again.json('/api/me')).status).toBe(401);
     expect(await new Client().signIn(email, 'temporary password 1')).toMatch(/error=/);
   });
 

@@ -25,8 +25,8 @@ afterAll(async () => {
 });
 
 /** A fitted fit of the fixture's session, run by `runner`. */
-async function fitted(runner: Client, fx: Fixture): Promise<string> {
-  const res = await runner.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: { groups: ['lengths', 'twists', 'offsets', 'base', 'tool'] } });
+async function fitted(runner: Client, fx: Fixture, settings: Record<string, unknown> = {}): Promise<string> {
+  const res = await runner.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: { groups: ['lengths', 'twists', 'offsets', 'base', 'tool'], ...settings } });
   expect(res.status).toBe(202);
   const { fit } = await waitForFit(runner, res.body.id);
   expect(fit.state, fit.error ?? '').toBe('fitted');
@@ -181,7 +181,8 @@ describe('concurrent approvals', () => {
 
   it('approvals of two fits of one unit at once give versions 1 and 2 with one current', async () => {
     const fx = await createFixture({ count: 40, seed: 41 });
-    const [a, b] = await Promise.all([fitted(technician, fx), fitted(technician, fx)]);
+    // Different seeds: identical settings started at once would be one fit.
+    const [a, b] = await Promise.all([fitted(technician, fx), fitted(technician, fx, { seed: 2 })]);
     await post(technician, a, 'submit');
     await post(technician, b, 'submit');
     const results = await Promise.all([post(engineer, a, 'approve'), post(engineer2, b, 'approve')]);

@@ -278,7 +278,8 @@ describe('uploads over the size limit are refused before the body is read', () =
     expect(JSON.parse(res.body).error).toMatch(/larger than the limit of 64 KiB/);
     // The whole body is capped at the limit plus a 256 KiB allowance for the form around the file
     // (src/lib/server/sessions.ts); the answer comes there, while most of the 4 MiB is still to come.
-    expect(res.sentWhenAnswered).toBeLessThan(64 * 1024 + 256 * 1024 + 64 * 1024);
+    // busboy reads one buffer ahead of the old reader: 128 KiB of slack instead of 64.
+    expect(res.sentWhenAnswered).toBeLessThan(64 * 1024 + 256 * 1024 + 64 * 1024 + 64 * 1024);
     const [n] = await db.select({ n: sql<number>`count(*)::int` }).from(sessions).where(eq(sessions.unitId, unit.id));
     expect(n!.n).toBe(0);
   });
@@ -314,7 +315,8 @@ describe('path traversal', () => {
     const unit = await newUnit();
     const res = await cookie.technician.json('/api/sessions', { method: 'POST', body: uploadForm(unit.serial, name) });
     expect(res.status, JSON.stringify(res.body)).toBe(400);
-    expect(res.body.errors.find((e: { field?: string }) => e.field === 'file')?.message).toMatch(/looks like a path|no name/);
+    // A NUL inside the part header makes the whole form malformed to the multipart parser (busboy): refused as unreadable.
+    expect(res.body.errors.find((e: { field?: string }) => e.field === 'file')?.message ?? res.body.error).toMatch(/looks like a path|no name|could not be read/);
     const [n] = await db.select({ n: sql<number>`count(*)::int` }).from(sessions).where(eq(sessions.unitId, unit.id));
     expect(n!.n).toBe(0);
   });

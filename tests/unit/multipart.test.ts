@@ -65,6 +65,21 @@ describe('readMultipart', () => {
     await expect(collect(bytes.subarray(0, 50_000), type, 4096)).rejects.toBeInstanceOf(MultipartError);
   });
 
+  it('refuses a form with more parts than the limit instead of reading them all', async () => {
+    const form = new FormData();
+    for (let k = 0; k < 500; k++) form.append(`f${k}`, 'x');
+    const { bytes, type } = await encode(form);
+    await expect(collect(bytes, type, 4096)).rejects.toThrow(/more than 100 parts/);
+  });
+
+  it('never holds a text field longer than the limit (it arrives cut, one byte over, for the caller to refuse)', async () => {
+    const form = new FormData();
+    form.append('notes', 'n'.repeat(5 * 1024 * 1024));
+    const { bytes, type } = await encode(form);
+    const [part] = await collect(bytes, type, 65536);
+    expect(part!.value.length).toBe(64 * 1024 + 2);
+  });
+
   it('finds the boundary in quoted and plain content types only for form-data', () => {
     expect(multipartBoundary('multipart/form-data; boundary="ab cd"')).toBe('ab cd');
     expect(multipartBoundary('multipart/form-data; charset=utf-8; boundary=XyZ')).toBe('XyZ');

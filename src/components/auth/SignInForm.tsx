@@ -1,4 +1,5 @@
 import { useEffect, useState, type FormEvent } from 'react';
+import { safeNextPath } from '../../lib/shared/safe-redirect';
 
 /** Posts credentials to Auth.js (with its CSRF token) and goes to `next` on success. */
 export default function SignInForm({ next, initialError }: { next: string; initialError?: string }) {
@@ -37,7 +38,7 @@ export default function SignInForm({ next, initialError }: { next: string; initi
         setBusy(false);
         return;
       }
-      location.href = next;
+      location.href = safeNextPath(next);
     } catch {
       setError('The server could not be reached. Check the connection and try again.');
       setBusy(false);

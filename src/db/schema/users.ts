@@ -56,3 +56,21 @@ export const apiTokens = pgTable('api_tokens', {
   lastUsedAt: timestamp({ withTimezone: true }),
   revokedAt: timestamp({ withTimezone: true }),
 });
+
+/**
+ * Browser sign-ins, one row each. The session cookie (a JWT) carries the row's id, and every request checks
+ * the row: sign-out, "sign out everywhere", deactivation, a role change and a new password end the rows, and
+ * an ended row never works again, whatever the cookie says.
+ */
+export const userSessions = pgTable(
+  'user_sessions',
+  {
+    id: id(),
+    userId: uuid().notNull().references(() => users.id, { onDelete: 'cascade' }),
+    createdAt: createdAt(),
+    endedAt: timestamp({ withTimezone: true }),
+    /** Why it ended: sign-out, everywhere, deactivated, roles, password. */
+    endedBecause: text(),
+  },
+  (t) => [index().on(t.userId)],
+);

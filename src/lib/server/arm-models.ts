@@ -4,6 +4,7 @@
  * stay readable (and exportable) for ever.
  */
 import { and, asc, count, desc, eq, inArray, sql } from 'drizzle-orm';
+import { MAX_JSON_DEPTH, jsonDepth } from '../shared/input';
 import { armModelRevisions, armModels, sessions, units } from '../../db/schema';
 import { parseGeometry, serializeGeometry } from '../engine/geometry';
 import { EngineInputError, type ArmGeometry } from '../engine/types';
@@ -101,6 +102,7 @@ export function parseUpdateBody(text: string, fileName = 'request body'): Parsed
 
 function parseJsonText(text: string, fileName: string): Parsed<unknown> {
   if (!text.trim()) return { ok: false, error: 'The request body is empty.', issues: [{ message: 'expected a JSON object' }] };
+  if (jsonDepth(text) > MAX_JSON_DEPTH) return { ok: false, error: 'The request body nests too deeply.', issues: [{ message: `arrays and objects nest more than ${MAX_JSON_DEPTH} levels deep` }] };
   try {
     return { ok: true, value: JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text) };
   } catch {

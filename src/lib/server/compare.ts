@@ -7,9 +7,10 @@
  */
 import { and, eq } from 'drizzle-orm';
 import { armModelRevisions, fits, parameterSets, units } from '../../db/schema';
-import { jointRanges, workspaceDifference, type WorkspaceDifference } from '../engine/workspace';
+import type { WorkspaceDifference } from '../engine/workspace';
 import { geometryToVector, parameterLayout, toReportUnit } from '../engine/parameters';
 import type { ArmGeometry } from '../engine/types';
+import { runEngineTask } from './engine-runner';
 import { db as sharedDb, type Db } from './db';
 import { isUuid } from './http';
 import { fitLabel } from '../shared/fit-label';
@@ -132,7 +133,8 @@ export async function compareForUnit(
   if (a.geometry.joints.length !== b.geometry.joints.length) {
     return { ok: false, status: 400, error: 'The two geometries have different joint counts.', errors: [{ field: 'b', message: `${b.geometry.joints.length} joints against ${a.geometry.joints.length}` }] };
   }
-  const workspace = workspaceDifference(a.geometry, b.geometry, jointRanges(unit.nominal), options);
+  // Thousands of forward-kinematics samples: on an engine thread, not the request thread.
+  const workspace = await runEngineTask('compareWorkspace', a.geometry, b.geometry, unit.nominal as ArmGeometry, options);
   const strip = ({ geometry: _g, standardErrors: _s, ...rest }: GeometryRef) => rest;
   return { ok: true, a: strip(a), b: strip(b), parameters: parameterDifferences(a, b), workspace };
 }

@@ -11,7 +11,7 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { fitSession, type FitOptions, type FitReport, type IterationInfo } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
-import { runTask, type EngineTaskInput } from './engine-tasks';
+import { ENGINE_TASKS, type EngineTaskInput, type EngineTaskName } from './engine-tasks';
 import type { FitThreadInput, FitThreadMessage } from './fit-thread';
 import type { FleetComputeInput, FleetComputeResult } from './fleet-compute';
 import type { WorkspaceDifference } from '../engine/workspace';
@@ -123,9 +123,44 @@ function startThread(code: string): Promise<Worker> {
 }
 
 async function inThread(code: string, run: EngineRun): Promise<FitReport> {
-  const worker = idle.pop() ?? (await startThread(code));
   const input: FitThreadInput = { nominal: run.nominal, poses: run.poses, options: run.options };
-  return new Promise<FitReport>((resolve, reject) => {
+  return (await onThread(code, input, run.onIteration, run.timeoutMs)) as FitReport;
+}
+
+// Request-driven tasks share the threads with fits but at most TASK_THREADS run at once; the rest wait
+// their turn, so a burst of heavy requests cannot start a thread each.
+const TASK_THREADS = Math.max(1, Number(process.env.OFFSETRY_TASK_THREADS ?? 2));
+let tasksRunning = 0;
+const taskQueue: (() => void)[] = [];
+
+/**
+ * Run a heavy engine call (ENGINE_TASKS) on a worker thread and resolve with its result; in-process only
+ * where threads cannot load the engine. Rejects with EngineInputError on bad input, as the call would.
+ */
+export async function runEngineTask<N extends EngineTaskName>(task: N, ...args: Parameters<(typeof ENGINE_TASKS)[N]>): Promise<ReturnType<(typeof ENGINE_TASKS)[N]>> {
+  const direct = () => (ENGINE_TASKS[task] as (...a: unknown[]) => ReturnType<(typeof ENGINE_TASKS)[N]>)(...args);
+  const code = bootstrap();
+  if (!code) return direct();
+  if (tasksRunning >= TASK_THREADS) await new Promise<void>((resolve) => taskQueue.push(resolve));
+  tasksRunning++;
+  try {
+    const input: EngineTaskInput<N> = { task, args };
+    return (await onThread(code, input, undefined, 5 * 60_000)) as ReturnType<(typeof ENGINE_TASKS)[N]>;
+  } catch (err) {
+    if (!(err instanceof ThreadDidNotStart)) throw err;
+    log('warn', 'engine threads unavailable; the task runs in-process', { task, error: err.message });
+    threadCode = null;
+    return direct();
+  } finally {
+    tasksRunning--;
+    taskQueue.shift()?.();
+  }
+}
+
+async function onThread(code: string, input: FitThreadInput | EngineTaskInput, onIteration: EngineRun['onIteration'], timeoutMs: number | undefined): Promise<unknown> {
+  const worker = idle.pop() ?? (await startThread(code));
+  const run = { onIteration, timeoutMs };
+  return new Promise<unknown>((resolve, reject) => {
     let settled = false;
     const finish = (fn: () => void, reusable: boolean) => {
       if (settled) return;
@@ -146,7 +181,7 @@ async function inThread(code: string, run: EngineRun): Promise<FitReport> {
     );
     const onMessage = (m: FitThreadMessage) => {
       if (m.type === 'iteration') run.onIteration?.(m);
-      else if (m.type === 'done') finish(() => resolve(m.report as FitReport), true);
+      else if (m.type === 'done') finish(() => resolve(m.report), true);
       else if (m.type === 'input-error') finish(() => reject(new EngineInputError(m.problems)), true);
       else if (m.type === 'error') finish(() => reject(new Error(m.message)), false);
     };
@@ -168,46 +203,10 @@ async function inThread(code: string, run: EngineRun): Promise<FitReport> {
  * fits: the judgement of every unit and the position errors grow with the fleet, the page must not.
  */
 export async function runFleetTask(input: FleetComputeInput): Promise<FleetComputeResult> {
-  return (await runEngineTask({ task: 'fleet', input })) as FleetComputeResult;
+  return runEngineTask('computeFleet', input);
 }
 
 /** Workspace position difference of two geometries (engine workspaceDifference) off the caller's thread. */
-export async function runWorkspaceDifference(input: Extract<EngineTaskInput, { task: 'workspace' }>['input']): Promise<WorkspaceDifference> {
-  return (await runEngineTask({ task: 'workspace', input })) as WorkspaceDifference;
-}
-
-async function runEngineTask(task: EngineTaskInput, timeoutMs = 120_000): Promise<unknown> {
-  const code = bootstrap();
-  if (!code) return runTask(task);
-  let worker: Worker;
-  try {
-    worker = idle.pop() ?? (await startThread(code));
-  } catch (err) {
-    if (!(err instanceof ThreadDidNotStart)) throw err;
-    log('warn', 'engine threads unavailable; statistics run in-process', { error: err.message });
-    threadCode = null;
-    return runTask(task);
-  }
-  return new Promise<unknown>((resolve, reject) => {
-    const finish = (fn: () => void, reusable: boolean) => {
-      clearTimeout(timer);
-      worker.off('message', onMessage);
-      worker.off('error', onError);
-      if (reusable && idle.length < 8) {
-        worker.unref();
-        idle.push(worker);
-      } else void worker.terminate();
-      fn();
-    };
-    const timer = setTimeout(() => finish(() => reject(new Error('the fleet statistics did not finish in time')), false), timeoutMs);
-    const onMessage = (m: FitThreadMessage) => {
-      if (m.type === 'task-done') finish(() => resolve(m.result), true);
-      else if (m.type === 'error') finish(() => reject(new Error(m.message)), false);
-    };
-    const onError = (err: Error) => finish(() => reject(err), false);
-    worker.on('message', onMessage);
-    worker.on('error', onError);
-    worker.ref();
-    worker.postMessage(task);
-  });
+export async function runWorkspaceDifference(input: { a: ArmGeometry; b: ArmGeometry; ranges: [number, number][]; samples: number; seed: number }): Promise<WorkspaceDifference> {
+  return runEngineTask('workspaceDifference', input.a, input.b, input.ranges, { samples: input.samples, seed: input.seed });
 }

@@ -1,16 +1,39 @@
 /**
- * Engine work other than fits that runs in the engine's worker thread (src/lib/server/fit-thread.ts):
- * one named task in, one answer out. Kept apart from fit-thread.ts, whose import starts the thread side.
+ * Heavy engine calls that requests ask for (besides fits), run in the engine's worker threads so the
+ * request thread stays free: each entry takes and returns plain, structured-cloneable data.
  */
+import { checkGeometry } from '../engine/fit';
+import { planPoses } from '../engine/planner';
 import type { ArmGeometry } from '../engine/types';
-import { workspaceDifference } from '../engine/workspace';
-import { computeFleet, type FleetComputeInput } from './fleet-compute';
+import { jointRanges, workspaceDifference } from '../engine/workspace';
+import { computeFleet } from './fleet-compute';
 
-export type EngineTaskInput =
-  | { task: 'fleet'; input: FleetComputeInput }
-  | { task: 'workspace'; input: { a: ArmGeometry; b: ArmGeometry; ranges: [number, number][]; samples: number; seed: number } };
+/** Predicted position error of each nominal against its calibrated geometry (the fleet page's column). */
+function positionErrors(pairs: { nominal: ArmGeometry; calibrated: ArmGeometry }[], samples: number, seed: number) {
+  return pairs.map((p) => {
+    const d = workspaceDifference(p.nominal, p.calibrated, jointRanges(p.nominal), { samples, seed });
+    return { maxMm: d.maxMm, rmsMm: d.rmsMm };
+  });
+}
 
-export function runTask(t: EngineTaskInput): unknown {
-  if (t.task === 'fleet') return computeFleet(t.input);
-  return workspaceDifference(t.input.a, t.input.b, t.input.ranges, { samples: t.input.samples, seed: t.input.seed });
+/** Two geometries over the workspace of `nominal`'s joint ranges (the comparison page). */
+function compareWorkspace(a: ArmGeometry, b: ArmGeometry, nominal: ArmGeometry, options: Parameters<typeof workspaceDifference>[3]) {
+  return workspaceDifference(a, b, jointRanges(nominal), options);
+}
+
+export const ENGINE_TASKS = {
+  planPoses,
+  checkGeometry,
+  positionErrors,
+  compareWorkspace,
+  /** Fleet statistics: every unit's judgement and position error (src/lib/server/fleet-compute.ts). */
+  computeFleet,
+  workspaceDifference,
+} as const;
+
+export type EngineTaskName = keyof typeof ENGINE_TASKS;
+
+export interface EngineTaskInput<N extends EngineTaskName = EngineTaskName> {
+  task: N;
+  args: Parameters<(typeof ENGINE_TASKS)[N]>;
 }

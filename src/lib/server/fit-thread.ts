@@ -5,8 +5,8 @@
  */
 import { parentPort } from 'node:worker_threads';
 import { fitSession, type FitOptions } from '../engine/fit';
+import { ENGINE_TASKS, type EngineTaskInput } from './engine-tasks';
 import { EngineInputError, type ArmGeometry, type SessionPose } from '../engine/types';
-import { runTask, type EngineTaskInput } from './engine-tasks';
 
 export interface FitThreadInput {
   nominal: ArmGeometry;
@@ -17,7 +17,6 @@ export interface FitThreadInput {
 export type { EngineTaskInput } from './engine-tasks';
 
 export type FitThreadMessage =
-  | { type: 'task-done'; result: unknown }
   | { type: 'ready' }
   | { type: 'iteration'; iteration: number; cost: number; rmsMm: number }
   | { type: 'done'; report: unknown }
@@ -31,10 +30,13 @@ if (port) {
   const post = (m: FitThreadMessage) => port.postMessage(m);
   port.on('message', (input: FitThreadInput | EngineTaskInput) => {
     if ('task' in input) {
+      // Other heavy engine work (pose plans, …): one call, its result posted back.
       try {
-        post({ type: 'task-done', result: runTask(input) });
+        const call = ENGINE_TASKS[input.task] as (...args: unknown[]) => unknown;
+        post({ type: 'done', report: call(...(input.args as unknown[])) });
       } catch (err) {
-        post({ type: 'error', message: String((err as Error)?.stack ?? err) });
+        if (err instanceof EngineInputError) post({ type: 'input-error', message: err.message, problems: err.problems });
+        else post({ type: 'error', message: String((err as Error)?.stack ?? err) });
       }
       return;
     }

@@ -4,7 +4,7 @@
  * and afterwards (the engine's full report), listed, and re-run with poses excluded (a new fit; the old
  * one is kept).
  */
-import { aliasedTable, and, count, desc, eq, isNull, sql, type SQL } from 'drizzle-orm';
+import { aliasedTable, and, count, desc, eq, inArray, isNull, sql, type SQL } from 'drizzle-orm';
 import { z } from 'zod';
 import { FIT_STATES, REVIEW_STATES, fits, parameterSets, sessionPoses, sessions, units, users, type FitState, type ReviewState } from '../../db/schema';
 import type { FitOptions } from '../engine/fit';
@@ -67,7 +67,7 @@ export const refitSchema = z.strictObject({
 });
 export type RefitInput = z.infer<typeof refitSchema>;
 
-export type CreateResult = { ok: true; id: string } | { ok: false; status: 400 | 404 | 409; error: string; errors?: FieldProblem[] };
+export type CreateResult = { ok: true; id: string; existing?: boolean } | { ok: false; status: 400 | 404 | 409; error: string; errors?: FieldProblem[] };
 
 /** Exclusions must name poses of the session: a label, or "line:N" for one row. */
 async function unknownExclusions(database: Db, sessionId: string, exclude: string[]): Promise<FieldProblem[]> {
@@ -97,7 +97,16 @@ export async function createFit(
   if (!session) return { ok: false, status: 404, error: 'No such session.' };
   const bad = await unknownExclusions(database, sessionId, settings.exclude);
   if (bad.length) return { ok: false, status: 400, error: 'Some excluded poses are not in the session.', errors: bad };
-  const id = await database.transaction(async (tx) => {
+  const created = await database.transaction(async (tx) => {
+    // One fit per (session, settings) while it is queued or running: simultaneous identical requests queue
+    // on this lock, and the later ones get the fit the first one made instead of a duplicate to approve.
+    await tx.execute(sql`select pg_advisory_xact_lock(hashtext(${'fit:' + sessionId}))`);
+    const [same] = await tx
+      .select({ id: fits.id })
+      .from(fits)
+      .where(and(eq(fits.sessionId, sessionId), inArray(fits.state, ['queued', 'running']), sql`${fits.settings} = ${JSON.stringify(settings)}::jsonb`))
+      .limit(1);
+    if (same) return { id: same.id, existing: true };
     const [row] = await tx
       .insert(fits)
       .values({ sessionId, unitId: session.unitId, parentFitId: options.parentFitId ?? null, state: 'queued', settings, createdBy: actorId, exclusionNote: options.exclusionNote || null })
@@ -110,8 +119,10 @@ export async function createFit(
       action: 'fit.created',
       details: { sessionId, settings, ...(options.parentFitId ? { parentFitId: options.parentFitId } : {}), ...(options.exclusionNote ? { note: options.exclusionNote } : {}) },
     });
-    return row!.id;
+    return { id: row!.id, existing: false };
   });
+  if (created.existing) return { ok: true, id: created.id, existing: true };
+  const id = created.id;
   const enqueue = options.enqueue ?? (async (fitId: string) => (await import('./jobs')).enqueueFit(fitId));
   try {
     await enqueue(id);

@@ -1,4 +1,5 @@
 import type { z } from 'zod';
+import { MAX_JSON_DEPTH, jsonDepth } from '../shared/input';
 
 /** JSON response with an explicit status. */
 export function json(body: unknown, status = 200, headers: Record<string, string> = {}) {
@@ -46,6 +47,10 @@ export async function readJson(request: Request, maxBytes = 1024 * 1024): Promis
   }
   const text = Buffer.concat(chunks).toString('utf8');
   if (!text.trim()) return { ok: true, value: {} };
+  // Nesting is bounded before parsing, so no later step (validation, storage) recurses over a hostile depth.
+  if (jsonDepth(text) > MAX_JSON_DEPTH) {
+    return { ok: false, response: problems(400, 'The request body nests too deeply.', [{ field: 'body', message: `arrays and objects nest more than ${MAX_JSON_DEPTH} levels deep`, expected: `at most ${MAX_JSON_DEPTH} levels` }]) };
+  }
   let value: unknown;
   try {
     value = JSON.parse(text);

@@ -1,12 +1,12 @@
 /**
- * A small streaming reader for multipart/form-data (RFC 7578 over the RFC 2046 multipart syntax).
- *
- * Why our own: `request.formData()` buffers the whole body (a 100 000-row session would sit in memory
- * several times), and no maintained streaming parser is among our dependencies. Only what browsers and
- * curl send is supported: CRLF line ends, `Content-Disposition: form-data; name=…; filename=…` and an
- * optional `Content-Type` per part. Part bodies are handed out chunk by chunk as they arrive; a part the
- * consumer does not read to the end is skipped when the next part is asked for.
+ * multipart/form-data (RFC 7578) read as a stream with busboy, the parser Node's web frameworks use, behind
+ * a pull interface: parts come one at a time in the order sent, a part's bytes are handed out chunk by chunk
+ * as they arrive (nothing is buffered whole), and a part the consumer does not read to the end is skipped
+ * when the next part is asked for. Busboy's own limits bound what a hostile body can make us hold: field
+ * values, header sizes, the number of parts.
  */
+import busboy from 'busboy';
+import type { Readable } from 'node:stream';
 
 export interface MultipartPart {
   /** The form field name. */
@@ -20,9 +20,12 @@ export interface MultipartPart {
 
 export class MultipartError extends Error {}
 
-const CRLF = Buffer.from('\r\n');
-const HEADER_END = Buffer.from('\r\n\r\n');
-const MAX_HEADER_BYTES = 16 * 1024;
+export interface MultipartLimits {
+  /** Largest text field value kept; a longer one arrives cut to this length + 1 byte so callers can tell. */
+  fieldBytes?: number;
+  /** Most parts (fields and files together). */
+  parts?: number;
+}
 
 /** The boundary of a multipart/form-data content type, or undefined when it is not one. */
 export function multipartBoundary(contentType: string | null): string | undefined {
@@ -31,134 +34,123 @@ export function multipartBoundary(contentType: string | null): string | undefine
   return m ? (m[1] ?? m[2]) : undefined;
 }
 
-/** Decode a quoted-string parameter value (backslash escapes) or a token. */
-function param(header: string, key: string): string | undefined {
-  const re = new RegExp(`;\\s*${key}\\s*=\\s*(?:"((?:[^"\\\\]|\\\\.)*)"|([^;\\s]*))`, 'i');
-  const m = re.exec(header);
-  if (!m) return undefined;
-  return m[1] !== undefined ? m[1].replace(/\\(.)/g, '$1') : m[2];
-}
+type Event = { kind: 'part'; part: MultipartPart; skip: () => void } | { kind: 'error'; error: Error } | { kind: 'end' };
 
-function parseHeaders(block: string): { name: string; filename?: string; contentType?: string } {
-  let disposition: string | undefined;
-  let contentType: string | undefined;
-  for (const line of block.split('\r\n')) {
-    const i = line.indexOf(':');
-    if (i < 0) continue;
-    const key = line.slice(0, i).trim().toLowerCase();
-    const value = line.slice(i + 1).trim();
-    if (key === 'content-disposition') disposition = value;
-    else if (key === 'content-type') contentType = value;
-  }
-  if (!disposition || !/^form-data\b/i.test(disposition)) throw new MultipartError('a multipart part has no "Content-Disposition: form-data" header');
-  const name = param(disposition, 'name');
-  if (name === undefined) throw new MultipartError('a multipart part has no field name');
-  // filename* (RFC 5987) wins over filename when a client sends both.
-  const extended = param(disposition, 'filename\\*');
-  let filename = param(disposition, 'filename');
-  if (extended) {
-    const m = /^utf-8''(.*)$/i.exec(extended);
-    if (m) {
-      try {
-        filename = decodeURIComponent(m[1]);
-      } catch {
-        // keep the plain filename
+/** A file stream's chunks, without destroying the stream when the consumer stops early (it is skipped instead). */
+function chunksOf(stream: Readable, failure: () => Error | undefined): AsyncIterable<Buffer> {
+  return {
+    async *[Symbol.asyncIterator]() {
+      for (;;) {
+        let chunk: Buffer | null;
+        while ((chunk = stream.read() as Buffer | null) !== null) yield chunk;
+        const failed = failure();
+        if (failed) throw failed;
+        if (stream.readableEnded) return;
+        await new Promise<void>((resolve) => {
+          const done = () => {
+            stream.off('readable', done);
+            stream.off('end', done);
+            stream.off('close', done);
+            resolve();
+          };
+          stream.on('readable', done);
+          stream.on('end', done);
+          stream.on('close', done);
+        });
       }
-    }
-  }
-  return { name, filename, contentType };
-}
-
-/**
- * Read the parts of a multipart body in order. `body` is the request body stream (Web ReadableStream or
- * any async iterable of bytes). Throws MultipartError for malformed bodies (also when it ends early).
- */
-export async function* readMultipart(body: AsyncIterable<Uint8Array>, boundary: string): AsyncGenerator<MultipartPart> {
-  const source = body[Symbol.asyncIterator]();
-  // A virtual CRLF in front lets the first boundary be found like every other ("\r\n--boundary").
-  const delimiter = Buffer.from(`\r\n--${boundary}`);
-  let buf: Buffer = Buffer.from(CRLF);
-  let ended = false;
-
-  const fill = async (): Promise<boolean> => {
-    if (ended) return false;
-    const next = await source.next();
-    if (next.done) {
-      ended = true;
-      return false;
-    }
-    const chunk = Buffer.from(next.value.buffer, next.value.byteOffset, next.value.byteLength);
-    buf = buf.length ? Buffer.concat([buf, chunk]) : chunk;
-    return true;
+    },
   };
+}
 
-  /** Bytes up to the next delimiter; leaves buf starting at the delimiter. */
-  async function* partData(): AsyncGenerator<Buffer> {
-    for (;;) {
-      const at = buf.indexOf(delimiter);
-      if (at >= 0) {
-        if (at > 0) {
-          const out = buf.subarray(0, at);
-          buf = buf.subarray(at);
-          yield out;
-        }
-        return;
-      }
-      // Keep a tail that could be the start of the delimiter.
-      const keep = Math.min(buf.length, delimiter.length - 1);
-      if (buf.length > keep) {
-        const out = buf.subarray(0, buf.length - keep);
-        buf = buf.subarray(buf.length - keep);
-        yield out;
-      }
-      if (!(await fill())) throw new MultipartError('the multipart body ended before its closing boundary');
-    }
+/** Read a multipart/form-data body part by part. Malformed bodies throw MultipartError. */
+export async function* readMultipart(body: AsyncIterable<Uint8Array>, boundary: string, limits: MultipartLimits = {}): AsyncGenerator<MultipartPart> {
+  let parser: busboy.Busboy;
+  try {
+    parser = busboy({
+      headers: { 'content-type': `multipart/form-data; boundary="${boundary.replace(/["\\]/g, '')}"` },
+      defParamCharset: 'utf8',
+      // File names reach the caller as sent, so its own checks see (and refuse) path-like names.
+      preservePath: true,
+      limits: { fieldSize: (limits.fieldBytes ?? 64 * 1024) + 1, parts: limits.parts ?? 100, headerPairs: 20, fieldNameSize: 200 },
+    });
+  } catch (e) {
+    throw new MultipartError((e as Error).message);
   }
+  const queue: Event[] = [];
+  let wake: (() => void) | undefined;
+  let failed: Error | undefined;
+  let stopped = false;
+  const push = (e: Event) => {
+    queue.push(e);
+    wake?.();
+  };
+  const fail = (error: Error) => {
+    if (failed) return;
+    failed = error instanceof MultipartError ? error : new MultipartError(error.message.replace(/\.$/, '').toLowerCase());
+    push({ kind: 'error', error: failed });
+  };
+  parser.on('field', (name, value, info) => {
+    const bytes = Buffer.from(value, 'utf8');
+    // A cut value is handed on one byte longer than the limit, so the caller's own length check refuses it.
+    const data = info.valueTruncated ? Buffer.concat([bytes, Buffer.from(' ')]) : bytes;
+    push({ kind: 'part', part: { name, data: (async function* () { yield data; })() }, skip: () => undefined });
+  });
+  parser.on('file', (name, stream, info) => {
+    stream.on('error', (e: Error) => fail(e));
+    const part: MultipartPart = { name, filename: info.filename ?? '', contentType: info.mimeType, data: chunksOf(stream, () => failed) };
+    push({ kind: 'part', part, skip: () => stream.resume() });
+  });
+  parser.on('partsLimit', () => fail(new MultipartError(`the form has more than ${limits.parts ?? 100} parts`)));
+  parser.on('error', (e: Error) => fail(e));
+  let finished = false;
+  parser.on('close', () => {
+    // A normal end of the form (not our own destroy() after the consumer stopped).
+    if (!stopped && !failed) finished = true;
+    push({ kind: 'end' });
+  });
+
+  // Feed the body in, waiting whenever busboy (or a file stream the consumer has not read yet) is full.
+  const pump = (async () => {
+    for await (const chunk of body) {
+      // After the closing boundary the rest (an epilogue, the end of the stream) is read and dropped:
+      // leaving the loop early would cancel the request body, and with it the connection the answer
+      // still has to go out on.
+      if (failed) return;
+      if (finished) continue;
+      if (stopped) return;
+      if (!parser.write(chunk)) await new Promise<void>((resolve) => {
+        const go = () => {
+          parser.off('drain', go);
+          parser.off('close', go);
+          parser.off('error', go);
+          resolve();
+        };
+        parser.on('drain', go);
+        parser.on('close', go);
+        parser.on('error', go);
+      });
+    }
+    if (!stopped && !failed && !finished) parser.end();
+  })().catch((e: Error) => {
+    // The body's own error (e.g. a size cap) is the caller's to see as it is.
+    failed ??= e;
+    push({ kind: 'error', error: e });
+  });
 
   try {
-    // Skip any preamble up to the first delimiter.
     for (;;) {
-      const at = buf.indexOf(delimiter);
-      if (at >= 0) {
-        buf = buf.subarray(at);
-        break;
-      }
-      buf = buf.subarray(Math.max(0, buf.length - delimiter.length + 1));
-      if (!(await fill())) throw new MultipartError('the body is not multipart/form-data: no boundary found');
-    }
-    for (;;) {
-      // buf starts at a delimiter: then "--" (the end) or transport padding and CRLF (a part follows).
-      while (buf.length < delimiter.length + 2) if (!(await fill())) throw new MultipartError('the multipart body ended after a boundary');
-      if (buf[delimiter.length] === 0x2d && buf[delimiter.length + 1] === 0x2d) return; // closing delimiter; the epilogue is ignored
-      let rest: Buffer;
-      let eol: number;
-      for (;;) {
-        rest = buf.subarray(delimiter.length);
-        eol = rest.indexOf(CRLF);
-        if (eol >= 0) break;
-        if (rest.length > 256) throw new MultipartError('malformed multipart boundary line');
-        if (!(await fill())) throw new MultipartError('the multipart body ended after a boundary');
-      }
-      if (rest.subarray(0, eol).toString('latin1').trim() !== '') throw new MultipartError('malformed multipart boundary line');
-      buf = rest.subarray(eol + 2);
-      let headerEnd: number;
-      // A part with no headers starts with CRLF directly.
-      while ((headerEnd = buf.indexOf(HEADER_END)) < 0 && !(buf.subarray(0, 2).equals(CRLF))) {
-        if (buf.length > MAX_HEADER_BYTES) throw new MultipartError('a multipart part header is too long');
-        if (!(await fill())) throw new MultipartError('the multipart body ended inside a part header');
-      }
-      const block = headerEnd >= 0 ? buf.subarray(0, headerEnd).toString('utf8') : '';
-      buf = headerEnd >= 0 ? buf.subarray(headerEnd + 4) : buf.subarray(2);
-      const headers = parseHeaders(block);
-      const data = partData();
-      yield { ...headers, data };
-      // Skip whatever the consumer left unread (also after it stopped early).
-      const rest2 = partData();
-      for await (const _ of rest2) {
-        // discard
-      }
+      while (!queue.length) await new Promise<void>((resolve) => (wake = resolve));
+      wake = undefined;
+      const event = queue.shift()!;
+      if (event.kind === 'end') return;
+      if (event.kind === 'error') throw event.error;
+      yield event.part;
+      event.skip();
     }
   } finally {
-    await source.return?.();
+    stopped = true;
+    parser.removeAllListeners('drain');
+    parser.destroy();
+    void pump;
   }
 }

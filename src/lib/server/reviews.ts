@@ -3,8 +3,12 @@
  * version; the previous one superseded) | reject ("returned", with the reviewer's reason). Every change
  * writes its audit entries and queues its e-mails in the transaction of the change.
  *
- * Four-eyes rule (config FOUR_EYES, default on): the person who ran the fit and the person who submitted
- * it cannot approve it, unless they are an administrator.
+ * Four-eyes rule (config FOUR_EYES, default on), over the whole lineage: nobody who ran, refit (with or
+ * without excluding poses) or submitted the fit or any fit it was re-run from may approve it. Administrators
+ * are excepted; an approval made under that exception is recorded in the audit log.
+ *
+ * Approval order: a fit of a session measured before the session behind the unit's current set is refused
+ * (409) unless the reviewer confirms it explicitly (confirmOlderSession), and the confirmation is audited.
  */
 import { and, desc, eq, max, sql } from 'drizzle-orm';
 import { z } from 'zod';
@@ -20,6 +24,8 @@ import type { CurrentUser } from './users';
 
 export const decisionSchema = z.strictObject({
   comment: z.string({ error: 'comment must be text' }).trim().max(4000, 'comment is at most 4000 characters').optional(),
+  /** Approve although the unit's current set comes from a more recent session (recorded in the audit log). */
+  confirmOlderSession: z.boolean({ error: 'confirmOlderSession must be true or false' }).optional(),
 });
 export const rejectSchema = z.strictObject({
   comment: z.string({ error: 'a reason is required (comment)' }).trim().min(1, 'say why the fit is returned (comment is required)').max(4000, 'comment is at most 4000 characters'),
@@ -103,12 +109,74 @@ export async function submitFit(
   });
 }
 
-/** Who may approve this fit; the refusal in plain words when the four-eyes rule applies. */
-export function fourEyesRefusal(fit: { createdBy: string | null; submittedBy: string | null }, user: CurrentUser, fourEyes = config().FOUR_EYES): string | null {
+/** One fit of a lineage: the fit itself (depth 0), the fit it was re-run from (1), and so on. */
+export interface LineageStep {
+  fitId: string;
+  depth: number;
+  createdBy: string | null;
+  submittedBy: string | null;
+  /** Poses this step excluded that its parent did not. */
+  excludedHere: number;
+}
+
+/** The fit and every fit it was re-run from, nearest first (a cycle or a very long chain stops at 1000). */
+export async function fitLineage(database: Db | Tx, fitId: string): Promise<LineageStep[]> {
+  const rows = await database.execute<{ id: string; depth: number; created_by: string | null; submitted_by: string | null; excluded: number; parent_excluded: number | null }>(sql`
+    with recursive chain as (
+      select id, parent_fit_id, created_by, submitted_by, settings, 0 as depth from fits where id = ${fitId}
+      union all
+      select f.id, f.parent_fit_id, f.created_by, f.submitted_by, f.settings, c.depth + 1
+      from fits f join chain c on f.id = c.parent_fit_id where c.depth < 1000
+    )
+    select c.id, c.depth, c.created_by, c.submitted_by,
+      coalesce(jsonb_array_length(c.settings -> 'exclude'), 0) as excluded,
+      (select coalesce(jsonb_array_length(p.settings -> 'exclude'), 0) from fits p where p.id = c.parent_fit_id) as parent_excluded
+    from chain c order by c.depth`);
+  return [...rows].map((r) => ({
+    fitId: r.id,
+    depth: Number(r.depth),
+    createdBy: r.created_by,
+    submittedBy: r.submitted_by,
+    excludedHere: Math.max(0, Number(r.excluded) - Number(r.parent_excluded ?? 0)),
+  }));
+}
+
+/** What `userId` did in a lineage, in words (empty when they took no part). */
+export function lineageInvolvement(lineage: readonly LineageStep[], userId: string): string[] {
+  const out: string[] = [];
+  for (const step of lineage) {
+    const which = step.depth === 0 ? 'this fit' : `fit ${step.fitId.slice(0, 8)} it was re-run from`;
+    if (step.createdBy === userId) {
+      if (step.depth === 0 && lineage.length === 1) out.push('ran this fit');
+      else out.push(`${step.excludedHere ? `excluded ${step.excludedHere} pose${step.excludedHere === 1 ? '' : 's'} in` : step.depth === 0 ? 'refit' : 'ran'} ${which}`);
+    }
+    if (step.submittedBy === userId) out.push(`submitted ${which}`);
+  }
+  return out;
+}
+
+/**
+ * Who may approve this fit; the refusal in plain words when the four-eyes rule applies. `lineage` is the
+ * fit's chain from fitLineage(); without it only the fit itself is looked at.
+ */
+export function fourEyesRefusal(
+  fit: { id?: string; createdBy: string | null; submittedBy: string | null },
+  user: CurrentUser,
+  fourEyes = config().FOUR_EYES,
+  lineage?: readonly LineageStep[],
+): string | null {
   if (!fourEyes || isAdmin(user)) return null;
-  if (fit.createdBy === user.id) return 'Four-eyes rule: you ran this fit, so another engineer must approve it (administrators excepted).';
-  if (fit.submittedBy === user.id) return 'Four-eyes rule: you submitted this fit, so another engineer must approve it (administrators excepted).';
-  return null;
+  const steps = lineage ?? [{ fitId: fit.id ?? '', depth: 0, createdBy: fit.createdBy, submittedBy: fit.submittedBy, excludedHere: 0 }];
+  const did = lineageInvolvement(steps, user.id);
+  if (!did.length) return null;
+  return `Four-eyes rule: you ${did.join(', ')}, so another engineer must approve it (administrators excepted).`;
+}
+
+/** The four-eyes refusal for a fit by id, over its whole lineage (for pages). */
+export async function approvalRefusal(fitId: string, user: CurrentUser, database: Db = sharedDb()): Promise<string | null> {
+  const lineage = await fitLineage(database, fitId);
+  if (!lineage.length) return null;
+  return fourEyesRefusal(lineage[0]!, user, config().FOUR_EYES, lineage);
 }
 
 /**
@@ -121,6 +189,7 @@ export async function approveFit(
   user: CurrentUser,
   comment: string | undefined,
   database: Db = sharedDb(),
+  options: { confirmOlderSession?: boolean } = {},
 ): Promise<ReviewResult<{ parameterSet: { id: string; version: number } }>> {
   return database.transaction(async (tx) => {
     const [fit] = await tx.select().from(fits).where(eq(fits.id, fitId)).for('update');
@@ -129,15 +198,31 @@ export async function approveFit(
       const now = fit.reviewState === 'approved' ? 'already approved' : fit.reviewState === 'returned' ? 'returned' : 'not submitted for review';
       return { ok: false, status: 409, error: `This fit is ${now}; only a fit awaiting review can be approved.` };
     }
-    const refusal = fourEyesRefusal(fit, user);
+    const lineage = await fitLineage(tx, fitId);
+    const refusal = fourEyesRefusal(fit, user, config().FOUR_EYES, lineage);
     if (refusal) return { ok: false, status: 403, error: refusal };
+    // The administrators' exception is used, not silent: it goes on record with what they did in the lineage.
+    const exception = config().FOUR_EYES && isAdmin(user) ? lineageInvolvement(lineage, user.id) : [];
     if (!fit.calibrated) return { ok: false, status: 409, error: 'This fit has no calibrated geometry.' };
     const [unit] = await tx.select({ id: units.id, serial: units.serial }).from(units).where(eq(units.id, fit.unitId)).for('update');
     const [current] = await tx
-      .select({ id: parameterSets.id, version: parameterSets.version })
+      .select({ id: parameterSets.id, version: parameterSets.version, measuredOn: sessions.measuredOn, sessionId: sessions.id })
       .from(parameterSets)
+      .leftJoin(fits, eq(fits.id, parameterSets.fitId))
+      .leftJoin(sessions, eq(sessions.id, fits.sessionId))
       .where(and(eq(parameterSets.unitId, fit.unitId), eq(parameterSets.state, 'current')))
-      .for('update');
+      .for('update', { of: parameterSets });
+    const [mine] = await tx.select({ measuredOn: sessions.measuredOn }).from(sessions).where(eq(sessions.id, fit.sessionId));
+    const olderThanCurrent = !!current?.measuredOn && !!mine && String(mine.measuredOn) < String(current.measuredOn);
+    if (olderThanCurrent && !options.confirmOlderSession) {
+      return {
+        ok: false,
+        status: 409,
+        error:
+          `This fit's session was measured on ${mine!.measuredOn}, before the session (${current!.measuredOn}) behind the unit's current parameter set v${current!.version}. ` +
+          'Approving it would replace newer geometry with older. If that is intended (e.g. the newer set is known bad), approve again with confirmOlderSession: true; the confirmation is recorded.',
+      };
+    }
     if (current) await tx.update(parameterSets).set({ state: 'superseded' }).where(eq(parameterSets.id, current.id));
     const [{ top } = { top: 0 }] = await tx.select({ top: max(parameterSets.version) }).from(parameterSets).where(eq(parameterSets.unitId, fit.unitId));
     const version = (top ?? 0) + 1;
@@ -168,6 +253,20 @@ export async function approveFit(
       .set({ reviewState: 'approved', decidedBy: user.id, decidedAt: sql`now()`, decisionComment: comment || null })
       .where(eq(fits.id, fitId));
     await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'fit.approved', comment: comment || null, details: { version } });
+    if (exception.length) {
+      await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'fit.four_eyes_exception', details: { involvement: exception, lineage: lineage.map((l) => l.fitId) } });
+    }
+    if (olderThanCurrent) {
+      await audit(tx, {
+        actorId: user.id,
+        unitId: fit.unitId,
+        entityType: 'fit',
+        entityId: fitId,
+        action: 'fit.approved_older_session',
+        comment: comment || null,
+        details: { measuredOn: mine!.measuredOn, currentMeasuredOn: current!.measuredOn, currentVersion: current!.version, currentSessionId: current!.sessionId },
+      });
+    }
     if (current) {
       await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'parameter_set', entityId: current.id, action: 'parameter_set.superseded', details: { version: current.version, by: version } });
     }

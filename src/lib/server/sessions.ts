@@ -9,6 +9,7 @@
 import { sessionVerdicts, type Verdicts } from '../engine/plausibility';
 import { unitJudgement } from './judgement';
 import { CopyObjectCommand, PutObjectCommand } from '@aws-sdk/client-s3';
+import { cleanText, isCalendarDate } from '../shared/input';
 import { and, asc, count, desc, eq, sql } from 'drizzle-orm';
 import { createHash, randomUUID } from 'node:crypto';
 import { createReadStream, createWriteStream, type WriteStream } from 'node:fs';
@@ -18,8 +19,8 @@ import { join } from 'node:path';
 import type { Readable } from 'node:stream';
 import { z } from 'zod';
 import { armModelRevisions, armModels, sessionPoses as poseRows, sessions, units, users } from '../../db/schema';
-import { checkGeometry } from '../engine/fit';
 import { poseSetQuality, type PoseSetQuality } from '../engine/planner';
+import { runEngineTask } from './engine-runner';
 import { parseSessionCsv, type ParsedSession } from '../engine/session-csv';
 import { EngineInputError, type ArmGeometry, type FrameSpec, type InputProblem } from '../engine/types';
 import { audit } from './audit';
@@ -56,7 +57,9 @@ const text = (field: string, max: number) =>
     .string()
     .trim()
     .max(max, `${field} is at most ${max} characters`)
-    .refine((s) => !CONTROL.test(s), `${field} contains control characters`);
+    .refine((s) => !CONTROL.test(s), `${field} contains control characters`)
+    // Bidi overrides, isolates and zero-width characters would reorder or hide text on screen: removed.
+    .overwrite((s) => cleanText(s, true));
 
 const today = () => new Date().toISOString().slice(0, 10);
 
@@ -71,10 +74,7 @@ export const sessionMetaSchema = z.strictObject({
     .string({ error: 'measuredOn is required (YYYY-MM-DD)' })
     .trim()
     .regex(/^\d{4}-\d{2}-\d{2}$/, 'measuredOn must be a date written YYYY-MM-DD')
-    .refine((s) => {
-      const d = new Date(`${s}T00:00:00Z`);
-      return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === s;
-    }, 'measuredOn is not a calendar date')
+    .refine((s) => isCalendarDate(s, '0001-01-01', '9999-12-31'), 'measuredOn is not a calendar date')
     .refine((s) => s >= '1990-01-01', 'measuredOn is before 1990')
     // One day of slack: the technician's time zone may be ahead of the server's.
     .refine((s) => s <= new Date(Date.now() + 86_400_000).toISOString().slice(0, 10), 'measuredOn is in the future'),
@@ -588,7 +588,8 @@ export async function storeSession(input: StoreSessionInput, database: Db = shar
         ambientC: input.meta.ambientC,
         target: input.meta.target,
         notes: input.meta.notes,
-        fileName: input.fileName,
+        // Shown on pages and in lists: without control or bidi characters (the file itself is kept as uploaded).
+        fileName: cleanText(input.fileName),
         fileKey: key,
         fileSha256: input.sha256,
         fileBytes: input.bytes,
@@ -876,7 +877,8 @@ export async function sessionCheckDetail(id: string, database: Db = sharedDb()):
   if (!geometry) return undefined;
   const poses = await allSessionPoses(id, database);
   try {
-    const report = checkGeometry(geometry, poses);
+    // Registration and residuals over every pose: on an engine thread, not the request thread.
+    const report = await runEngineTask('checkGeometry', geometry, poses);
     const [unit] = await database.select({ unitId: sessions.unitId }).from(sessions).where(eq(sessions.id, id));
     const verdicts = sessionVerdicts(geometry, poses, unit ? await unitJudgement(unit.unitId, database) : undefined, report.stats.rms);
     return {

@@ -4,12 +4,14 @@
  * next visit.
  */
 import { and, asc, count, desc, eq, ilike, or, sql, type SQL } from 'drizzle-orm';
+import { cleanText, isCalendarDate } from '../shared/input';
 import { z } from 'zod';
 import { armModelRevisions, armModels, auditLog, fits, parameterSets, sessions, units, users } from '../../db/schema';
 import { planPoses, type PoseSetQuality } from '../engine/planner';
 import { planToCsv } from '../engine/session-csv';
 import { EngineInputError, type ArmGeometry, type InputProblem } from '../engine/types';
 import { audit } from './audit';
+import { runEngineTask } from './engine-runner';
 import type { FieldProblem } from './http';
 import { db as sharedDb, type Db } from './db';
 import { pageTotal, windowTotal } from './paging';
@@ -35,10 +37,7 @@ export const SERIAL_PATTERN = /^[A-Za-z0-9][A-Za-z0-9._-]*$/;
 const dateOnly = z
   .string({ error: 'commissionedOn must be a date (YYYY-MM-DD)' })
   .regex(/^\d{4}-\d{2}-\d{2}$/, 'commissionedOn must be a date (YYYY-MM-DD)')
-  .refine((s) => {
-    const d = new Date(`${s}T00:00:00Z`);
-    return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === s;
-  }, 'commissionedOn is not a calendar date');
+  .refine((s) => isCalendarDate(s), 'commissionedOn is not a calendar date from 1900 to 2199');
 
 export const unitRegisterSchema = z.strictObject({
   serial: z
@@ -49,8 +48,8 @@ export const unitRegisterSchema = z.strictObject({
     .regex(SERIAL_PATTERN, 'serial may contain letters, digits, ".", "_" and "-" and must start with a letter or digit'),
   modelId: z.uuid({ error: 'modelId must be the id of an arm model' }),
   revision: z.number({ error: 'revision must be a whole number' }).int('revision must be a whole number').min(1, 'revision starts at 1').optional(),
-  site: z.string({ error: 'site must be text' }).trim().max(200).default(''),
-  cell: z.string({ error: 'cell must be text' }).trim().max(200).default(''),
+  site: z.string({ error: 'site must be text' }).trim().overwrite((s) => cleanText(s)).max(200).default(''),
+  cell: z.string({ error: 'cell must be text' }).trim().overwrite((s) => cleanText(s)).max(200).default(''),
   commissionedOn: z.union([dateOnly, z.literal(''), z.null()]).optional(),
   notes: z.string({ error: 'notes must be text' }).trim().max(4000).default(''),
 });
@@ -329,7 +328,8 @@ export async function posePlan(unit: UnitView, options: PosePlanOptions, databas
   const { geometry, source } = await unitPlanningGeometry(unit, database);
   let result: ReturnType<typeof planPoses>;
   try {
-    result = planPoses(geometry, { count: options.count, seed: options.seed, index: options.index });
+    // Hundreds of poses take seconds: planned on an engine thread, never on the request thread.
+    result = await runEngineTask('planPoses', geometry, { count: options.count, seed: options.seed, index: options.index });
   } catch (e) {
     if (e instanceof EngineInputError) return { ok: false, problems: e.problems };
     throw e;

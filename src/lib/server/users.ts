@@ -1,6 +1,7 @@
 import { and, asc, count, eq, gt, isNull, sql } from 'drizzle-orm';
 import { z } from 'zod';
-import { apiTokens, invitations, loginAttempts, users } from '../../db/schema';
+import { apiTokens, invitations, loginAttempts, userSessions, users } from '../../db/schema';
+import { cleanText } from '../shared/input';
 import { ROLES, type Role } from '../shared/roles';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
@@ -38,7 +39,12 @@ const preparedByDb = new WeakMap<Db, ReturnType<typeof prepare>>();
 function prepare(database: Db) {
   const person = { id: users.id, email: users.email, name: users.name, roles: users.roles, active: users.active, isDemo: users.isDemo };
   return {
-    userById: database.select(person).from(users).where(eq(users.id, sql.placeholder('id'))).prepare('offsetry_user_by_id'),
+    sessionUser: database
+      .select(person)
+      .from(userSessions)
+      .innerJoin(users, eq(users.id, userSessions.userId))
+      .where(and(eq(userSessions.id, sql.placeholder('sid')), eq(userSessions.userId, sql.placeholder('id')), isNull(userSessions.endedAt)))
+      .prepare('offsetry_session_user'),
     tokenUser: database
       .select({ t: { id: apiTokens.id, lastUsedAt: apiTokens.lastUsedAt }, u: person })
       .from(apiTokens)
@@ -53,14 +59,48 @@ function prepared(database: Db) {
   return p;
 }
 
-/** The user behind a session, re-read on every request so deactivation and role changes act at once. */
-export async function activeUserById(id: string, database: Db = sharedDb()): Promise<CurrentUser | undefined> {
-  if (!z.uuid().safeParse(id).success) return undefined;
-  const [u] = await prepared(database).userById.execute({ id });
+/**
+ * The user behind a browser session, re-read on every request so deactivation and role changes act at once:
+ * the session row named in the cookie must exist, belong to that user and not have been ended.
+ */
+export async function activeUserBySession(id: string, sid: string, database: Db = sharedDb()): Promise<CurrentUser | undefined> {
+  if (!z.uuid().safeParse(id).success || !z.uuid().safeParse(sid).success) return undefined;
+  const [u] = await prepared(database).sessionUser.execute({ id, sid });
   if (!u || !u.active) return undefined;
   if (u.isDemo && config().OFFSETRY_MODE === 'production') return undefined;
   return { id: u.id, email: u.email, name: u.name, roles: u.roles, via: 'session' };
 }
+
+/** A new server-side session row for a sign-in; its id goes into the cookie. */
+export async function startSession(userId: string, database: Db = sharedDb()): Promise<string> {
+  const [row] = await database.insert(userSessions).values({ userId }).returning({ id: userSessions.id });
+  return row!.id;
+}
+
+/** End one session (sign-out). Returns whether a live session was ended. */
+export async function endSession(sid: string, because = 'sign-out', database: Db = sharedDb()): Promise<boolean> {
+  if (!z.uuid().safeParse(sid).success) return false;
+  const rows = await database
+    .update(userSessions)
+    .set({ endedAt: sql`now()`, endedBecause: because })
+    .where(and(eq(userSessions.id, sid), isNull(userSessions.endedAt)))
+    .returning({ id: userSessions.id });
+  return rows.length > 0;
+}
+
+/** End every live session of a person (sign out everywhere, deactivation, role change, new password). */
+export async function endAllSessions(userId: string, because: string, database: Db | Parameters<Parameters<Db['transaction']>[0]>[0] = sharedDb()): Promise<number> {
+  const rows = await database
+    .update(userSessions)
+    .set({ endedAt: sql`now()`, endedBecause: because })
+    .where(and(eq(userSessions.userId, userId), isNull(userSessions.endedAt)))
+    .returning({ id: userSessions.id });
+  return rows.length;
+}
+
+let dummy: Promise<string> | undefined;
+/** A hash of a random password with the same parameters as real ones, made once per process. */
+const dummyHash = () => (dummy ??= hashPassword(newToken('dummy').token));
 
 // Rate limits for sign-in: per address and per client, over a sliding window (common practice: a handful of
 // failures per account, more per client to allow a shared workshop network).
@@ -92,7 +132,10 @@ export async function authenticate(
   if (await loginBlocked(email, ip, database)) return { ok: false, reason: 'rate-limited' };
   const [u] = await database.select().from(users).where(eq(users.email, email));
   const refusedDemo = u?.isDemo && config().OFFSETRY_MODE === 'production';
-  const good = !!u && u.active && !refusedDemo && (await verifyPassword(password, u.passwordHash));
+  // The password is hashed whether or not the account exists, is active or has a password yet, so the time
+  // a refusal takes does not tell which accounts exist.
+  const matches = await verifyPassword(password, u?.passwordHash ?? (await dummyHash()));
+  const good = !!u && !!u.passwordHash && u.active && !refusedDemo && matches;
   await database.insert(loginAttempts).values({ email, ip, success: good });
   if (!good || !u) return { ok: false, reason: 'invalid' };
   return { ok: true, user: { id: u.id, email: u.email, name: u.name, roles: u.roles, via: 'session' } };
@@ -104,7 +147,7 @@ export async function listUsers(database: Db = sharedDb()) {
 
 export const inviteSchema = z.object({
   email: z.email().max(200),
-  name: z.string().trim().min(1).max(200),
+  name: z.string().trim().overwrite((s) => cleanText(s)).min(1, 'name must not be empty').max(200),
   roles: z.array(z.enum(ROLES)).min(1, 'choose at least one role'),
 });
 
@@ -173,6 +216,7 @@ export async function acceptInvitation(token: string, password: string, database
       .returning();
     if (!inv) return { ok: false as const, status: 404, error: 'This link has been used or has expired. Ask an administrator for a new invitation.' };
     const [u] = await tx.update(users).set({ passwordHash: hash, updatedAt: sql`now()` }).where(eq(users.id, inv.userId)).returning();
+    await endAllSessions(inv.userId, 'password', tx);
     return { ok: true as const, email: u!.email };
   });
 }
@@ -181,7 +225,7 @@ export const userPatchSchema = z
   .object({
     roles: z.array(z.enum(ROLES)).min(1, 'a user needs at least one role').optional(),
     active: z.boolean().optional(),
-    name: z.string().trim().min(1).max(200).optional(),
+    name: z.string().trim().overwrite((s) => cleanText(s)).min(1, 'name must not be empty').max(200).optional(),
   })
   .refine((v) => Object.keys(v).length > 0, 'nothing to change');
 
@@ -195,6 +239,9 @@ export async function updateUser(id: string, patch: z.infer<typeof userPatchSche
     .where(eq(users.id, id))
     .returning();
   if (!u) return { ok: false as const, status: 404, error: 'No such user.' };
+  // Sessions signed in under the old roles or before a deactivation end for good (a reactivated person signs in again).
+  if (patch.active === false) await endAllSessions(id, 'deactivated', database);
+  else if (patch.roles) await endAllSessions(id, 'roles', database);
   if (patch.active === false) {
     // A deactivated person's automation stops too.
     await database.update(apiTokens).set({ revokedAt: sql`now()` }).where(and(eq(apiTokens.userId, id), isNull(apiTokens.revokedAt)));
@@ -219,7 +266,7 @@ export async function upsertUserWithPassword(
 
 // ---------- API tokens ----------
 
-export const tokenCreateSchema = z.object({ name: z.string().trim().min(1).max(100) });
+export const tokenCreateSchema = z.object({ name: z.string().trim().overwrite((s) => cleanText(s)).min(1, 'name must not be empty').max(100) });
 
 export async function createApiToken(userId: string, name: string, database: Db = sharedDb()) {
   const { token, hash } = newToken('ofs');

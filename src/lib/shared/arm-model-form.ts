@@ -7,12 +7,14 @@
  */
 import { z } from 'zod';
 import { armGeometrySchema, formatPath } from '../engine/geometry';
+import { cleanText } from './input';
 import type { ArmGeometry, InputProblem } from '../engine/types';
 
 export const armModelMetaSchema = z.object({
-  name: z.string({ error: 'name is required (text)' }).trim().min(1, 'name must not be empty').max(120, 'name is at most 120 characters'),
-  manufacturer: z.string({ error: 'manufacturer must be text' }).trim().max(120, 'manufacturer is at most 120 characters').default(''),
-  description: z.string({ error: 'description must be text' }).trim().max(2000, 'description is at most 2000 characters').default(''),
+  // Names are shown everywhere and written into exports: control and bidi characters are removed first.
+  name: z.string({ error: 'name is required (text)' }).trim().overwrite((v) => cleanText(v)).min(1, 'name must not be empty').max(120, 'name is at most 120 characters'),
+  manufacturer: z.string({ error: 'manufacturer must be text' }).trim().overwrite((v) => cleanText(v)).max(120, 'manufacturer is at most 120 characters').default(''),
+  description: z.string({ error: 'description must be text' }).trim().overwrite((v) => cleanText(v, true)).max(2000, 'description is at most 2000 characters').default(''),
 });
 
 /** PUT: every field optional; a `note` describes the change and is kept with a new revision. */

@@ -29,6 +29,7 @@ const COMPENSATION_VIEWERS: readonly Role[] = ['engineer', 'service', 'quality',
 export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/health', methods: { GET: 'public' } },
   { pattern: '/api/me', methods: { GET: 'signed-in' } },
+  { pattern: '/api/me/sign-out-everywhere', methods: { POST: 'signed-in' } },
   { pattern: '/api/invitations/[token]', methods: { GET: 'public', POST: 'public' } },
   { pattern: '/api/tokens', methods: { GET: 'signed-in', POST: 'signed-in' } },
   { pattern: '/api/tokens/[id]', methods: { DELETE: 'signed-in' } },
@@ -42,7 +43,8 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/admin/webhooks/deliveries', methods: { GET: ['admin'] } },
   // Arm models, units, sessions (issue 4)
   { pattern: '/api/arm-models', methods: { GET: ENGINEERING, POST: MODEL_EDITORS } },
-  { pattern: '/api/arm-models/[id]', methods: { GET: [...ENGINEERING, 'service'], PUT: MODEL_EDITORS } },
+  // Geometry is read by the same roles on the page (/arm-models/…), in the model API and as a file.
+  { pattern: '/api/arm-models/[id]', methods: { GET: ENGINEERING, PUT: MODEL_EDITORS } },
   { pattern: '/api/arm-models/[id]/geometry', methods: { GET: ENGINEERING } },
   { pattern: '/api/units', methods: { GET: ALL, POST: ['technician', 'engineer', 'admin'] } },
   { pattern: '/api/units/[serial]', methods: { GET: ALL } },

@@ -9,7 +9,7 @@ export const POST: APIRoute = async ({ params, request, locals }) => {
   if (!read.ok) return read.response;
   const parsed = decisionSchema.safeParse(read.value);
   if (!parsed.success) return problems(400, 'Invalid request.', zodProblems(parsed.error));
-  const result = await approveFit(params.id, locals.user!, parsed.data.comment);
+  const result = await approveFit(params.id, locals.user!, parsed.data.comment, undefined, { confirmOlderSession: parsed.data.confirmOlderSession });
   if (!result.ok) return problems(result.status, result.error);
   return json(result);
 };

@@ -20,5 +20,7 @@ export const POST: APIRoute = async ({ params, request, locals }) => {
   if (!parsed.success) return problems(400, 'Invalid fit settings.', zodProblems(parsed.error));
   const result = await createFit(params.id, parsed.data, locals.user!.id);
   if (!result.ok) return problems(result.status, result.error, result.errors);
+  // An identical fit (same session and settings) still queued or running is returned instead of a new one.
+  if (result.existing) return json({ id: result.id, existing: true, href: `/fits/${result.id}` }, 200, { location: `/api/fits/${result.id}` });
   return json({ id: result.id, state: 'queued', href: `/fits/${result.id}` }, 202, { location: `/api/fits/${result.id}` });
 };
