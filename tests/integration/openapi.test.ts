@@ -183,6 +183,11 @@ describe('real replies of every GET route match the document', () => {
   it('the reply schemas are not vacuous: a wrong field type is refused', () => {
     const validate = ajv.getSchema(`offsetry-openapi#/components/schemas/Unit`)!;
     expect(validate({ id: 'not-a-uuid', serial: 5 })).toBe(false);
+    const compensation = ajv.getSchema(`offsetry-openapi#/components/schemas/Compensation`)!;
+    expect(compensation({ id: ids.compensation, state: 'finished' })).toBe(false);
+    const settings = ajv.getSchema(`offsetry-openapi#/components/schemas/JudgementSettings`)!;
+    expect(settings({ lengthBoundMm: '5', angleBoundDeg: 1, instrumentNoiseMm: 0.05, toolFixture: false })).toBe(false);
+    expect(settings({ lengthBoundMm: 5, angleBoundDeg: 1, instrumentNoiseMm: 0.05, toolFixture: false })).toBe(true);
     const problem = ajv.getSchema(`offsetry-openapi#/components/schemas/Problem`)!;
     expect(problem({ error: 'x', errors: [{ line: 3, column: 'q2', message: 'not a number' }] })).toBe(true);
     expect(problem({ errors: [] })).toBe(false);
