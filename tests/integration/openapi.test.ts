@@ -1,8 +1,8 @@
 /**
  * The served OpenAPI document against the running app: it validates with an outside validator
  * (@apidevtools/swagger-parser), lists exactly the access table's routes, and for every GET route a real
- * reply (with real ids: a model, a unit with an uploaded session, an approved set, a drift alert, a webhook
- * endpoint, an invitation) validates against the document's response schema with ajv (JSON Schema 2020-12,
+ * reply (with real ids: a model, a unit with an uploaded session, an approved set, a drift alert, a compensated
+ * program, a webhook endpoint, an invitation) validates against the document's response schema with ajv (JSON Schema 2020-12,
  * the dialect of OpenAPI 3.1).
  */
 import SwaggerParser from '@apidevtools/swagger-parser';
@@ -53,6 +53,23 @@ beforeAll(async () => {
   ids.fit = v2.fitId;
   ids.set = v2.setId;
 
+  // A small joint program compensated for the current set, through the API, waited for until its job is done
+  // (so the detail carries its summary and the file route has an output to send).
+  const program = ['target,q1,q2,q3,q4,q5,q6', 'P1,10,-30,40,20,50,30', 'P2,15,-25,35,25,45,35', 'P3,-20,-40,50,10,60,-30'].join('\n') + '\n';
+  const programForm = new FormData();
+  programForm.append('file', new Blob([program], { type: 'text/csv' }), 'openapi-joints.csv');
+  const comp = await admin.json(`/api/units/${encodeURIComponent(serial)}/compensations`, { method: 'POST', body: programForm });
+  expect(comp.status, JSON.stringify(comp.body)).toBe(202);
+  ids.compensation = comp.body.id;
+  const until = Date.now() + 60_000;
+  let state = 'queued';
+  while (state !== 'done' && state !== 'failed' && Date.now() < until) {
+    await new Promise((d) => setTimeout(d, 300));
+    // A reused keep-alive socket closed by the server at the same moment resets the request (undici); ask again.
+    state = (await admin.json(`/api/compensations/${ids.compensation}`).catch(() => ({ body: { state } }))).body.state;
+  }
+  expect(state, 'the compensation job finished').toBe('done');
+
   // An invitation with a known link token (the mail only carries it to the person).
   const [person] = await db.insert(users).values({ email: `${uniq('invitee-').toLowerCase()}@example.com`, name: 'Invited person', roles: ['technician'] }).returning();
   const token = randomBytes(24).toString('base64url');
@@ -84,12 +101,14 @@ function concrete(pattern: string): string {
     '/api/fits/[id]': ids.fit!,
     '/api/parameter-sets/[id]': ids.set!,
     '/api/admin/webhooks/[id]': ids.webhook!,
+    '/api/compensations/[id]': ids.compensation!,
   };
   let path = pattern.replace('[serial]', encodeURIComponent(ids.serial!)).replace('[token]', ids.token!);
   for (const [prefix, id] of Object.entries(byParam)) if (pattern.startsWith(prefix)) path = path.replace('[id]', id);
   const query: Record<string, string> = {
     '/api/units/[serial]/compare': `a=nominal&b=${ids.set}&samples=200`,
     '/api/parameter-sets/[id]/export': 'format=json',
+    '/api/compensations/[id]/file': 'part=output',
     '/api/fits': `unit=${encodeURIComponent(ids.serial!)}`,
     '/api/sessions': `unit=${encodeURIComponent(ids.serial!)}`,
   };
@@ -107,6 +126,18 @@ describe('GET /api/openapi.json', () => {
     const fromTable = API_ROUTES.flatMap((r) => Object.keys(r.methods).map((m) => `${m.toLowerCase()} ${toOpenApi(r.pattern)}`)).sort();
     const fromDoc = Object.entries(doc.paths).flatMap(([p, item]) => METHODS.filter((m) => (item as any)[m]).map((m) => `${m} ${p}`)).sort();
     expect(fromDoc).toEqual(fromTable);
+  });
+
+  it('request schemas carry the endpoints\' current fields (submit override, refit note, export frame, compensation form)', () => {
+    const body = (p: string, m: string, type = 'application/json') => doc.paths[p][m].requestBody.content[type].schema;
+    expect(Object.keys(body('/api/fits/{id}/submit', 'post').properties)).toEqual(expect.arrayContaining(['comment', 'override']));
+    expect(Object.keys(body('/api/fits/{id}/refit', 'post').properties)).toContain('note');
+    const exportQuery = doc.paths['/api/parameter-sets/{id}/export'].get.parameters.find((p: { name: string }) => p.name === 'frame');
+    expect(exportQuery?.schema.enum).toEqual(expect.arrayContaining(['base', 'tracker']));
+    const form = body('/api/units/{serial}/compensations', 'post', 'multipart/form-data');
+    expect(form.required).toEqual(['file']);
+    expect(form.properties.frame.enum).toEqual(['base', 'measurement']);
+    expect(body('/api/arm-models/{id}/judgement', 'put').required).toEqual(expect.arrayContaining(['lengthBoundMm', 'angleBoundDeg', 'instrumentNoiseMm', 'toolFixture']));
   });
 
   it('is readable without signing in', async () => {
@@ -152,6 +183,11 @@ describe('real replies of every GET route match the document', () => {
   it('the reply schemas are not vacuous: a wrong field type is refused', () => {
     const validate = ajv.getSchema(`offsetry-openapi#/components/schemas/Unit`)!;
     expect(validate({ id: 'not-a-uuid', serial: 5 })).toBe(false);
+    const compensation = ajv.getSchema(`offsetry-openapi#/components/schemas/Compensation`)!;
+    expect(compensation({ id: ids.compensation, state: 'finished' })).toBe(false);
+    const settings = ajv.getSchema(`offsetry-openapi#/components/schemas/JudgementSettings`)!;
+    expect(settings({ lengthBoundMm: '5', angleBoundDeg: 1, instrumentNoiseMm: 0.05, toolFixture: false })).toBe(false);
+    expect(settings({ lengthBoundMm: 5, angleBoundDeg: 1, instrumentNoiseMm: 0.05, toolFixture: false })).toBe(true);
     const problem = ajv.getSchema(`offsetry-openapi#/components/schemas/Problem`)!;
     expect(problem({ error: 'x', errors: [{ line: 3, column: 'q2', message: 'not a number' }] })).toBe(true);
     expect(problem({ errors: [] })).toBe(false);

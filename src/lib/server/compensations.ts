@@ -48,7 +48,7 @@ async function unitForCompensation(serial: string, database: Db) {
   return { ...row, set };
 }
 
-const frameSchema = z.enum(['base', 'measurement'], { error: 'frame must be "base" or "measurement"' });
+export const frameSchema = z.enum(['base', 'measurement'], { error: 'frame must be "base" or "measurement"' });
 
 /**
  * Upload a program: multipart/form-data with `file` (TARGETS.csv), optional `frame` (base | measurement)

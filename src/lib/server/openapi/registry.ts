@@ -22,11 +22,13 @@ import { z } from 'zod';
 import type { Method } from '../../shared/routes';
 import { armGeometrySchema } from '../../engine/geometry';
 import { armModelMetaSchema, armModelUpdateMetaSchema } from '../../shared/arm-model-form';
+import { frameSchema as compensationFrameSchema } from '../compensations';
 import { acknowledgeSchema, tolerancesSchema } from '../drift';
 import { batchSchema, logQuerySchema } from '../exports';
 import { fitListQuerySchema, fitSettingsSchema, refitSchema } from '../fits';
 import { completeUploadSchema, startUploadSchema } from '../presigned-uploads';
-import { decisionSchema, rejectSchema } from '../reviews';
+import { judgementSchema } from '../judgement';
+import { decisionSchema, rejectSchema, submitSchema } from '../reviews';
 import { posePageSchema, sessionListQuerySchema, sessionMetaSchema } from '../sessions';
 import { posePlanSchema, unitListQuerySchema, unitRegisterSchema } from '../units';
 import { inviteSchema, tokenCreateSchema, userPatchSchema } from '../users';
@@ -52,6 +54,22 @@ export interface OperationDoc {
 }
 
 export type RouteDoc = Partial<Record<Method, OperationDoc>>;
+
+/**
+ * The compensation upload's form. Its fields are read one by one from the multipart stream
+ * (src/lib/server/compensations.ts createCompensation): `frame` with the module's own zod enum, `tool` with
+ * the engine's parser, so only `frame` is the schema the endpoint uses; the rest describes what it reads.
+ */
+const compensationForm = z.object({
+  file: z.string().describe('The program CSV (binary part): header `target`, then x,y,z,rx,ry,rz (with optional q1…qn hints) or q1…qn alone.'),
+  frame: compensationFrameSchema.optional().describe('Frame of Cartesian targets: base (default) or measurement (needs a base frame in the current set).'),
+  tool: z.string().optional().describe('Tool point in the flange frame, "x,y,z[,rx,ry,rz]" (mm, degrees).'),
+});
+
+/** GET /api/compensations/{id}/file reads `part` by hand (input or output; default output); this is that rule. */
+const compensationFileQuery = z.object({
+  part: z.enum(['output', 'input']).default('output').describe('output: the compensated program (logged in the export log); input: the program as uploaded.'),
+});
 
 const sessionForm = sessionMetaSchema.extend({
   file: z.string().describe('The session CSV (binary part). Send it after `unit` so it is checked while it arrives.'),
@@ -99,6 +117,10 @@ export const API_DOCS: Record<string, RouteDoc> = {
   },
   '/api/arm-models/[id]/geometry': { GET: { tag: 'Arm models', summary: 'Download a revision\'s arm geometry file', query: geometryQuery, ok: { contentType: 'application/json', schema: R.geometrySchema } } },
   '/api/arm-models/[id]/fleet': { GET: { tag: 'Fleet and drift', summary: 'Fleet statistics over the units\' current sets', ok: { schema: R.fleet } } },
+  '/api/arm-models/[id]/judgement': {
+    GET: { tag: 'Fleet and drift', summary: 'Judgement settings: plausible change bounds, instrument noise, tool fixture (defaults until set)', ok: { schema: R.judgement } },
+    PUT: { tag: 'Fleet and drift', summary: 'Replace the judgement settings (all four fields)', body: { schema: judgementSchema }, ok: { schema: R.judgement } },
+  },
   '/api/arm-models/[id]/tolerances': {
     GET: { tag: 'Fleet and drift', summary: 'Drift tolerances per parameter group', ok: { schema: R.tolerances } },
     PUT: { tag: 'Fleet and drift', summary: 'Replace the drift tolerances', body: { schema: tolerancesSchema }, ok: { schema: R.tolerances } },
@@ -146,7 +168,16 @@ export const API_DOCS: Record<string, RouteDoc> = {
   },
   '/api/fits': { GET: { tag: 'Fits and reviews', summary: 'Fits, filtered by unit, state and review state', query: fitListQuerySchema, ok: { schema: R.fitList } } },
   '/api/fits/[id]': { GET: { tag: 'Fits and reviews', summary: 'A fit: progress while it runs, then the full report', ok: { schema: R.fit } } },
-  '/api/fits/[id]/submit': { POST: { tag: 'Fits and reviews', summary: 'Submit a fitted fit for review', body: { schema: decisionSchema }, ok: { schema: R.reviewDone }, refusals: { 409: 'The fit is not in a state that allows this.' } } },
+  '/api/fits/[id]/submit': {
+    POST: {
+      tag: 'Fits and reviews',
+      summary: 'Submit a fitted fit for review',
+      description: 'An implausible fit (see its verdicts) is submitted only with `override`, an engineer\'s written reason (403 for other roles).',
+      body: { schema: submitSchema },
+      ok: { schema: R.reviewDone },
+      refusals: { 409: 'The fit is not in a state that allows this, or it is implausible and no override was given.' },
+    },
+  },
   '/api/fits/[id]/approve': {
     POST: { tag: 'Fits and reviews', summary: 'Approve: the unit\'s next parameter set version (four-eyes rule)', body: { schema: decisionSchema }, ok: { schema: R.reviewDone }, refusals: { 409: 'The fit is not awaiting review.' } },
   },
@@ -156,6 +187,39 @@ export const API_DOCS: Record<string, RouteDoc> = {
   '/api/alerts/[id]/acknowledge': { POST: { tag: 'Fleet and drift', summary: 'Acknowledge a drift alert with a comment', body: { schema: acknowledgeSchema }, ok: { schema: R.acknowledged }, refusals: { 409: 'Already acknowledged.' } } },
   '/api/parameter-sets/[id]/export': {
     GET: { tag: 'Parameter sets', summary: 'Download one file of an approved parameter set (logged)', query: exportQuery, ok: { contentType: ['application/json', 'text/csv', 'application/xml'], description: 'The file by `format`: json (application/json), csv (text/csv), urdf (application/xml); header x-content-sha256.' } },
+  },
+  '/api/parameter-sets/[id]/certificate': {
+    GET: {
+      tag: 'Parameter sets',
+      summary: 'The calibration certificate of an approved set (PDF, logged)',
+      description: 'The same bytes every time for the same set; headers x-content-sha256 and x-certificate-number.',
+      ok: { contentType: 'application/pdf' },
+    },
+  },
+  '/api/parameter-sets/[id]/accuracy-map': {
+    GET: { tag: 'Parameter sets', summary: 'Before/after accuracy map: predicted |calibrated − nominal| (mm) on three planes', ok: { schema: R.accuracyMap } },
+  },
+  '/api/units/[serial]/compensations': {
+    GET: { tag: 'Compensated programs', summary: 'The unit\'s compensated programs, newest first', ok: { schema: R.compensationList } },
+    POST: {
+      tag: 'Compensated programs',
+      summary: 'Compensate a program for the unit\'s current parameter set (202 at once; a job runs it)',
+      description: 'The whole file is checked first; a refusal lists every problem with line, column and field, and nothing is stored.',
+      body: { schema: compensationForm, contentType: 'multipart/form-data' },
+      ok: { status: 202, schema: R.compensationQueued },
+      refusals: { 409: 'The unit has no approved parameter set.', 413: 'The program is too large.', 415: 'Not multipart/form-data.' },
+    },
+  },
+  '/api/compensations': { GET: { tag: 'Compensated programs', summary: 'Every unit\'s compensated programs, newest first (the latest 100)', ok: { schema: R.compensationList } } },
+  '/api/compensations/[id]': { GET: { tag: 'Compensated programs', summary: 'One compensation: state, progress, checksums and (when done) statuses and corrections', ok: { schema: R.compensation } } },
+  '/api/compensations/[id]/file': {
+    GET: {
+      tag: 'Compensated programs',
+      summary: 'Download the compensated program (logged) or the uploaded one',
+      query: compensationFileQuery,
+      ok: { contentType: 'text/csv', description: 'The CSV; header x-content-sha256.' },
+      refusals: { 409: 'The compensated program is not ready yet.', 503: 'The file store is not reachable right now; try again shortly.' },
+    },
   },
   '/api/exports': {
     GET: { tag: 'Parameter sets', summary: 'The export log', query: logQuerySchema, ok: { schema: R.exportLog } },

@@ -6,6 +6,7 @@
 import { z } from 'zod';
 import { ROLES } from '../../shared/roles';
 import { FIT_STATES, REVIEW_STATES } from '../../../db/schema/fits';
+import { COMPENSATION_STATES } from '../../../db/schema/compensations';
 
 const id = z.uuid();
 const isoTime = z.string().describe('ISO 8601 date-time');
@@ -136,11 +137,38 @@ const fitSummary = z
   })
   .meta({ id: 'FitSummary' });
 export const fitList = z.looseObject({ items: z.array(fitSummary), ...page });
+const verdictLevel = z.enum(['pass', 'caution', 'implausible']);
+const judgementSettings = z
+  .looseObject({ lengthBoundMm: z.number(), angleBoundDeg: z.number(), instrumentNoiseMm: z.number(), toolFixture: z.boolean() })
+  .meta({ id: 'JudgementSettings', description: 'Plausible change bounds (mm, degrees), instrument noise (mm, 1σ per coordinate) and whether the tool is a fixed fixture.' });
+const verdicts = z
+  .looseObject({
+    level: verdictLevel.describe('The worst verdict.'),
+    verdicts: z.array(
+      z.looseObject({
+        rule: z.enum(['nominal-error', 'joint-readings', 'parameter-changes', 'residual-noise']),
+        level: verdictLevel,
+        title: z.string(),
+        reason: z.string().describe('Plain words: what was measured, against what, and what it likely means.'),
+        measured: z.number().optional(),
+        limit: z.number().optional(),
+      }),
+    ),
+    settings: judgementSettings,
+    rules: z.array(z.string()).describe('The rule of each check in one sentence.'),
+  })
+  .meta({ id: 'Verdicts' });
 export const fit = z.looseObject({
   fit: z.looseObject({
     id,
     state: z.enum(FIT_STATES),
     report: z.record(z.string(), z.unknown()).nullable(),
+    verdicts: verdicts.nullable().describe('The plausibility verdicts, once fitted.'),
+    submitNote: z.string().nullable(),
+    overrideNote: z.string().nullable().describe('The engineer\'s written override of an implausible verdict.'),
+    overrideByName: z.string().nullable(),
+    overrideAt: nullableTime,
+    exclusionNote: z.string().nullable().describe('Why poses were excluded in a refit.'),
     parameterSet: z.looseObject({ id, version: z.number().int(), state: z.string() }).nullable(),
   }),
 });
@@ -158,7 +186,33 @@ export const history = z.looseObject({
   parameterSets: z.array(z.looseObject({ id, version: z.number().int(), state: z.string(), approvedAt: isoTime })),
 });
 
-export const fleet = z.looseObject({ units: z.array(z.looseObject({})), parameters: z.array(z.looseObject({})) });
+export const fleet = z.looseObject({
+  model: z.looseObject({}),
+  statistics: z.looseObject({ alpha: z.number(), rule: z.string(), judgedParameters: z.number().int(), criticalScore: z.number().nullable(), toolFixture: z.boolean() }),
+  unitCount: z.number().int(),
+  flaggedUnits: z.array(z.string()),
+  units: z.array(
+    z.looseObject({
+      unitId: id,
+      serial: z.string(),
+      setId: id,
+      version: z.number().int(),
+      approvedAt: isoTime,
+      deviations: z.record(z.string(), z.number()),
+      criticalScore: z.number(),
+      flagged: z.boolean(),
+      outside: z.array(z.string()).describe('Parameter keys outside the fleet\'s limits.'),
+    }),
+  ),
+  parameters: z.array(z.looseObject({ key: z.string(), unit: z.enum(['mm', 'deg']), n: z.number().int(), judged: z.boolean(), outside: z.array(z.string()) })),
+  outside: z.array(z.looseObject({ serial: z.string(), key: z.string(), deviation: z.number(), lower: z.number(), upper: z.number() })),
+});
+export const judgement = z.looseObject({
+  modelId: id,
+  settings: judgementSettings,
+  defaults: z.boolean().describe('True while the model uses the defaults (nothing stored).'),
+  defaultSettings: judgementSettings,
+});
 const groupTolerances = z.record(z.string(), z.number().nullable());
 export const tolerances = z.looseObject({ modelId: id, modelName: z.string(), tolerances: groupTolerances, defaults: z.boolean() });
 export const drift = z.looseObject({
@@ -172,6 +226,65 @@ const alertRow = z.looseObject({ id, unitId: id, serial: z.string(), modelId: id
 export const alerts = z.looseObject({ alerts: z.array(alertRow) });
 export const acknowledged = z.looseObject({ ok: z.literal(true), alert: alertRow, unitNeedsAttention: z.boolean() });
 export const exportLog = z.looseObject({ entries: z.array(z.looseObject({ id: z.union([id, z.number()]), at: isoTime, kind: z.string(), userName: z.string() })), ...page });
+
+const accuracyPlane = z.looseObject({
+  axes: z.enum(['xy', 'xz', 'yz']),
+  fixed: z.looseObject({ axis: z.enum(['x', 'y', 'z']), at: z.number(), halfThickness: z.number() }),
+  u: z.array(z.number()).describe('Cell edges along the first axis (mm).'),
+  v: z.array(z.number()).describe('Cell edges along the second axis (mm).'),
+  cells: z.array(z.array(z.number().nullable())).describe('Mean |calibrated − nominal| (mm) per cell, row-major [iv][iu]; null where no sample lands.'),
+  samples: z.number().int(),
+});
+export const accuracyMap = z.looseObject({
+  parameterSetId: id,
+  version: z.number().int(),
+  planes: z.array(accuracyPlane),
+  scaleMaxMm: z.number(),
+  meanMm: z.number(),
+  maxMm: z.number(),
+  samples: z.number().int(),
+  seed: z.number().int(),
+  cellsPerSide: z.number().int(),
+});
+
+const frameSpec = z.looseObject({ x: z.number(), y: z.number(), z: z.number(), rx: z.number(), ry: z.number(), rz: z.number() });
+const sha = z.string().regex(/^[0-9a-f]{64}$/);
+const compensationFields = z.looseObject({
+    id,
+    serial: z.string(),
+    parameterSetId: id,
+    parameterSetVersion: z.number().int(),
+    state: z.enum(COMPENSATION_STATES),
+    frame: z.enum(['base', 'measurement']),
+    tool: frameSpec.nullable().describe('Tool point in the flange frame (mm, degrees), if one was given.'),
+    targetCount: z.number().int(),
+    input: z.looseObject({ name: z.string(), sha256: sha, bytes: z.number().int() }),
+    output: z.looseObject({ sha256: sha, bytes: z.number().int() }).nullable().describe('The compensated program, once done.'),
+    progress: z.looseObject({ done: z.number().int(), total: z.number().int() }).nullable(),
+    error: z.string().nullable(),
+    createdBy: z.string(),
+    createdAt: isoTime,
+    finishedAt: nullableTime,
+});
+const compensationRow = compensationFields.meta({ id: 'Compensation' });
+const ikStatus = z.enum(['reached', 'unreachable', 'outside-limits', 'singular', 'jump']);
+export const compensationList = z.looseObject({ compensations: z.array(compensationRow) });
+export const compensation = compensationFields.extend({
+  summary: z
+    .looseObject({
+      kind: z.enum(['cartesian', 'joint']),
+      counts: z.record(ikStatus, z.number().int()),
+      maxCorrectionMm: z.number(),
+      rmsCorrectionMm: z.number(),
+      histogram: z.looseObject({ edges: z.array(z.number()), counts: z.array(z.number().int()) }),
+      largest: z.array(z.looseObject({ target: z.string(), line: z.number().int(), correctionMm: z.number(), rotationDeg: z.number(), status: ikStatus })),
+      notReached: z.array(z.looseObject({ target: z.string(), line: z.number().int(), status: ikStatus, message: z.string() })),
+      milliseconds: z.number(),
+    })
+    .nullable()
+    .describe('Statuses and corrections, once done.'),
+}).meta({ id: 'CompensationDetail' });
+export const compensationQueued = z.looseObject({ id, url: z.string().describe('The page of the compensation; its state is at GET /api/compensations/{id}.') });
 
 export const webhookEndpoint = z
   .looseObject({ id, url: z.string(), events: z.array(z.string()), description: z.string(), active: z.boolean(), createdAt: isoTime, removedAt: nullableTime })
