@@ -39,6 +39,7 @@ import { querySchema as compareQuery } from '../../../pages/api/units/[serial]/c
 import { querySchema as driftQuery } from '../../../pages/api/units/[serial]/drift';
 import { querySchema as exportQuery } from '../../../pages/api/parameter-sets/[id]/export';
 import { body as invitationBody } from '../../../pages/api/invitations/[token]';
+import { confirmSchema as signOutEverywhereBody } from '../../../pages/api/me/sign-out-everywhere';
 import * as R from './responses';
 
 export interface OperationDoc {
@@ -79,6 +80,14 @@ export const API_DOCS: Record<string, RouteDoc> = {
   '/api/health': { GET: { tag: 'Service', summary: 'Liveness and readiness', description: '200 when the database, S3, mail and migrations are all up; 503 with the same body otherwise.', ok: { schema: R.health } } },
   '/api/openapi.json': { GET: { tag: 'Service', summary: 'This document (OpenAPI 3.1)', ok: { schema: R.openapiDocument } } },
   '/api/me': { GET: { tag: 'Account', summary: 'The signed-in user (or the token\'s user)', ok: { schema: R.me } } },
+  '/api/me/sign-out-everywhere': {
+    POST: {
+      tag: 'Account',
+      summary: 'End every browser session of the caller, on every device (API tokens stay)',
+      body: { schema: signOutEverywhereBody },
+      ok: { schema: z.object({ ended: z.number().int() }) },
+    },
+  },
   '/api/invitations/[token]': {
     GET: { tag: 'Account', summary: 'Whether an invitation link is still usable', ok: { schema: R.invitation } },
     POST: { tag: 'Account', summary: 'Set the password once; the link is spent', body: { schema: invitationBody }, ok: { schema: R.invitationAccepted } },

@@ -3,7 +3,7 @@ import { z } from 'zod';
 import { json, problems, readJson, zodProblems } from '../../../lib/server/http';
 import { endAllSessions } from '../../../lib/server/users';
 
-const confirmSchema = z.strictObject({
+export const confirmSchema = z.strictObject({
   confirm: z.literal(true, { error: 'send { "confirm": true } to end every browser session of yours' }),
 });
 
