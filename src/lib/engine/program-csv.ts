@@ -9,13 +9,13 @@
  * (a misspelt `rz` must not silently turn a program into position-only targets).
  *
  * Output (OUT.csv): `target,q1…qn,x,y,z,rx,ry,rz,status,message`, numbers at full double precision
- * (JavaScript's shortest round-trip form), written by csv-stringify with spreadsheet formulas
+ * (JavaScript's shortest round-trip form), written by the product's one CSV writer (csv-stringify) with spreadsheet formulas
  * neutralised in text cells (a target named "=1+2" is written as "'=1+2").
  *
  * Line numbers are physical lines from 1 (header = 1).
  */
 import { parse } from 'csv-parse/sync';
-import { stringify } from 'csv-stringify/sync';
+import { csvText } from '../shared/csv';
 import type { InputProblem } from './types';
 
 export interface ProgramTarget {
@@ -144,13 +144,13 @@ export interface CompensatedRow {
 }
 
 /**
- * OUT.csv text. The one place that writes program CSV (csv-stringify; text cells beginning with
+ * OUT.csv text, through the product's one CSV writer (src/lib/shared/csv.ts: text cells beginning with
  * = + - @ tab or carriage return are prefixed with ' so spreadsheets show them as text).
  */
 export function compensatedCsv(rows: CompensatedRow[], jointCount: number): string {
   const header = ['target', ...Array.from({ length: jointCount }, (_, i) => `q${i + 1}`), 'x', 'y', 'z', 'rx', 'ry', 'rz', 'status', 'message'];
   const body = rows.map((r) => [r.target, ...r.q, r.x, r.y, r.z, r.rx, r.ry, r.rz, r.status, r.message]);
-  return stringify([header, ...body], { escape_formulas: true, record_delimiter: 'unix', cast: { number: (v) => String(v) } });
+  return csvText([header, ...body], { eol: '\n' });
 }
 
 /** A program as CSV (the input contract), e.g. for the demo's invented programs. */
@@ -165,5 +165,5 @@ export function programCsv(targets: ProgramTarget[], jointCount: number): string
     if (t.q) row.push(...t.q);
     return row;
   });
-  return stringify([cols, ...body], { escape_formulas: true, record_delimiter: 'unix', cast: { number: (v) => String(v) } });
+  return csvText([cols, ...body], { eol: '\n' });
 }
