@@ -85,6 +85,12 @@ describe('program compensation in the browser', () => {
     expect(rows).toHaveLength(20);
     expect(rows[0].target).toBe('HOLE-1-1');
     expect(rows.every((r) => r.status === 'reached')).toBe(true);
+    // Once done, the page shows the program in 3-D: every target in the view's list, drawn as a target.
+    await page.reload();
+    const view = page.locator('[data-compensation-3d]');
+    await view.locator('[data-view3d-list] li').first().waitFor({ timeout: 30_000 });
+    expect(await view.locator('[data-view3d-list] li').count()).toBe(20);
+    await expect(view.textContent()).resolves.toMatch(/target point/);
     for (const width of [390, 768, 1440]) {
       await page.setViewportSize({ width, height: 1000 });
       await page.screenshot({ path: `tmp/screens/compensation-${width}.png`, fullPage: true });

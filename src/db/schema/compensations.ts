@@ -22,6 +22,12 @@ export interface CompensationSummary {
   /** Targets whose status is not "reached", in program order (at most 200), with the plain-words message. */
   notReached: { target: string; line: number; status: string; message: string }[];
   milliseconds: number;
+  /**
+   * The targets for the 3-D view (at most a few thousand; the largest corrections kept): original target
+   * `p` and correction `e` = compensated − original (mm, robot base frame), calibrated joint values `q`.
+   * Served apart from the summary (src/lib/server/compensations.ts compensationScene).
+   */
+  points?: { label: string; role: 'target'; p: [number, number, number]; e: [number, number, number]; q: number[] }[];
 }
 
 /**

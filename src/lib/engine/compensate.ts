@@ -39,6 +39,8 @@ export interface CompensatedTarget extends CompensatedRow {
   line: number;
   /** Size of the correction: distance between the compensated and the original target (mm). */
   correction: number;
+  /** The correction as a vector: compensated − original target position (mm, robot base frame). */
+  correctionVector: [number, number, number];
   /** Angle between the compensated and the original orientation (deg). */
   rotationCorrection: number;
   positionError: number;
@@ -161,12 +163,13 @@ export function* compensationSteps(calibrated: ArmGeometry, nominal: ArmGeometry
     // For frame = measurement the original target is in the tracker frame: compare in the base frame.
     let originalBase = original;
     if (frame === 'measurement' && program.kind === 'cartesian') originalBase = toBase(calibrated.base!, original);
-    const correction = Math.hypot(c.position[0] - originalBase.position[0], c.position[1] - originalBase.position[1], c.position[2] - originalBase.position[2]);
+    const correctionVector: [number, number, number] = [c.position[0] - originalBase.position[0], c.position[1] - originalBase.position[1], c.position[2] - originalBase.position[2]];
+    const correction = Math.hypot(...correctionVector);
     const rotationCorrection = originalBase.rotation.length === 9 ? angleBetween(c.rotation, originalBase.rotation) : 0;
     out.push({
       target: t.name, line: t.line, q: r.q,
       x: c.position[0], y: c.position[1], z: c.position[2], rx: a.rx, ry: a.ry, rz: a.rz,
-      status: r.status, message: r.message, correction, rotationCorrection,
+      status: r.status, message: r.message, correction, correctionVector, rotationCorrection,
       positionError: r.positionError, orientationError: r.orientationError, smallestSingularValue: r.smallestSingularValue,
     });
     if (r.status !== 'unreachable' && r.status !== 'outside-limits') previous = r.q;

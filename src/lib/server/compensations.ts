@@ -23,6 +23,8 @@ import { log } from './log';
 import { multipartBoundary, readMultipart } from './multipart';
 import { deleteObject, getObjectBytes, putObject } from './s3';
 import { sha256 } from './tokens';
+import { decimatePoses } from '../../components/view3d/decimate';
+import type { View3DProps } from '../../components/view3d/types';
 
 export const COMPENSATE_QUEUE = 'compensate';
 const HISTOGRAM_BINS = 20;
@@ -166,7 +168,32 @@ export function summarise(result: CompensationResult): CompensationSummary {
     .map((t) => ({ target: t.target, line: t.line, correctionMm: t.correction, rotationDeg: t.rotationCorrection, status: t.status }));
   const notReached = result.targets.filter((t) => t.status !== 'reached').slice(0, LIST_CAP)
     .map((t) => ({ target: t.target, line: t.line, status: t.status, message: t.message }));
-  return { kind: result.kind, counts: result.counts, maxCorrectionMm: result.maxCorrection, rmsCorrectionMm: result.rmsCorrection, histogram: { edges, counts }, largest, notReached, milliseconds: result.milliseconds };
+  const points = decimatePoses(
+    good.map((t) => ({ label: t.target, role: 'target' as const, p: [t.x - t.correctionVector[0], t.y - t.correctionVector[1], t.z - t.correctionVector[2]] as [number, number, number], e: t.correctionVector, q: t.q })),
+  ) as NonNullable<CompensationSummary['points']>;
+  return { kind: result.kind, counts: result.counts, maxCorrectionMm: result.maxCorrection, rmsCorrectionMm: result.rmsCorrection, histogram: { edges, counts }, largest, notReached, milliseconds: result.milliseconds, points };
+}
+
+/**
+ * The 3-D view of a compensated program: the nominal arm (robot base frame, the program's tool) drawn at the
+ * calibrated joint values, which is where it lands on the compensated target, each original target with its
+ * correction vector. Undefined until the program is done.
+ */
+export async function compensationScene(id: string, database: Db = sharedDb()): Promise<View3DProps | undefined> {
+  const [r] = await database
+    .select({ points: sql<CompensationSummary['points'] | null>`${compensations.summary}->'points'`, tool: compensations.tool, nominal: armModelRevisions.geometry, total: compensations.targetCount })
+    .from(compensations)
+    .innerJoin(armModelRevisions, eq(armModelRevisions.id, compensations.nominalRevisionId))
+    .where(eq(compensations.id, id));
+  if (!r?.points?.length) return undefined;
+  const nominal = r.nominal as ArmGeometry;
+  return {
+    geometry: { ...nominal, base: undefined, tool: (r.tool as FrameSpec | null) ?? nominal.tool },
+    poses: r.points,
+    total: r.total,
+    errorMeaning: 'compensated − original target (robot base frame); the arm is the nominal model at the calibrated joint values',
+    title: 'The program in 3-D',
+  };
 }
 
 /** Run one compensation (exactly-once effect: claimed queued|running → running; written only while running). */
@@ -287,7 +314,10 @@ const base = (database: Db) =>
 
 export async function getCompensation(id: string, database: Db = sharedDb()): Promise<CompensationView | undefined> {
   const [r] = await base(database).where(eq(compensations.id, id));
-  return r ? { ...view({ ...r.c, serial: r.serial, version: r.version, userName: r.userName }), summary: r.c.summary } : undefined;
+  if (!r) return undefined;
+  // The 3-D view's points are served by compensationScene, not with the summary.
+  const { points: _points, ...summary } = r.c.summary ?? ({} as CompensationSummary);
+  return { ...view({ ...r.c, serial: r.serial, version: r.version, userName: r.userName }), summary: r.c.summary ? summary : null };
 }
 
 /** Compensations of a unit (or of every unit), newest first, without their summaries. */
