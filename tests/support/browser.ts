@@ -47,7 +47,11 @@ export async function signInPage(page: Page, email: string, password = DEMO_PASS
   await Promise.all([page.waitForURL((u) => !u.pathname.startsWith('/signin'), { timeout: 20_000 }), page.getByRole('button', { name: 'Sign in' }).click()]);
 }
 
-/** Wait until every island on the page is hydrated (Astro drops the `ssr` attribute when one is). */
+/**
+ * Wait until every island the page hydrates at load is hydrated (Astro drops the `ssr` attribute when one
+ * is). Islands mounted with client:visible (the 3-D view) hydrate only when scrolled into view, so they are
+ * not waited for here.
+ */
 export async function islandsHydrated(page: Page, timeout = 20_000) {
-  await page.waitForFunction(() => document.querySelectorAll('astro-island[ssr]').length === 0, undefined, { timeout });
+  await page.waitForFunction(() => document.querySelectorAll('astro-island[ssr]:not([client="visible"])').length === 0, undefined, { timeout });
 }
