@@ -73,9 +73,10 @@ describe('summarisePoses (the fit summary at 100 000 poses)', () => {
     const labels = new Set(chart.map((c) => c.label));
     for (const k of big) expect(labels.has(`P${k}`)).toBe(true);
     expect(labels.has('P500') && labels.has('P60001')).toBe(true);
-    // The largest residuals overall (after or before) are all drawn: here, the 500 largest.
-    const ranked = poses.map((p, i) => [Math.max(p.errorAfter, p.errorBefore), i] as const).sort((a, b) => b[0] - a[0]).slice(0, 500);
-    for (const [, i] of ranked) expect(labels.has(`P${i}`)).toBe(true);
+    // The largest residuals after calibration (the 500 largest) and before (the 250 largest) are all drawn.
+    const ranked = (f: (p: PoseResidual) => number, k: number) => poses.map((p, i) => [f(p), i] as const).sort((a, b) => b[0] - a[0]).slice(0, k);
+    for (const [, i] of ranked((p) => p.errorAfter, 500)) expect(labels.has(`P${i}`)).toBe(true);
+    for (const [, i] of ranked((p) => p.errorBefore, 250)) expect(labels.has(`P${i}`)).toBe(true);
     // Index is the 1-based order in the file.
     expect(chart.find((c) => c.label === 'P31337')!.index).toBe(31_338);
     expect(chart.filter((c) => c.outlier).map((c) => c.label)).toEqual(['P500', 'P60001']);

@@ -88,10 +88,17 @@ const r3 = (v: number) => Math.round(v * 1e3) / 1e3;
 export function summarisePoses(poses: readonly PoseResidual[]): PoseSummary {
   const counts = { fit: 0, holdout: 0, excluded: 0 };
   for (const p of poses) counts[p.role]++;
+  // Kept first: flagged outliers, and the largest errors before and after (a sixth of the budget each);
+  // then half of what is left by the error after calibration, then an even sample.
+  const sixth = Math.floor(CHART_POSE_LIMIT / 6);
+  const largest = (f: (p: PoseResidual) => number) =>
+    new Set(poses.map((p, i) => [f(p), i] as const).sort((a, b) => b[0] - a[0]).slice(0, sixth).map(([, i]) => i));
+  const byAfter = largest((p) => p.errorAfter);
+  const byBefore = largest((p) => p.errorBefore);
   const series = decimate(
     poses.map((p, i) => ({ p, i })),
     CHART_POSE_LIMIT,
-    { keep: ({ p }) => p.outlier && p.role === 'fit', score: ({ p }) => Math.max(p.errorAfter, p.errorBefore) },
+    { keep: ({ p, i }) => (p.outlier && p.role === 'fit') || byAfter.has(i) || byBefore.has(i), score: ({ p }) => p.errorAfter },
   );
   const chart: ChartSeries = {
     index: series.map(({ i }) => i + 1),
