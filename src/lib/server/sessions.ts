@@ -533,7 +533,7 @@ type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
  * A session's poses in one `unnest` statement per BULK_ROWS rows (one array parameter per column instead of
  * one parameter per cell): 100 000 rows in four round trips, inside the caller's transaction.
  */
-async function insertSessionPoses(tx: Tx, sessionId: string, poses: ParsedSession['poses'], outside: Set<number>): Promise<void> {
+async function insertSessionPoses(tx: Tx, sessionId: string, poses: ParsedSession['poses'], outside: Set<number | undefined>): Promise<void> {
   for (let k = 0; k < poses.length; k += BULK_ROWS) {
     const part = poses.slice(k, k + BULK_ROWS);
     await tx.execute(sql`
