@@ -2,6 +2,7 @@
 // npm run bench: prints figures; never fails on a target (targets are printed beside the figures).
 //   engine — fit time at 60 / 500 / 5 000 / 20 000 poses, beside ml-levenberg-marquardt and SciPy
 //   load   — HTTP load against a seeded app (scripts/bench-load.mjs), when present
+//   scale  — upload, fit, pages and APIs at 1 000 / 10 000 / 100 000 poses (scripts/bench-scale.ts)
 // Pass a name to run one: npm run bench -- engine
 import { spawnSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
@@ -10,6 +11,7 @@ const only = process.argv[2];
 const parts = [
   { name: 'engine', cmd: ['npx', 'tsx', 'scripts/bench-engine.ts'] },
   { name: 'load', cmd: ['node', 'scripts/bench-load.mjs'], file: 'scripts/bench-load.mjs' },
+  { name: 'scale', cmd: ['npx', 'tsx', 'scripts/bench-scale.ts'], file: 'scripts/bench-scale.ts' },
 ];
 let status = 0;
 for (const p of parts) {
