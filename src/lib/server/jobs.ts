@@ -157,6 +157,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
     await markFailed(database, fitId, claimed.unitId, `The stored fit settings are invalid: ${settings.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}.`);
     return 'failed';
   }
+  const loadStarted = performance.now();
   // Only the columns the engine takes (the q arrays are most of the bytes).
   const rows = await database
     .select({ label: sessionPoses.label, line: sessionPoses.line, q: sessionPoses.q, x: sessionPoses.x, y: sessionPoses.y, z: sessionPoses.z, split: sessionPoses.split })
@@ -187,6 +188,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
   };
 
   const started = performance.now();
+  const loadMs = Math.round(started - loadStarted);
   let report: FitReport;
   try {
     report = await runEngine({ nominal, poses, options: toFitOptions(settings.data), onIteration });
@@ -200,6 +202,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
   }
   const durationMs = Math.round(performance.now() - started);
   await writing;
+  const storeStarted = performance.now();
   // The summary goes into fits.report, the per-pose part into fit_poses (one statement per 25 000 poses).
   const { poses: poseResults, ...withoutPoses } = report;
   const safe = jsonSafe({ ...withoutPoses, poseSummary: summarisePoses(poseResults) });
@@ -239,6 +242,8 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
     });
     return true;
   });
+  // Where the time of a fit goes (load the poses, run the engine, store the results): for the scale benchmark.
+  log('info', 'fit phases', { fitId, poses: poses.length, loadMs, engineMs: durationMs, engineCoreMs: Math.round(report.timing.totalMs), storeMs: Math.round(performance.now() - storeStarted) });
   return done ? 'fitted' : 'skipped';
 }
 
