@@ -4,6 +4,7 @@
 //   ik     — compensation of a 10 000-target program (targets/second), beside SciPy least_squares
 //   load   — HTTP load against a seeded app (scripts/bench-load.mjs), when present
 //   certificate — time to draw a calibration certificate and its accuracy map
+//   scale  — upload, fit, pages and APIs at 1 000 / 10 000 / 100 000 poses (scripts/bench-scale.ts)
 // Pass a name to run one: npm run bench -- engine
 import { spawnSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
@@ -14,6 +15,7 @@ const parts = [
   { name: 'ik', cmd: ['npx', 'tsx', 'scripts/bench-ik.ts'] },
   { name: 'load', cmd: ['node', 'scripts/bench-load.mjs'], file: 'scripts/bench-load.mjs' },
   { name: 'certificate', cmd: ['npx', 'tsx', 'scripts/bench-certificate.ts'] },
+  { name: 'scale', cmd: ['npx', 'tsx', 'scripts/bench-scale.ts'], file: 'scripts/bench-scale.ts' },
 ];
 let status = 0;
 for (const p of parts) {

@@ -147,6 +147,9 @@ describe('a worker killed mid-fit', () => {
     // Through the API the fit is complete.
     const res = await engineer.json(`/api/fits/${fitId}`);
     expect(res.body.fit).toMatchObject({ state: 'fitted', attempts: 2 });
-    expect(res.body.fit.report.poses).toHaveLength(POSES);
+    expect(res.body.fit.report.poseSummary.count).toBe(POSES);
+    const page = await engineer.json(`/api/fits/${fitId}/poses?pageSize=1000`);
+    expect(page.body.total).toBe(POSES);
+    expect(page.body.poses).toHaveLength(POSES);
   }, 300_000);
 });

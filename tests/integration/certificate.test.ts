@@ -13,7 +13,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { seedScenario } from '../../scripts/demo-scenario';
 import { seedHistory } from '../../scripts/demo-history';
 import { fits, parameterSets, sessionPoses, sessions, units, users } from '../../src/db/schema';
-import type { FitReport } from '../../src/lib/engine/fit';
+import type { FitReportSummary } from '../../src/lib/shared/fit-summary';
 import { iso9283, repeatGroups } from '../../src/lib/engine/iso9283';
 import { forwardPoint } from '../../src/lib/engine/kinematics';
 import { fmtMm, fmtSe, fmtValue } from '../../src/lib/server/certificate-pdf';
@@ -85,7 +85,7 @@ describe('calibration certificate', () => {
     const [s] = await db.select().from(parameterSets).where(eq(parameterSets.id, setId));
     const [f] = await db.select().from(fits).where(eq(fits.id, s!.fitId));
     const [session] = await db.select().from(sessions).where(eq(sessions.id, f!.sessionId));
-    const report = f!.report as unknown as FitReport;
+    const report = f!.report as unknown as FitReportSummary;
     const name = async (id: string | null) => (await db.select({ name: users.name }).from(users).where(eq(users.id, id!)))[0]!.name;
     const year = s!.approvedAt.getUTCFullYear();
     const certNo = `OC-${year}-${String(s!.certificateNo).padStart(6, '0')}`;
@@ -116,7 +116,7 @@ describe('calibration certificate', () => {
     expect(tight(text)).toContain(tight(report.convention === 'dh' ? 'Denavit–Hartenberg (DH)' : 'modified Denavit–Hartenberg'));
     const identified = report.parameters.filter((p) => p.status === 'identified').length;
     expect(tight(text)).toContain(tight(`${identified} parameters were identified by Levenberg–Marquardt`));
-    expect(tight(text)).toContain(tight(`${report.poses.filter((p) => p.role === 'fit').length} poses were fitted`));
+    expect(tight(text)).toContain(tight(`${report.poseSummary.fit} poses were fitted`));
     // Fixed parameters with their reasons (a reason may wrap inside its table cell: compare the words).
     const words = (x: string) => x.replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
     for (const p of report.parameters.filter((x) => x.status === 'fixed')) {

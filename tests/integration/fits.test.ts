@@ -34,7 +34,7 @@ describe('POST /api/sessions/{id}/fits', () => {
     expect(fit.attempts).toBe(1);
 
     const report = fit.report;
-    for (const field of ['parameters', 'correlation', 'highCorrelations', 'observability', 'iterations', 'statistics', 'poses', 'outliers', 'calibrated', 'timing']) {
+    for (const field of ['parameters', 'correlation', 'highCorrelations', 'observability', 'iterations', 'statistics', 'poseSummary', 'outliers', 'calibrated', 'timing']) {
       expect(report, field).toHaveProperty(field);
     }
     const { before, after } = report.statistics.fit;
@@ -43,7 +43,10 @@ describe('POST /api/sessions/{id}/fits', () => {
     expect(report.statistics.holdout).not.toBeNull();
     expect(report.statistics.holdout.after.rms).toBeLessThan(report.statistics.holdout.before.rms);
     expect(report.statistics.crossValidation.k).toBe(3);
-    expect(report.poses).toHaveLength(60);
+    expect(report).not.toHaveProperty('poses');
+    expect(report.poseSummary.count).toBe(60);
+    const posePage = await engineer.json(`/api/fits/${fit.id}/poses?pageSize=1000`);
+    expect(posePage.body.poses).toHaveLength(60);
     // The bumped target (1.5 mm on x) stands out.
     expect(report.outliers).toContain('P007');
 
@@ -111,7 +114,8 @@ describe('refit with excluded poses', () => {
     expect(child.state).toBe('fitted');
     expect(child.parentFitId).toBe(parent.id);
     expect(child.settings.exclude).toEqual(['P007']);
-    const excluded = child.report.poses.find((p: { label: string }) => p.label === 'P007');
+    const childPoses = (await engineer.json(`/api/fits/${child.id}/poses?pageSize=1000`)).body.poses;
+    const excluded = childPoses.find((p: { label: string }) => p.label === 'P007');
     expect(excluded.role).toBe('excluded');
     // Without the bumped pose the fit explains the rest better.
     expect(child.report.statistics.fit.after.rms).toBeLessThan(parent.report.statistics.fit.after.rms);

@@ -1,6 +1,7 @@
 import { useEffect, useId, useMemo, useRef, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Cell, Legend, ResponsiveContainer, Scatter, ScatterChart, Symbols, Tooltip, XAxis, YAxis } from 'recharts';
-import type { FitReport as EngineReport, ParameterReport, PoseResidual } from '../../lib/engine/fit';
+import type { ParameterReport } from '../../lib/engine/fit';
+import { chartPoses, type FitReportSummary as EngineReport, type PoseSummary } from '../../lib/shared/fit-summary';
 import type { ErrorStats } from '../../lib/engine/types';
 import type { Verdicts } from '../../lib/engine/plausibility';
 import { api, type ApiError } from '../../lib/shared/api-client';
@@ -60,10 +61,8 @@ interface Props {
 const ACCENT = '#0f6e6e';
 const NOMINAL = '#8a94a6';
 const ATTENTION = '#b7791f';
-/** Charts draw at most this many poses (an even sample); tables and CSV files carry every pose. */
-const CHART_LIMIT = 1500;
 
-function Numbers({ name, header, rows, children }: { name: string; header: string[]; rows: (string | number | null)[][]; children?: React.ReactNode }) {
+function Numbers({ name, header, rows, children, csvHref }: { name: string; header: string[]; rows: (string | number | null)[][]; children?: React.ReactNode; csvHref?: string }) {
   const [shown, setShown] = useState(false);
   // The chart's text alternative: the button names the table it opens, and the table takes focus when shown.
   const id = useId();
@@ -74,9 +73,13 @@ function Numbers({ name, header, rows, children }: { name: string; header: strin
         <button type="button" className="btn btn-quiet" aria-expanded={shown} aria-controls={id} onClick={() => setShown(!shown)}>
           {shown ? 'Hide the numbers' : 'Show the numbers'}
         </button>
-        <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(name, header, rows)}>
-          Download CSV
-        </button>
+        {csvHref ? (
+          <a className="btn btn-quiet" href={csvHref} download={name}>Download CSV</a>
+        ) : (
+          <button type="button" className="btn btn-quiet" onClick={() => downloadCsv(name, header, rows)}>
+            Download CSV
+          </button>
+        )}
       </div>
       {shown && (
         <div id={id} ref={tableRef} className="mt-2 max-h-96 overflow-auto" role="region" aria-label={`Numbers behind the chart (${name})`}>
@@ -98,10 +101,78 @@ function Numbers({ name, header, rows, children }: { name: string; header: strin
   );
 }
 
-function sample<T>(items: T[]): T[] {
-  if (items.length <= CHART_LIMIT) return items;
-  const step = items.length / CHART_LIMIT;
-  return Array.from({ length: CHART_LIMIT }, (_, i) => items[Math.floor(i * step)]!);
+interface PoseRowView {
+  order: number;
+  label: string;
+  line: number;
+  role: string;
+  errorBefore: number;
+  errorAfter: number;
+  after: [number, number, number];
+  standardised: number | null;
+}
+
+const PAGE_SIZE = 100;
+
+/** Every pose's numbers, a page at a time from /api/fits/{id}/poses (the page itself carries only a sample). */
+function PosePages({ fitId, total, axes }: { fitId: string; total: number; axes?: boolean }) {
+  const [page, setPage] = useState(1);
+  const [order, setOrder] = useState<'file' | 'largest'>('file');
+  const [rows, setRows] = useState<PoseRowView[] | null>(null);
+  const [failed, setFailed] = useState<string | null>(null);
+  const pages = Math.max(1, Math.ceil(total / PAGE_SIZE));
+  useEffect(() => {
+    let stop = false;
+    setFailed(null);
+    api<{ poses: PoseRowView[] }>(`/api/fits/${fitId}/poses?page=${page}&pageSize=${PAGE_SIZE}&order=${order}`).then((res) => {
+      if (stop) return;
+      if (res.data) setRows(res.data.poses);
+      else setFailed(res.error?.error ?? 'The poses could not be loaded.');
+    });
+    return () => {
+      stop = true;
+    };
+  }, [fitId, page, order]);
+  return (
+    <div data-pose-pages>
+      <div className="mb-2 flex flex-wrap items-center gap-2 text-sm">
+        <label className="flex items-center gap-2">
+          <span>Order</span>
+          <select className="input" value={order} onChange={(e) => { setOrder(e.target.value as 'file' | 'largest'); setPage(1); }}>
+            <option value="file">as in the file</option>
+            <option value="largest">largest residual after first</option>
+          </select>
+        </label>
+        <button type="button" className="btn btn-quiet" disabled={page <= 1} onClick={() => setPage(page - 1)}>← Previous</button>
+        <span role="status">Page {page} of {pages} ({total} poses)</span>
+        <button type="button" className="btn btn-quiet" disabled={page >= pages} onClick={() => setPage(page + 1)}>Next →</button>
+      </div>
+      {failed && <p className="notice notice-error" role="alert">✕ {failed}</p>}
+      {rows && (
+        <table className="data-table">
+          <thead>
+            {axes ? (
+              <tr><th>Pose</th><th className="num">dx (mm)</th><th className="num">dy (mm)</th><th className="num">dz (mm)</th></tr>
+            ) : (
+              <tr><th>Pose</th><th className="num">Order</th><th>Role</th><th className="num">Before (mm)</th><th className="num">After (mm)</th><th className="num">dx (mm)</th><th className="num">dy (mm)</th><th className="num">dz (mm)</th><th className="num">Standardised</th></tr>
+            )}
+          </thead>
+          <tbody>
+            {rows.map((p) =>
+              axes ? (
+                <tr key={p.order}><td>{p.label}</td><td className="num">{mm(p.after[0])}</td><td className="num">{mm(p.after[1])}</td><td className="num">{mm(p.after[2])}</td></tr>
+              ) : (
+                <tr key={p.order}>
+                  <td>{p.label}</td><td className="num">{p.order}</td><td>{p.role}</td><td className="num">{mm(p.errorBefore)}</td><td className="num">{mm(p.errorAfter)}</td>
+                  <td className="num">{mm(p.after[0])}</td><td className="num">{mm(p.after[1])}</td><td className="num">{mm(p.after[2])}</td><td className="num">{p.standardised === null ? '—' : p.standardised.toFixed(2)}</td>
+                </tr>
+              ),
+            )}
+          </tbody>
+        </table>
+      )}
+    </div>
+  );
 }
 
 function StatsTable({ report }: { report: EngineReport }) {
@@ -139,30 +210,21 @@ function StatsTable({ report }: { report: EngineReport }) {
   );
 }
 
-function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: string }) {
+function ResidualCharts({ summary, fitId, fileBase }: { summary: PoseSummary; fitId: string; fileBase: string }) {
   // The pose's role travels as `poseRole`: recharts spreads data fields onto SVG elements, and a `role`
   // field would become an (invalid) ARIA role attribute on every mark.
-  const data = useMemo(() => sample(poses.map((p, i) => ({ index: i + 1, label: p.label, line: p.line, poseRole: roleOf(p), before: p.errorBefore, after: p.errorAfter, dx: p.after[0], dy: p.after[1], dz: p.after[2] }))), [poses]);
-  const excludedCount = poses.filter((p) => p.role === 'excluded').length;
-  const histogram = useMemo(() => {
-    const used = poses.filter((p) => p.role !== 'excluded');
-    const top = Math.max(...used.map((p) => Math.max(p.errorBefore, p.errorAfter)), 1e-6);
-    const bins = 20;
-    const width = top / bins;
-    const out = Array.from({ length: bins }, (_, k) => ({ from: k * width, to: (k + 1) * width, bin: `${mm(k * width)}–${mm((k + 1) * width)}`, before: 0, after: 0 }));
-    for (const p of used) {
-      out[Math.min(bins - 1, Math.floor(p.errorBefore / width))]!.before++;
-      out[Math.min(bins - 1, Math.floor(p.errorAfter / width))]!.after++;
-    }
-    return out;
-  }, [poses]);
-  const sampled = data.length < poses.length;
-  const poseRows = poses.map((p, i) => [p.label, i + 1, p.role, p.errorBefore, p.errorAfter, p.after[0], p.after[1], p.after[2], p.standardised]);
+  // The chart series was decimated when the fit was stored (outliers, excluded poses and the largest
+  // residuals always kept); the histogram counts every pose.
+  const data = useMemo(() => chartPoses(summary.chart).map((p) => ({ index: p.index, label: p.label, line: p.line, poseRole: roleOf(p), before: p.before, after: p.after, dx: p.d[0], dy: p.d[1], dz: p.d[2] })), [summary]);
+  const excludedCount = summary.excluded;
+  const histogram = useMemo(() => summary.histogram.map((h) => ({ ...h, bin: `${mm(h.from)}–${mm(h.to)}` })), [summary]);
+  const sampled = data.length < summary.count;
+  const csvHref = `/api/fits/${fitId}/poses?format=csv`;
   return (
     <>
       <section className="card mb-6">
         <h2 className="mb-1">Residual per pose</h2>
-        <p className="mb-2 text-sm text-ink-soft">3-D distance between measured and predicted point, with the nominal geometry (grey) and the calibrated one (teal).{excludedCount ? ` Excluded poses (${excludedCount}, not used by the fit) are drawn as hollow, dashed bars.` : ''}{sampled ? ` Every ${Math.round(poses.length / data.length)}th pose drawn; the numbers hold all ${poses.length}.` : ''}</p>
+        <p className="mb-2 text-sm text-ink-soft">3-D distance between measured and predicted point, with the nominal geometry (grey) and the calibrated one (teal).{excludedCount ? ` Excluded poses (${excludedCount}, not used by the fit) are drawn as hollow, dashed bars.` : ''}{sampled ? ` ${data.length} of the ${summary.count} poses drawn: every outlier and excluded pose, the largest residuals, and an even sample of the rest; the numbers hold all ${summary.count}.` : ''}</p>
         <div className="h-72" data-chart="residuals">
           <ResponsiveContainer width="100%" height="100%">
             <BarChart data={data} margin={{ top: 8, right: 16, bottom: 24, left: 16 }}>
@@ -185,7 +247,9 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
             </BarChart>
           </ResponsiveContainer>
         </div>
-        <Numbers name={`${fileBase}-residuals.csv`} header={['pose', 'order', 'role', 'before_mm', 'after_mm', 'dx_mm', 'dy_mm', 'dz_mm', 'standardised']} rows={poseRows} />
+        <Numbers name={`${fileBase}-residuals.csv`} header={[]} rows={[]} csvHref={csvHref}>
+          <PosePages fitId={fitId} total={summary.count} />
+        </Numbers>
       </section>
 
       <div className="mb-6 grid gap-6 lg:grid-cols-2">
@@ -257,7 +321,9 @@ function ResidualCharts({ poses, fileBase }: { poses: PoseResidual[]; fileBase: 
               </ScatterChart>
             </ResponsiveContainer>
           </div>
-          <Numbers name={`${fileBase}-axes.csv`} header={['pose', 'dx_mm', 'dy_mm', 'dz_mm']} rows={poses.map((p) => [p.label, p.after[0], p.after[1], p.after[2]])} />
+          <Numbers name={`${fileBase}-residuals.csv`} header={[]} rows={[]} csvHref={csvHref}>
+            <PosePages fitId={fitId} total={summary.count} axes />
+          </Numbers>
         </section>
       </div>
     </>
@@ -423,12 +489,12 @@ export default function FitReport({ initial, canSubmit, canRefit, canOverride = 
   const outlierLabels = useMemo(() => {
     if (!report) return [];
     // Outliers first, then the largest standardised residuals, so a second suspect is one click away too.
-    const ranked = report.poses
+    const ranked = report.poseSummary.suspects
       .filter((p) => p.role === 'fit' && p.standardised !== null)
       .sort((a, b) => (b.standardised ?? 0) - (a.standardised ?? 0))
       .slice(0, 8)
       .map((p) => p.label);
-    return [...new Set([...report.outliers, ...ranked])];
+    return [...new Set([...report.outliers.slice(0, 200), ...ranked])];
   }, [report]);
 
   const implausible = fit.verdicts?.level === 'implausible';
@@ -504,7 +570,7 @@ export default function FitReport({ initial, canSubmit, canRefit, canOverride = 
           </section>
           <FitWarnings report={report} />
 
-          <ResidualCharts poses={report.poses} fileBase={fileBase} />
+          <ResidualCharts summary={report.poseSummary} fitId={fit.id} fileBase={fileBase} />
           {children}
           <ParameterTable parameters={report.parameters} fileBase={fileBase} />
           <CorrelationMap report={report} fileBase={fileBase} />
@@ -523,7 +589,7 @@ export default function FitReport({ initial, canSubmit, canRefit, canOverride = 
                 <thead><tr><th>Exclude</th><th>Pose</th><th className="num">After (mm)</th><th className="num">Standardised</th><th>Flag</th></tr></thead>
                 <tbody>
                   {outlierLabels.map((label) => {
-                    const p = report.poses.find((x) => x.label === label || `line:${x.line}` === label);
+                    const p = report.poseSummary.suspects.find((x) => x.label === label || `line:${x.line}` === label);
                     return (
                       <tr key={label}>
                         <td>

@@ -12,7 +12,7 @@ const LOOK: Record<FitWarning['severity'], { className: string; icon: string; wo
   info: { className: 'notice', icon: '●', word: 'Note' },
 };
 
-export default function FitWarnings({ report }: { report: FitReport }) {
+export default function FitWarnings({ report }: { report: Omit<FitReport, 'poses'> }) {
   const warnings = report.warnings as FitWarning[] | undefined;
   const order = { serious: 0, warning: 1, info: 2 } as const;
   const sorted = (warnings ?? []).slice().sort((a, b) => order[a.severity] - order[b.severity]);

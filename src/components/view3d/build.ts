@@ -22,7 +22,12 @@ interface MeasuredPose {
  * (an outlier is a fit pose flagged by the fit), the arm from the calibrated geometry (its base frame is
  * the registered one, so arm and points share the tracker frame).
  */
-export function fitView(report: { poses: PoseResidual[]; calibrated: ArmGeometry }, measured: MeasuredPose[], limit = VIEW3D_LIMIT): View3DProps {
+export function fitView(
+  report: { poses: Pick<PoseResidual, 'label' | 'line' | 'role' | 'outlier' | 'after'>[]; calibrated: ArmGeometry },
+  measured: MeasuredPose[],
+  limit = VIEW3D_LIMIT,
+  total?: number,
+): View3DProps {
   const byLine = new Map(measured.map((m) => [m.line, m]));
   const poses: View3DPose[] = [];
   for (const r of report.poses) {
@@ -30,7 +35,7 @@ export function fitView(report: { poses: PoseResidual[]; calibrated: ArmGeometry
     if (!m) continue;
     poses.push({ label: r.label, role: r.role === 'fit' && r.outlier ? 'outlier' : r.role, p: [m.x, m.y, m.z], e: r.after, q: m.q });
   }
-  return { geometry: report.calibrated, poses: decimatePoses(poses, limit), total: poses.length, errorMeaning: 'measured − predicted with the calibrated geometry' };
+  return { geometry: report.calibrated, poses: decimatePoses(poses, limit), total: total ?? poses.length, errorMeaning: 'measured − predicted with the calibrated geometry' };
 }
 
 /** A session before any fit: measured points and the nominal model's error, arm from the nominal geometry in the registered base. */

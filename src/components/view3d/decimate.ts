@@ -1,3 +1,4 @@
+import { decimate } from '../../lib/shared/decimate';
 import type { View3DPose } from './types';
 
 /** Default cap on the poses sent to the 3-D view: enough to see the cloud, small enough for a phone. */
@@ -13,27 +14,9 @@ const r3 = (v: number) => Math.round(v * 1000) / 1000;
  * 145 bytes of JSON per pose, so 3000 poses stay near 440 kB.
  */
 export function decimatePoses(poses: View3DPose[], limit = VIEW3D_LIMIT): View3DPose[] {
-  const keep = new Uint8Array(poses.length);
-  if (poses.length <= limit) keep.fill(1);
-  else {
-    let left = limit;
-    poses.forEach((p, i) => {
-      if ((p.role === 'excluded' || p.role === 'outlier') && left > 0) {
-        keep[i] = 1;
-        left--;
-      }
-    });
-    const byError = poses.map((p, i) => [norm(p.e), i] as const).filter(([, i]) => !keep[i]).sort((a, b) => b[0] - a[0]);
-    const largest = Math.min(byError.length, Math.floor(left / 2));
-    for (let k = 0; k < largest; k++) keep[byError[k]![1]] = 1;
-    left -= largest;
-    const rest = poses.map((_, i) => i).filter((i) => !keep[i]);
-    const step = rest.length / Math.max(left, 1);
-    for (let k = 0; k < left && k < rest.length; k++) keep[rest[Math.floor(k * step)]!] = 1;
-  }
+  const kept = decimate(poses, limit, { keep: (p) => p.role === 'excluded' || p.role === 'outlier', score: (p) => norm(p.e) });
   const out: View3DPose[] = [];
-  poses.forEach((p, i) => {
-    if (!keep[i]) return;
+  kept.forEach((p) => {
     out.push({
       label: p.label,
       role: p.role,

@@ -1,4 +1,4 @@
-import { index, integer, jsonb, pgTable, text, timestamp, uuid } from 'drizzle-orm/pg-core';
+import { boolean, doublePrecision, index, integer, jsonb, pgTable, primaryKey, text, timestamp, uuid } from 'drizzle-orm/pg-core';
 import type { ArmGeometry } from '../../lib/engine/types';
 import { createdAt, id } from './columns';
 import { sessions } from './sessions';
@@ -52,4 +52,31 @@ export const fits = pgTable(
     finishedAt: timestamp({ withTimezone: true }),
   },
   (t) => [index().on(t.unitId, t.createdAt), index().on(t.sessionId), index().on(t.reviewState)],
+);
+
+/**
+ * The per-pose part of a fit's report, one row per pose in file order, stored apart from the summary in
+ * fits.report so that pages and the summary API stay small at any session size (served page by page).
+ */
+export const fitPoses = pgTable(
+  'fit_poses',
+  {
+    fitId: uuid().notNull().references(() => fits.id, { onDelete: 'cascade' }),
+    idx: integer().notNull(),
+    label: text().notNull(),
+    line: integer().notNull(),
+    role: text().$type<'fit' | 'holdout' | 'excluded'>().notNull(),
+    /** measured − predicted (mm) with the nominal and with the calibrated geometry. */
+    beforeX: doublePrecision().notNull(),
+    beforeY: doublePrecision().notNull(),
+    beforeZ: doublePrecision().notNull(),
+    afterX: doublePrecision().notNull(),
+    afterY: doublePrecision().notNull(),
+    afterZ: doublePrecision().notNull(),
+    errorBefore: doublePrecision().notNull(),
+    errorAfter: doublePrecision().notNull(),
+    standardised: doublePrecision(),
+    outlier: boolean().notNull(),
+  },
+  (t) => [primaryKey({ columns: [t.fitId, t.idx] }), index().on(t.fitId, t.errorAfter)],
 );

@@ -7,6 +7,7 @@
  * settings, never edited after approval), the session (metadata and poses, stored once) and the nominal
  * revision (never edited). No clock, no random numbers: the same set gives the same bytes each time.
  */
+import { allFitPoses } from './fit-poses';
 import { eq } from 'drizzle-orm';
 import { fits, sessionPoses, sessions } from '../../db/schema';
 import { forwardPoint } from '../engine/kinematics';
@@ -43,7 +44,8 @@ export async function certificateInputFor(s: SetRow, database: Db = sharedDb()):
   const report = (fit.report ?? {}) as Partial<FitReport>;
   const stats = report.statistics;
   const params = report.parameters ?? [];
-  const poses = report.poses ?? [];
+  // The per-pose part lives in fit_poses (reports stored before the split carry it inline).
+  const poses = report.poses ?? (await allFitPoses(s.fitId, database));
 
   // ISO 9283 position accuracy and repeatability from the session's repeated poses (a handful of groups).
   let iso: IsoFigures | null = null;

@@ -7,8 +7,9 @@
 import { aliasedTable, and, count, desc, eq, inArray, isNull, sql, type SQL } from 'drizzle-orm';
 import { z } from 'zod';
 import { FIT_STATES, REVIEW_STATES, fits, parameterSets, sessionPoses, sessions, units, users, type FitState, type ReviewState } from '../../db/schema';
-import type { FitOptions } from '../engine/fit';
+import type { FitOptions, FitReport } from '../engine/fit';
 import type { Verdicts } from '../engine/plausibility';
+import { summariseReport } from '../shared/fit-summary';
 import { PARAMETER_GROUPS } from '../engine/types';
 import { audit } from './audit';
 import { db as sharedDb, type Db } from './db';
@@ -259,6 +260,7 @@ export interface FitSummary {
 
 export interface FitDetail extends FitSummary {
   inputChecksums: { sessionFile: string; nominalGeometry: string } | null;
+  /** The report's summary (FitReportSummary): the per-pose part is served by /api/fits/{id}/poses. */
   report: Record<string, unknown> | null;
   calibrated: unknown;
   verdicts: Verdicts | null;
@@ -276,7 +278,10 @@ export async function getFit(id: string, database: Db = sharedDb()): Promise<Fit
   const [row] = await joinedDetail(database).where(eq(fits.id, id));
   if (!row) return undefined;
   const [set] = await database.select({ id: parameterSets.id, version: parameterSets.version, state: parameterSets.state }).from(parameterSets).where(eq(parameterSets.fitId, id));
-  return { ...(row as unknown as FitDetail), parameterSet: set ?? null };
+  const detail = row as unknown as FitDetail;
+  // Reports stored before the per-pose part moved to fit_poses are summarised here (same shape as new ones).
+  const report = detail.report ? (summariseReport(detail.report as unknown as FitReport) as unknown as Record<string, unknown>) : null;
+  return { ...detail, report, parameterSet: set ?? null };
 }
 
 export const fitListQuerySchema = z.strictObject({

@@ -17,11 +17,13 @@ import { armModelRevisions, fits, sessionPoses, sessions } from '../../db/schema
 import type { FitReport } from '../engine/fit';
 import { serializeGeometry } from '../engine/geometry';
 import { fitVerdicts } from '../engine/plausibility';
+import { summarisePoses } from '../shared/fit-summary';
 import { EngineInputError, formatProblem, type ArmGeometry, type SessionPose } from '../engine/types';
 import { audit } from './audit';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
 import { engineMode, runEngine } from './engine-runner';
+import { insertFitPoses } from './fit-poses';
 import { fitSettingsSchema, toFitOptions } from './fits';
 import { unitJudgement } from './judgement';
 import { log } from './log';
@@ -159,7 +161,13 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
     await markFailed(database, fitId, claimed.unitId, `The stored fit settings are invalid: ${settings.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}.`);
     return 'failed';
   }
-  const rows = await database.select().from(sessionPoses).where(eq(sessionPoses.sessionId, claimed.sessionId)).orderBy(sessionPoses.idx);
+  const loadStarted = performance.now();
+  // Only the columns the engine takes (the q arrays are most of the bytes).
+  const rows = await database
+    .select({ label: sessionPoses.label, line: sessionPoses.line, q: sessionPoses.q, x: sessionPoses.x, y: sessionPoses.y, z: sessionPoses.z, split: sessionPoses.split })
+    .from(sessionPoses)
+    .where(eq(sessionPoses.sessionId, claimed.sessionId))
+    .orderBy(sessionPoses.idx);
   const poses: SessionPose[] = rows.map((r) => ({ label: r.label, line: r.line, q: r.q, x: r.x, y: r.y, z: r.z, ...(r.split ? { split: r.split } : {}) }));
   const nominal = session.geometry as ArmGeometry;
 
@@ -184,6 +192,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
   };
 
   const started = performance.now();
+  const loadMs = Math.round(started - loadStarted);
   let report: FitReport;
   try {
     report = await runEngine({ nominal, poses, options: toFitOptions(settings.data), onIteration });
@@ -197,9 +206,12 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
   }
   const durationMs = Math.round(performance.now() - started);
   await writing;
-  const safe = jsonSafe(report);
   // The plausibility gate (one rule set with the session check and the command line), with the model's settings.
   const verdicts = jsonSafe(fitVerdicts(report, poses, await unitJudgement(claimed.unitId, database)));
+  const storeStarted = performance.now();
+  // The summary goes into fits.report, the per-pose part into fit_poses (one statement per 25 000 poses).
+  const { poses: poseResults, ...withoutPoses } = report;
+  const safe = jsonSafe({ ...withoutPoses, poseSummary: summarisePoses(poseResults) });
   const last = report.iterations.at(-1);
   const done = await database.transaction(async (tx) => {
     const updated = await tx
@@ -219,6 +231,7 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
       .where(and(eq(fits.id, fitId), eq(fits.state, 'running')))
       .returning({ id: fits.id });
     if (!updated.length) return false;
+    await insertFitPoses(tx, fitId, poseResults);
     await audit(tx, {
       actorId: null,
       unitId: claimed.unitId,
@@ -241,6 +254,8 @@ export async function runFit(fitId: string, database: Db = sharedDb()): Promise<
     });
     return true;
   });
+  // Where the time of a fit goes (load the poses, run the engine, store the results): for the scale benchmark.
+  log('info', 'fit phases', { fitId, poses: poses.length, loadMs, engineMs: durationMs, engineCoreMs: Math.round(report.timing.totalMs), storeMs: Math.round(performance.now() - storeStarted) });
   return done ? 'fitted' : 'skipped';
 }
 

@@ -11,6 +11,7 @@ import type { ArmGeometry } from '../engine/types';
 import { jointRanges } from '../engine/workspace';
 import { db as sharedDb, type Db } from './db';
 import { runWorkspaceDifference } from './engine-runner';
+import { allFitPoses } from './fit-poses';
 import { getFit, type FitDetail } from './fits';
 import { parameterValues } from './parameter-values';
 
@@ -108,7 +109,9 @@ export async function reviewStory(fitId: string, database: Db = sharedDb()) {
       .limit(1);
     submitNote = row?.comment ?? null;
   }
-  const excluded = report ? report.poses.filter((p) => p.role === 'excluded').map((p) => ({ label: p.label, line: p.line, errorAfter: p.errorAfter, standardised: p.standardised })) : [];
+  // Per-pose results live in fit_poses (reports stored before that carry them inline).
+  const poses = report ? (report.poses ?? (await allFitPoses(fit.id, database))) : [];
+  const excluded = poses.filter((p) => p.role === 'excluded').map((p) => ({ label: p.label, line: p.line, errorAfter: p.errorAfter, standardised: p.standardised }));
   return {
     fit,
     report,

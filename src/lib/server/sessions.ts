@@ -24,6 +24,7 @@ import { runEngineTask } from './engine-runner';
 import { parseSessionCsv, type ParsedSession } from '../engine/session-csv';
 import { EngineInputError, type ArmGeometry, type FrameSpec, type InputProblem } from '../engine/types';
 import { audit } from './audit';
+import { arrayParam, BULK_ROWS, pgArray } from './bulk';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
 import { pageTotal, windowTotal } from './paging';
@@ -44,7 +45,6 @@ const FORM_OVERHEAD_BYTES = 256 * 1024;
 /** Problems listed in a 400 answer. */
 export const MAX_LISTED_PROBLEMS = 100;
 /** Rows per multi-row INSERT: 1 000 rows × 10 columns stays far below PostgreSQL's 65 535 parameters. */
-const POSE_BATCH = 1000;
 
 export const UPLOAD_FIELDS = ['unit', 'measuredOn', 'technician', 'instrument', 'ambientC', 'target', 'notes', 'allowOutsideLimits', 'file'] as const;
 
@@ -529,6 +529,32 @@ export interface StoreSessionInput {
   actorId: string | null;
 }
 
+type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
+
+/**
+ * A session's poses in one `unnest` statement per BULK_ROWS rows (one array parameter per column instead of
+ * one parameter per cell): 100 000 rows in four round trips, inside the caller's transaction.
+ */
+async function insertSessionPoses(tx: Tx, sessionId: string, poses: ParsedSession['poses'], outside: Set<number | undefined>): Promise<void> {
+  for (let k = 0; k < poses.length; k += BULK_ROWS) {
+    const part = poses.slice(k, k + BULK_ROWS);
+    await tx.execute(sql`
+      insert into session_poses (session_id, idx, line, label, q, x, y, z, split, outside_limits)
+      select ${sessionId}::uuid, u.idx, u.line, u.label, u.q::float8[], u.x, u.y, u.z, u.split, u.outside
+      from unnest(
+        ${arrayParam(pgArray.int(part.map((_, j) => k + j)), 'int[]')},
+        ${arrayParam(pgArray.int(part.map((p) => p.line)), 'int[]')},
+        ${arrayParam(pgArray.text(part.map((p) => p.label)), 'text[]')},
+        ${arrayParam(pgArray.floatRows(part.map((p) => p.q)), 'text[]')},
+        ${arrayParam(pgArray.float(part.map((p) => p.x)), 'float8[]')},
+        ${arrayParam(pgArray.float(part.map((p) => p.y)), 'float8[]')},
+        ${arrayParam(pgArray.float(part.map((p) => p.z)), 'float8[]')},
+        ${arrayParam(pgArray.text(part.map((p) => p.split ?? null)), 'text[]')},
+        ${arrayParam(pgArray.bool(part.map((p) => outside.has(p.line))), 'bool[]')}
+      ) as u(idx, line, label, q, x, y, z, split, outside)`);
+  }
+}
+
 /**
  * Store a checked session: the object first, then the rows in one transaction. Used by the upload and by
  * the demo scenario, so both go through the same path.
@@ -602,22 +628,7 @@ export async function storeSession(input: StoreSessionInput, database: Db = shar
         uploadedBy: input.actorId,
       });
       const poses = input.parsed.poses;
-      for (let k = 0; k < poses.length; k += POSE_BATCH) {
-        await tx.insert(poseRows).values(
-          poses.slice(k, k + POSE_BATCH).map((p, j) => ({
-            sessionId: id,
-            idx: k + j,
-            line: p.line,
-            label: p.label,
-            q: p.q,
-            x: p.x,
-            y: p.y,
-            z: p.z,
-            split: p.split ?? null,
-            outsideLimits: outside.has(p.line),
-          })),
-        );
-      }
+      await insertSessionPoses(tx, id, poses, outside);
       await audit(tx, {
         actorId: input.actorId,
         unitId: input.unit.id,

@@ -59,6 +59,8 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/sessions/[id]/fits', methods: { GET: ENGINEERING, POST: FIT_RUNNERS } },
   { pattern: '/api/fits', methods: { GET: ENGINEERING } },
   { pattern: '/api/fits/[id]', methods: { GET: ENGINEERING } },
+  // The fit report's per-pose part, paged (JSON) or streamed (CSV): same readers as the fit.
+  { pattern: '/api/fits/[id]/poses', methods: { GET: ENGINEERING } },
   { pattern: '/api/fits/[id]/submit', methods: { POST: FIT_RUNNERS } },
   { pattern: '/api/fits/[id]/approve', methods: { POST: REVIEWERS } },
   { pattern: '/api/fits/[id]/reject', methods: { POST: REVIEWERS } },

@@ -50,7 +50,9 @@ function operation(pattern: string, method: Method, access: Access, doc: Operati
   const ok = doc.ok;
   const types = typeof ok.contentType === 'string' ? [ok.contentType] : (ok.contentType ?? ['application/json']);
   const fileSchema = z.string().describe('file contents');
-  const okContent = ok.schema || ok.contentType ? Object.fromEntries(types.map((t) => [t, { schema: ok.schema ?? fileSchema }])) : undefined;
+  // With several types (JSON or a file), the zod schema describes the JSON one; the others are files.
+  const schemaFor = (t: string) => (ok.schema && (types.length === 1 || t.endsWith('json')) ? ok.schema : fileSchema);
+  const okContent = ok.schema || ok.contentType ? Object.fromEntries(types.map((t) => [t, { schema: schemaFor(t) }])) : undefined;
   const responses: Record<string, { description: string; content?: Record<string, { schema: z.ZodType }> }> = {
     [String(ok.status ?? 200)]: { description: ok.description ?? doc.summary, ...(okContent ? { content: okContent } : {}) },
   };

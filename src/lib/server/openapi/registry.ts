@@ -26,6 +26,7 @@ import { frameSchema as compensationFrameSchema } from '../compensations';
 import { acknowledgeSchema, tolerancesSchema } from '../drift';
 import { batchSchema, logQuerySchema } from '../exports';
 import { fitListQuerySchema, fitSettingsSchema, refitSchema } from '../fits';
+import { fitPosePageSchema } from '../fit-poses';
 import { completeUploadSchema, startUploadSchema } from '../presigned-uploads';
 import { judgementSchema } from '../judgement';
 import { decisionSchema, rejectSchema, submitSchema } from '../reviews';
@@ -176,7 +177,19 @@ export const API_DOCS: Record<string, RouteDoc> = {
     POST: { tag: 'Fits and reviews', summary: 'Start a fit (202 at once; the job queue runs it)', body: { schema: fitSettingsSchema }, ok: { status: 202, schema: R.fitQueued }, refusals: { 409: 'The session cannot be fitted now.' } },
   },
   '/api/fits': { GET: { tag: 'Fits and reviews', summary: 'Fits, filtered by unit, state and review state', query: fitListQuerySchema, ok: { schema: R.fitList } } },
-  '/api/fits/[id]': { GET: { tag: 'Fits and reviews', summary: 'A fit: progress while it runs, then the full report', ok: { schema: R.fit } } },
+  '/api/fits/[id]': { GET: { tag: 'Fits and reviews', summary: 'A fit: progress while it runs, then the report summary (per-pose results from /poses)', ok: { schema: R.fit } } },
+  '/api/fits/[id]/poses': {
+    GET: {
+      tag: 'Fits and reviews',
+      summary: "A fit's per-pose residuals, page by page (or every pose as CSV with format=csv)",
+      // format=csv is read before the page parameters (the endpoint streams the file then).
+      query: fitPosePageSchema.extend({ format: z.enum(['csv']).optional().describe('csv: every pose as a streamed CSV file') }),
+      ok: {
+        contentType: ['application/json', 'text/csv'],
+        schema: z.looseObject({ poses: z.array(z.looseObject({ label: z.string(), line: z.number().int(), order: z.number().int(), role: z.string(), errorBefore: z.number(), errorAfter: z.number() })), total: z.number().int(), page: z.number().int(), pageSize: z.number().int(), order: z.enum(['file', 'largest']) }),
+      },
+    },
+  },
   '/api/fits/[id]/submit': {
     POST: {
       tag: 'Fits and reviews',

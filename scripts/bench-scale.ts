@@ -1,0 +1,181 @@
+/**
+ * Scale benchmark (`npm run bench -- scale`): how upload, fit and the fit/session pages grow with the
+ * session size, at 1 000 / 10 000 / 100 000 poses (invented TQ-6 sessions from scripts/scale-fixture.ts).
+ * Starts a throw-away stack on loopback like bench-load (PostgreSQL with durability off, S3 and mail fakes,
+ * the built app with its fit worker), one engineer with an API token, then for each size: the upload
+ * (POST /api/sessions, request → 201), the fit (POST → state fitted, polled every 100 ms), the fit summary
+ * API, the fit page, the session page and one page of the per-pose endpoint (bytes and time to serve, best
+ * of 3). Prints figures beside the targets; never fails on them. Bounded: sizes can be chosen.
+ *
+ *   npx tsx scripts/bench-scale.ts [--sizes 1000,10000,100000] [--no-build] [--keep]
+ */
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { startMailFake, startS3Fake } from './lib/fakes.mjs';
+import { findFreePorts } from './lib/ports.mjs';
+import { ensurePgBin, pgCluster, prepareClusterDir } from './lib/postgres.mjs';
+import { localBin, onShutdown, run, shutdown, spawnLogged, StartError, waitForPort } from './lib/proc.mjs';
+import { scaleNominal, scaleSessionCsv } from './scale-fixture';
+
+const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
+const argv = process.argv.slice(2);
+const option = (name: string, fallback: string) => {
+  const i = argv.indexOf(name);
+  return i >= 0 ? (argv[i + 1] ?? fallback) : fallback;
+};
+const flag = (name: string) => argv.includes(name);
+const SIZES = option('--sizes', '1000,10000,100000').split(',').map(Number);
+const say = (line: string) => console.log(`[bench-scale] ${line}`);
+const tool = (name: string, args: string[]): [string, string[]] => {
+  const bin = localBin(root, name);
+  return bin ? [bin, args] : ['npx', ['--no-install', name, ...args]];
+};
+
+async function main() {
+  const runDir = fs.mkdtempSync('/tmp/offsetry-bench-scale-');
+  fs.chmodSync(runDir, 0o755);
+  const logDir = path.join(runDir, 'logs');
+  fs.mkdirSync(logDir);
+  fs.symlinkSync(path.join(root, 'node_modules'), path.join(runDir, 'node_modules'), 'dir');
+  onShutdown(() => (flag('--keep') ? say(`kept ${runDir}`) : fs.rmSync(runDir, { recursive: true, force: true })));
+  const [pgPort, s3Port, smtpPort, mailApiPort, appPort] = await findFreePorts(5);
+  const cluster = pgCluster({
+    bin: await ensurePgBin({ log: say }),
+    dir: await prepareClusterDir(path.join(runDir, 'pg')),
+    port: pgPort,
+    settings: { fsync: 'off', synchronous_commit: 'off', full_page_writes: 'off' },
+  });
+  await cluster.init();
+  await cluster.start();
+  onShutdown(() => cluster.stop('immediate'));
+  const databaseUrl = await cluster.ensureDatabase({ user: 'offsetry_bench', password: crypto.randomBytes(12).toString('base64url'), database: 'offsetry_bench' });
+  await Promise.all([
+    startS3Fake({ root, port: s3Port, dir: path.join(runDir, 's3'), bucket: 'offsetry-bench', logFile: path.join(logDir, 's3-fake.log') }),
+    startMailFake({ root, smtpPort, apiPort: mailApiPort, dir: path.join(runDir, 'mail'), logFile: path.join(logDir, 'mail-fake.log') }),
+  ]);
+  const base = `http://127.0.0.1:${appPort}`;
+  const env: NodeJS.ProcessEnv = {
+    ...process.env,
+    NODE_ENV: 'production',
+    OFFSETRY_MODE: 'demo',
+    HOST: '127.0.0.1',
+    PORT: String(appPort),
+    PUBLIC_BASE_URL: base,
+    AUTH_SECRET: crypto.randomBytes(32).toString('base64url'),
+    DATABASE_URL: databaseUrl,
+    S3_ENDPOINT: `http://127.0.0.1:${s3Port}`,
+    S3_REGION: 'us-east-1',
+    S3_BUCKET: 'offsetry-bench',
+    S3_ACCESS_KEY_ID: 'S3RVER',
+    S3_SECRET_ACCESS_KEY: 'S3RVER',
+    S3_FORCE_PATH_STYLE: 'true',
+    SMTP_HOST: '127.0.0.1',
+    SMTP_PORT: String(smtpPort),
+    SMTP_SECURE: 'false',
+    MAIL_FROM: 'Offsetry <no-reply@offsetry.local>',
+  };
+  delete env.OFFSETRY_OUT_DIR;
+  const [tsx, tsxArgs] = tool('tsx', ['scripts/migrate.ts']);
+  if ((await run(tsx, tsxArgs, { cwd: root, env, logFile: path.join(logDir, 'migrate.log'), allowFail: true })).code !== 0) throw new StartError('migrate failed', path.join(logDir, 'migrate.log'));
+  let entry = path.join(root, 'dist', 'server', 'entry.mjs');
+  if (!flag('--no-build')) {
+    const outDir = path.join(runDir, 'dist');
+    const [astro, astroArgs] = tool('astro', ['build']);
+    if ((await run(astro, astroArgs, { cwd: root, env: { ...env, OFFSETRY_OUT_DIR: outDir }, logFile: path.join(logDir, 'build.log'), allowFail: true })).code !== 0) throw new StartError('astro build failed', path.join(logDir, 'build.log'));
+    entry = path.join(outDir, 'server', 'entry.mjs');
+  }
+
+  // One engineer with an API token, one invented arm model, one unit per size.
+  const { default: postgres } = await import('postgres');
+  const sql = postgres(databaseUrl, { max: 1, onnotice: () => {} });
+  const [user] = await sql`insert into users (email, name, roles) values ('bench-scale@offsetry.test', 'Bench Engineer', '{engineer}'::text[]) returning id`;
+  const token = `ofs_${crypto.randomBytes(24).toString('base64url')}`;
+  await sql`insert into api_tokens (user_id, name, token_hash, prefix) values (${user!.id}, 'bench', ${crypto.createHash('sha256').update(token).digest('hex')}, ${token.slice(0, 10)})`;
+  const [model] = await sql`insert into arm_models (name, description) values ('TQ-6 (invented, scale bench)', 'scale benchmark') returning id`;
+  const [rev] = await sql`insert into arm_model_revisions (model_id, revision, geometry) values (${model!.id}, 1, ${sql.json(scaleNominal() as never)}) returning id`;
+  for (const n of SIZES) await sql`insert into units (serial, model_revision_id, site, cell) values (${`SCALE-${n}`}, ${rev!.id}, 'Bench hall', 'C1')`;
+  await sql.end();
+
+  const app = spawnLogged('app', process.execPath, [entry], { cwd: root, env, logFile: path.join(logDir, 'app.log') });
+  onShutdown(() => app.stop());
+  await waitForPort(appPort, { proc: app, timeoutMs: 60_000, what: 'the app' });
+  const headers = { authorization: `Bearer ${token}`, origin: base };
+  const get = async (p: string) => {
+    let best = Infinity;
+    let bytes = 0;
+    for (let k = 0; k < 3; k++) {
+      const t = performance.now();
+      const res = await fetch(base + p, { headers });
+      const body = await res.arrayBuffer();
+      best = Math.min(best, performance.now() - t);
+      bytes = body.byteLength;
+      if (res.status !== 200) throw new Error(`GET ${p}: ${res.status}`);
+    }
+    return { ms: best, bytes };
+  };
+  await get('/api/me');
+
+  const rows: Record<string, string | number>[] = [];
+  for (const n of SIZES) {
+    const csv = scaleSessionCsv(n);
+    const form = new FormData();
+    for (const [k, v] of Object.entries({ unit: `SCALE-${n}`, measuredOn: '2026-11-30', technician: 'Bench', instrument: 'tracker T-1', ambientC: '21', target: '1.5 in SMR', notes: '' })) form.append(k, v);
+    form.append('file', new Blob([csv], { type: 'text/csv' }), `scale-${n}.csv`);
+    let t = performance.now();
+    const up = await fetch(`${base}/api/sessions`, { method: 'POST', headers, body: form });
+    const upBody = (await up.json()) as { id: string };
+    const uploadMs = performance.now() - t;
+    if (up.status !== 201) throw new Error(`upload of ${n} poses: ${up.status} ${JSON.stringify(upBody).slice(0, 300)}`);
+    t = performance.now();
+    const fitRes = await fetch(`${base}/api/sessions/${upBody.id}/fits`, { method: 'POST', headers: { ...headers, 'content-type': 'application/json' }, body: '{}' });
+    const { id: fitId } = (await fitRes.json()) as { id: string };
+    let state = 'queued';
+    let engineMs = NaN;
+    while (state === 'queued' || state === 'running') {
+      await new Promise((r) => setTimeout(r, 100));
+      const f = (await (await fetch(`${base}/api/fits/${fitId}`, { headers })).json()) as { fit: { state: string; report?: { timing?: { totalMs: number } } } };
+      state = f.fit.state;
+      engineMs = f.fit.report?.timing?.totalMs ?? NaN;
+      if (performance.now() - t > 300_000) throw new Error(`fit of ${n} poses still ${state} after 300 s`);
+    }
+    const fitMs = performance.now() - t;
+    const summary = await get(`/api/fits/${fitId}`);
+    const fitPage = await get(`/fits/${fitId}`);
+    const sessionPage = await get(`/sessions/${upBody.id}`);
+    const posePage = await get(`/api/fits/${fitId}/poses?page=2&pageSize=1000`);
+    rows.push({ n, state, uploadMs, fitMs, engineMs, summaryKb: summary.bytes / 1024, summaryMs: summary.ms, fitPageKb: fitPage.bytes / 1024, fitPageMs: fitPage.ms, sessionPageKb: sessionPage.bytes / 1024, sessionPageMs: sessionPage.ms, posePageMs: posePage.ms });
+    say(`${n} poses done`);
+  }
+  const f = (v: string | number, d = 0) => (typeof v === 'number' ? (Number.isFinite(v) ? v.toFixed(d) : '–') : v);
+  console.log('');
+  console.log('Scale (one client, loopback; times in ms, sizes in kB; best of 3 for the GETs)');
+  console.log('poses     upload  fit req→result (engine)   summary API kB / ms   fit page kB / ms   session page kB / ms   1000-pose page ms');
+  for (const r of rows) {
+    console.log(
+      `${String(r.n).padEnd(8)} ${f(r.uploadMs).padStart(7)}  ${f(r.fitMs).padStart(8)} (${f(r.engineMs)})${' '.repeat(10)}${f(r.summaryKb).padStart(6)} / ${f(r.summaryMs).padStart(4)}${' '.repeat(10)}${f(r.fitPageKb).padStart(6)} / ${f(r.fitPageMs).padStart(4)}${' '.repeat(9)}${f(r.sessionPageKb).padStart(6)} / ${f(r.sessionPageMs).padStart(5)}${' '.repeat(12)}${f(r.posePageMs)}`,
+    );
+  }
+  const big = rows.find((r) => r.n === 100_000);
+  if (big) {
+    const check = (label: string, v: number, target: number, unit: string) => console.log(`  ${label.padEnd(34)} ${f(v, unit === 'kB' ? 0 : 0).padStart(8)} ${unit}   target < ${target} ${unit}: ${v < target ? 'met' : 'MISSED'}`);
+    console.log('Targets at 100 000 poses:');
+    check('upload request → 201', Number(big.uploadMs), 3000, 'ms');
+    check('fit request → fitted', Number(big.fitMs), 3000, 'ms');
+    check('GET /api/fits/{id} (summary)', Number(big.summaryKb), 200, 'kB');
+    check('fit page HTML', Number(big.fitPageKb), 2048, 'kB');
+    check('fit page time to serve', Number(big.fitPageMs), 1000, 'ms');
+    check('session page HTML', Number(big.sessionPageKb), 2048, 'kB');
+    check('session page time to serve', Number(big.sessionPageMs), 1000, 'ms');
+  }
+  console.log(`(machine: ${os.cpus().length} CPUs, shared with other work; the client, the app, its fit worker and PostgreSQL share them)`);
+}
+
+main()
+  .catch((err) => {
+    console.error(`[bench-scale] ${err instanceof StartError ? err.message : (err?.stack ?? err)}`);
+    process.exitCode = 1;
+  })
+  .finally(() => shutdown());
