@@ -4,6 +4,7 @@
  * arrives and cut off at the limit (the endpoint's read fails, the answer is 413). Nothing is ever read whole
  * before it is refused.
  */
+import { PROGRAM_MAX_BYTES } from '../engine/program-csv';
 import { config } from './config';
 
 export class BodyTooLarge extends Error {
@@ -27,6 +28,8 @@ export function bodyLimit(route: string, method: string): number {
   if (route === '/api/auth/[...auth]') return AUTH_BODY_LIMIT;
   // The session upload: the file limit plus room for the form fields and multipart framing.
   if (route === '/api/sessions' && method === 'POST') return config().MAX_UPLOAD_BYTES + 512 * 1024;
+  // A robot program to compensate (10 000 targets are about 1 MiB): its file limit plus the same room.
+  if (route === '/api/units/[serial]/compensations' && method === 'POST') return PROGRAM_MAX_BYTES + 512 * 1024;
   return DEFAULT_BODY_LIMIT;
 }
 
