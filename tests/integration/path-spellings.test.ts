@@ -189,6 +189,9 @@ const PAGES = [
   '/units/new',
   '/units/NO-SUCH-UNIT/compare',
   '/units/NO-SUCH-UNIT/drift',
+  '/units/NO-SUCH-UNIT/compensate',
+  '/compensations/00000000-0000-4000-8000-000000000000',
+  '/admin/webhooks',
 ];
 
 describe('no spelling of a page gets more than the canonical path', () => {
