@@ -34,7 +34,7 @@ class SceneBoundary extends Component<{ fallback: ReactNode; children: ReactNode
 
 const errorOf = (e: [number, number, number] | null | undefined) => (e ? Math.hypot(e[0], e[1], e[2]) : null);
 
-export default function ArmView3D({ geometry, poses, total, errorMeaning, initialPose, magnification, title = '3-D view' }: View3DProps) {
+export default function ArmView3D({ geometry, poses, total, errorMeaning, initialPose, magnification, title = '3-D view', frameName = 'Tracker frame' }: View3DProps) {
   const [webgl, setWebgl] = useState<'unknown' | 'yes' | 'no'>('unknown');
   useEffect(() => setWebgl(hasWebGL() ? 'yes' : 'no'), []);
   const firstPick = useMemo(() => {
@@ -87,7 +87,7 @@ export default function ArmView3D({ geometry, poses, total, errorMeaning, initia
     >
       <h2 className="mb-1">{title}</h2>
       <p className="mb-2 text-sm text-ink-soft">
-        Tracker frame, mm, z up. {geometry ? 'The arm is drawn from its geometry by the engine’s forward kinematics, at the pose chosen in the list. ' : ''}
+        {frameName}, mm, z up. {geometry ? 'The arm is drawn from its geometry by the engine’s forward kinematics, at the pose chosen in the list. ' : ''}
         {hasVectors && <>Error vectors ({errorMeaning ?? 'measured − predicted'}) start at the pose’s point and are magnified <strong>×{factor}</strong>; the scale bar on the floor says how long a millimetre of error is drawn. </>}
         {poses.length < total ? `${poses.length} of ${total} poses drawn: every excluded pose and outlier, the largest errors and an even sample of the rest.` : ''}
       </p>

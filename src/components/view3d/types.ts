@@ -42,6 +42,8 @@ export interface View3DProps {
   magnification?: number;
   /** Heading of the view's card. */
   title?: string;
+  /** The frame the points are in, in words (default: the tracker frame). */
+  frameName?: string;
 }
 
 export const ROLE_TEXT: Record<View3DRole, { glyph: string; word: string; shape: string; colour: string }> = {

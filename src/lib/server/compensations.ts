@@ -193,6 +193,7 @@ export async function compensationScene(id: string, database: Db = sharedDb()): 
     total: r.total,
     errorMeaning: 'compensated − original target (robot base frame); the arm is the nominal model at the calibrated joint values',
     title: 'The program in 3-D',
+    frameName: 'Robot base frame',
   };
 }
 
