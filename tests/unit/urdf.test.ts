@@ -9,7 +9,7 @@ import { geometryToUrdf, planUrdfJoints, rpyOf, mul, rotX, rotY, rotZ } from '..
 import { chainPointMm, chainTo, linkFrame, parseUrdf } from '../../src/lib/server/urdf-reader';
 import { fourAxisParallel, randomQ, rng, sixAxisDh, sixAxisMdh } from '../engine/helpers';
 
-// The converter check's tolerance (issue 6): 1e-6 mm. Arms are about 1–2 m long, so double rounding through
+// The converter check's tolerance: 1e-6 mm. Arms are about 1–2 m long, so double rounding through
 // the mm → m → mm conversion and the rpy decomposition stays near 1e-12 mm; 1e-6 leaves ample room.
 const TOL_MM = 1e-6;
 

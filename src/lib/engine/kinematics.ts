@@ -1,5 +1,5 @@
 /**
- * Forward kinematics of a serial chain (issue 3 conventions), split into
+ * Forward kinematics of a serial chain (the conventions of the geometry file, README), split into
  *   - a model (ArmModel): the fixed description, compiled once from an ArmGeometry;
  *   - data (ArmData): working buffers allocated once per model and reused across poses and iterations;
  *   - free functions (setParameters, forwardKinematics, pointJacobian) that fill the data.

@@ -39,7 +39,7 @@ export interface ParameterInfo {
   group: ParameterGroup | 'tool-rotation';
   /** Unit at the boundary; internal values are mm or rad. */
   unit: 'mm' | 'deg';
-  /** True when the parameter can be identified by default (issue 3 rules). */
+  /** True when the parameter can be identified by default (the identification rules of the README). */
   defaultIdentified: boolean;
 }
 

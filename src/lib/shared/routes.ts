@@ -41,7 +41,7 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/admin/webhooks', methods: { GET: ['admin'], POST: ['admin'] } },
   { pattern: '/api/admin/webhooks/[id]', methods: { DELETE: ['admin'] } },
   { pattern: '/api/admin/webhooks/deliveries', methods: { GET: ['admin'] } },
-  // Arm models, units, sessions (issue 4)
+  // Arm models, units, sessions
   { pattern: '/api/arm-models', methods: { GET: ENGINEERING, POST: MODEL_EDITORS } },
   // Geometry is read by the same roles on the page (/arm-models/…), in the model API and as a file.
   { pattern: '/api/arm-models/[id]', methods: { GET: ENGINEERING, PUT: MODEL_EDITORS } },
@@ -55,7 +55,7 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/sessions/[id]/file', methods: { GET: ENGINEERING } },
   { pattern: '/api/sessions/[id]/poses', methods: { GET: ENGINEERING } },
   { pattern: '/api/sessions/[id]/check', methods: { GET: ENGINEERING } },
-  // Fits and reviews (issue 5)
+  // Fits and reviews
   { pattern: '/api/sessions/[id]/fits', methods: { GET: ENGINEERING, POST: FIT_RUNNERS } },
   { pattern: '/api/fits', methods: { GET: ENGINEERING } },
   { pattern: '/api/fits/[id]', methods: { GET: ENGINEERING } },
@@ -68,7 +68,7 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/units/[serial]/parameter-sets', methods: { GET: ALL } },
   { pattern: '/api/units/[serial]/compare', methods: { GET: ENGINEERING } },
   { pattern: '/api/units/[serial]/history', methods: { GET: ALL } },
-  // Fleet, drift and exports (issue 6)
+  // Fleet, drift and exports
   { pattern: '/api/arm-models/[id]/fleet', methods: { GET: FLEET_VIEWERS } },
   { pattern: '/api/arm-models/[id]/tolerances', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
   { pattern: '/api/arm-models/[id]/judgement', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
