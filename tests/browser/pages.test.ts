@@ -58,6 +58,7 @@ let fx: Fixture;
 let approvedFit: string;
 let reviewFit: string;
 let inviteToken: string;
+let compensationId: string;
 /** Same-origin links seen on the pages crawled so far (to fill parameters of pages this file does not know). */
 const seenLinks = new Set<string>();
 
@@ -87,6 +88,13 @@ beforeAll(async () => {
   expect((await engineer.json(`/api/fits/${approvedFit}/submit`, { method: 'POST', json: {} })).status).toBe(200);
   const approved = await reviewer.json(`/api/fits/${approvedFit}/approve`, { method: 'POST', json: { comment: 'Checked at reduced speed.' } });
   expect(approved.status, JSON.stringify(approved.body)).toBe(200);
+  // A compensated program of the unit's approved set (the compensation page needs one, done).
+  const form = new FormData();
+  form.set('file', new Blob(['target,q1,q2,q3,q4,q5,q6\nT1,0,-20,30,0,45,0\nT2,10,-25,35,5,40,10\nT3,20,-30,40,10,35,20\n'], { type: 'text/csv' }), 'crawl.csv');
+  const comp = await engineer.json(`/api/units/${encodeURIComponent(fx.serial)}/compensations`, { method: 'POST', body: form });
+  expect(comp.status, JSON.stringify(comp.body)).toBe(202);
+  compensationId = comp.body.id;
+  for (let i = 0; i < 240 && (await engineer.json(`/api/compensations/${compensationId}`)).body.state !== 'done'; i++) await new Promise((r) => setTimeout(r, 500));
   reviewFit = await runFit();
   expect((await engineer.json(`/api/fits/${reviewFit}/submit`, { method: 'POST', json: { comment: 'Second visit' } })).status).toBe(200);
 
@@ -114,6 +122,7 @@ function concrete(route: string): string | undefined {
     '/fits/[id]': reviewFit,
     '/reviews/[id]': reviewFit,
     '/invite/[token]': inviteToken,
+    '/compensations/[id]': compensationId,
   };
   const query: Record<string, string> = { '/fits/new': `?session=${fx.sessionId}` };
   const segments = route.split('/');
