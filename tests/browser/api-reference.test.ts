@@ -67,8 +67,10 @@ describe('API reference page', () => {
     expect(external).toEqual([]);
 
     // Opening an operation shows its roles and the problem format of its refusals.
-    await page.locator('[data-operation-path]', { hasText: '/api/units/{serial}/parameter-sets' }).click();
-    await page.getByText('Roles allowed: technician, engineer, quality, service, admin.').first().waitFor();
+    const operation = page.locator('[data-operation]', { has: page.locator('[data-operation-path]', { hasText: '/api/units/{serial}/parameter-sets' }) });
+    await operation.locator('[data-operation-path]').click();
+    await operation.getByText('Roles allowed: technician, engineer, quality, service, admin.').waitFor();
+    await operation.getByText('Problem', { exact: false }).first().waitFor();
     for (const width of WIDTHS) {
       await page.setViewportSize({ width, height: 1000 });
       await page.screenshot({ path: `${SHOTS}/api-reference-${width}.png`, fullPage: false });
