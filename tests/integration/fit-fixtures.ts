@@ -11,6 +11,7 @@ import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb, type Db } from '../../src/lib/server/db';
 import { uniq } from '../support/http';
 import { seededRandom } from '../../src/lib/engine/workspace';
+import { scaleNominal } from '../../scripts/scale-fixture';
 
 let shared: Db | undefined;
 export function testDb(): Db {
@@ -18,22 +19,8 @@ export function testDb(): Db {
   return shared;
 }
 
-export function nominalTq6(): ArmGeometry {
-  return {
-    format: 'offsetry-arm/1',
-    name: 'TQ-6 (invented test arm)',
-    convention: 'mdh',
-    joints: [
-      { name: 'J1', type: 'revolute', a: 0, alpha: 0, d: 350, theta: 0, min: -160, max: 160 },
-      { name: 'J2', type: 'revolute', a: 75, alpha: -90, d: 0, theta: -90, min: -100, max: 80 },
-      { name: 'J3', type: 'revolute', a: 420, alpha: 0, d: 0, theta: 0, beta: 0, min: -90, max: 130 },
-      { name: 'J4', type: 'revolute', a: 35, alpha: -90, d: 410, theta: 0, min: -170, max: 170 },
-      { name: 'J5', type: 'revolute', a: 0, alpha: 90, d: 0, theta: 0, min: -110, max: 110 },
-      { name: 'J6', type: 'revolute', a: 0, alpha: -90, d: 80, theta: 0, min: -330, max: 330 },
-    ],
-    tool: { x: 0, y: 0, z: 95, rx: 0, ry: 0, rz: 0 },
-  };
-}
+/** The invented TQ-6 arm (one definition, shared with the scale benchmark's fixture). */
+export const nominalTq6 = scaleNominal;
 
 /** Nominal plus invented errors, in an invented tracker placement. */
 export function trueTq6(): ArmGeometry {
