@@ -101,6 +101,8 @@ export const UNITS: DemoUnit[] = [
 
 const TECHNICIANS = ['Tomás Reyes', 'Aiyana Brook', 'Jonas Feld'];
 const TRACKERS = ['tracker LT-07', 'tracker LT-11'];
+/** What each demo tracker's (invented) certificate states, in the way such certificates write it. */
+const TRACKER_UNCERTAINTY = ['±(15 µm + 6 µm/m), k = 2', '±(10 µm + 5 µm/m), k = 2'];
 
 /** The engine's seeded generator, so the same scenario (and the same file hashes) comes out each run. */
 function rng(seed: number) {
@@ -241,6 +243,7 @@ export async function seedScenario(db: Db): Promise<string> {
             measuredOn: dates[v]!,
             technician: TECHNICIANS[(v + u.serial.length) % TECHNICIANS.length]!,
             instrument: TRACKERS[v % TRACKERS.length]!,
+            instrumentUncertainty: TRACKER_UNCERTAINTY[v % TRACKERS.length]!,
             ambientC: Number(r.between(17, 27).toFixed(1)),
             target: '1.5 in SMR on the flange nest',
             notes: v === 0 ? `Visit ${v + 1} by ${DEMO_COMPANY}: baseline after commissioning.` : `Visit ${v + 1} by ${DEMO_COMPANY}.`,

@@ -79,6 +79,7 @@ export async function runUpload(args: string[], io: Io): Promise<number> {
       file: { type: 'string' },
       'measured-on': { type: 'string' },
       instrument: { type: 'string' },
+      uncertainty: { type: 'string' },
       technician: { type: 'string' },
       notes: { type: 'string' },
       'allow-outside-limits': { type: 'boolean' },
@@ -96,6 +97,7 @@ export async function runUpload(args: string[], io: Io): Promise<number> {
 
   const fields: [string, string][] = [['unit', unit], ['measuredOn', measuredOn]];
   if (typeof v.instrument === 'string') fields.push(['instrument', v.instrument]);
+  if (typeof v.uncertainty === 'string') fields.push(['instrumentUncertainty', v.uncertainty]);
   if (typeof v.technician === 'string') fields.push(['technician', v.technician]);
   if (typeof v.notes === 'string') fields.push(['notes', v.notes]);
   if (v['allow-outside-limits']) fields.push(['allowOutsideLimits', 'true']);

@@ -40,12 +40,14 @@ const REMOTE = `  --server     the Offsetry server (default: $OFFSETRY_URL)
   --token      a personal API token (default: $OFFSETRY_TOKEN; create one on the Account page)`;
 
 export const UPLOAD_USAGE = `usage: offsetry upload --unit SERIAL --file SESSION.csv --measured-on YYYY-MM-DD
-                      [--instrument TEXT] [--technician TEXT] [--notes TEXT] [--allow-outside-limits]
+                      [--instrument TEXT] [--uncertainty TEXT] [--technician TEXT] [--notes TEXT]
+                      [--allow-outside-limits]
                       [--server URL] [--token TOKEN]
 
   Uploads a measurement session of a unit to the server, which checks the whole file; its
   line/field problems are printed like offsetry check prints them, and nothing is stored.
-  Files from 256 KiB on show a progress bar on stderr.
+  Files from 256 KiB on show a progress bar on stderr. --uncertainty is the instrument's stated
+  uncertainty as its own certificate gives it (printed on the calibration certificate).
 ${REMOTE}`;
 
 export const PULL_USAGE = `usage: offsetry pull --unit SERIAL --out FILE [--format json|csv|urdf|certificate]

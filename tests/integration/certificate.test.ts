@@ -108,6 +108,9 @@ describe('calibration certificate', () => {
     expect(tight(text)).toContain(tight(`Measured on ${session!.measuredOn}`));
     expect(tight(text)).toContain(tight(`Technician ${session!.technician}`));
     expect(tight(text)).toContain(tight(`Instrument ${session!.instrument}`));
+    // The demo's sessions carry their tracker's stated uncertainty; the certificate prints it as recorded.
+    expect(session!.instrumentUncertainty).not.toBe('');
+    expect(tight(text)).toContain(tight(`Stated uncertainty ${session!.instrumentUncertainty}`));
     if (session!.ambientC !== null) expect(tight(text)).toContain(tight(`Ambient temperature ${session!.ambientC.toFixed(1)} °C`));
     expect(tight(text)).toContain(tight(`Session file SHA-256 ${session!.fileSha256}`));
     expect(tight(text)).toContain(tight(`Poses ${session!.poseCount}`));

@@ -61,12 +61,12 @@ const env = (token: string) => ({ OFFSETRY_URL: BASE_URL, OFFSETRY_TOKEN: token 
 
 describe('offsetry upload', () => {
   it('uploads a session and says where it is', async () => {
-    const r = await offsetry(['upload', '--unit', serial, '--file', 'test-data/vx-620-session.csv', '--measured-on', '2026-04-02', '--instrument', 'Invented tracker T-2', '--notes', 'from the CLI test'], env(tech.token));
+    const r = await offsetry(['upload', '--unit', serial, '--file', 'test-data/vx-620-session.csv', '--measured-on', '2026-04-02', '--instrument', 'Invented tracker T-2', '--uncertainty', '±(20 µm + 8 µm/m), k = 2', '--notes', 'from the CLI test'], env(tech.token));
     expect(r.code, r.stderr).toBe(0);
     const id = /session ([0-9a-f-]{36}), (\d+) poses/.exec(r.stdout);
     expect(id, r.stdout).not.toBeNull();
     const got = await tech.client.json(`/api/sessions/${id![1]}`);
-    expect(got.body.session).toMatchObject({ instrument: 'Invented tracker T-2', notes: 'from the CLI test', measuredOn: '2026-04-02', poseCount: Number(id![2]) });
+    expect(got.body.session).toMatchObject({ instrument: 'Invented tracker T-2', instrumentUncertainty: '±(20 µm + 8 µm/m), k = 2', notes: 'from the CLI test', measuredOn: '2026-04-02', poseCount: Number(id![2]) });
     // Byte for byte what was on disk.
     const file = await tech.client.fetch(`/api/sessions/${id![1]}/file`);
     expect(Buffer.from(await file.arrayBuffer()).equals(readFileSync('test-data/vx-620-session.csv'))).toBe(true);

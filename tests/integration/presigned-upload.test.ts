@@ -22,7 +22,7 @@ const s3 = testS3();
 const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
 const goodFile = readFileSync('test-data/vx-620-session.csv');
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
-const META = { measuredOn: '2025-04-02', technician: 'Test Tech', instrument: 'tracker T-2', ambientC: 20.5, target: '1.5 in SMR', notes: 'presigned' };
+const META = { measuredOn: '2025-04-02', technician: 'Test Tech', instrument: 'tracker T-2', instrumentUncertainty: '±(10 µm + 5 µm/m), k = 2', ambientC: 20.5, target: '1.5 in SMR', notes: 'presigned' };
 
 let revisionId: string;
 let tech: Client;
@@ -92,7 +92,7 @@ describe('a good file', () => {
     expect(done.status, JSON.stringify(done.body)).toBe(201);
     expect(done.body.poseCount).toBe(goodFile.toString('utf8').trim().split('\n').length - 1);
     const [row] = await db.select().from(sessions).where(eq(sessions.id, done.body.id));
-    expect(row).toMatchObject({ unitId: unit.id, fileName: 'visit.csv', fileSha256: sha(goodFile), fileBytes: goodFile.byteLength, measuredOn: META.measuredOn, ambientC: 20.5 });
+    expect(row).toMatchObject({ unitId: unit.id, fileName: 'visit.csv', fileSha256: sha(goodFile), fileBytes: goodFile.byteLength, measuredOn: META.measuredOn, instrumentUncertainty: META.instrumentUncertainty, ambientC: 20.5 });
     expect(row!.fileKey).toMatch(new RegExp(`^sessions/${unit.serial}/${done.body.id}/`));
     const [{ n }] = (await db.select({ n: sql<number>`count(*)::int` }).from(sessionPoses).where(eq(sessionPoses.sessionId, done.body.id))) as [{ n: number }];
     expect(n).toBe(done.body.poseCount);

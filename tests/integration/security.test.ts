@@ -368,6 +368,7 @@ describe('oversized fields are refused with 400 naming the field', () => {
   it.each([
     ['technician', 121],
     ['instrument', 121],
+    ['instrumentUncertainty', 121],
     ['target', 201],
     ['notes', 4001],
     ['ambientC', 33],

@@ -58,7 +58,7 @@ interface Upload {
 async function upload(client: Client, u: Upload) {
   const form = new FormData();
   form.append('unit', u.unit);
-  const fields = { measuredOn: '2025-03-14', technician: 'Test Tech', instrument: 'tracker T-1', ambientC: '21.5', target: '1.5 in SMR', notes: '', ...u.fields };
+  const fields = { measuredOn: '2025-03-14', technician: 'Test Tech', instrument: 'tracker T-1', instrumentUncertainty: '±(15 µm + 6 µm/m), k = 2', ambientC: '21.5', target: '1.5 in SMR', notes: '', ...u.fields };
   for (const [k, v] of Object.entries(fields)) form.append(k, v);
   const bytes = typeof u.file === 'string' ? new TextEncoder().encode(u.file) : u.file;
   form.append('file', new Blob([bytes as Uint8Array<ArrayBuffer>], { type: 'text/csv' }), u.fileName ?? 'session.csv');
@@ -278,7 +278,7 @@ describe('good uploads', () => {
 
     const meta = await tech.json<any>(`/api/sessions/${res.body.id}`);
     expect(meta.status).toBe(200);
-    expect(meta.body.session).toMatchObject({ fileSha256: sha, fileBytes: goodFile.length, poseCount: expectedRows, technician: 'Test Tech', ambientC: 21.5, hasSplit: true, unit: { serial: unit.serial } });
+    expect(meta.body.session).toMatchObject({ fileSha256: sha, fileBytes: goodFile.length, poseCount: expectedRows, technician: 'Test Tech', instrumentUncertainty: '±(15 µm + 6 µm/m), k = 2', ambientC: 21.5, hasSplit: true, unit: { serial: unit.serial } });
 
     const page2 = await tech.json<any>(`/api/sessions/${res.body.id}/poses?page=2&pageSize=10`);
     expect(page2.status).toBe(200);

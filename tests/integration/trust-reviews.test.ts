@@ -134,7 +134,29 @@ describe('identical fits', () => {
   it('three simultaneous identical "run fit" calls make one fit', async () => {
     const fx = await createFixture({ count: 40, seed: 36 });
     const body = { groups: GROUPS, seed: 5 };
-    const answers = await Promise.all([1, 2, 3].map(() => engineer.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: body })));
+    // The rule covers fits still queued or running. A 40-pose fit can finish before a late third request
+    // reaches the lock, so the test holds the per-session lock itself until all three requests wait on it:
+    // then they meet the lock together, as simultaneous requests on a busy server do.
+    const conn = await testDb().$client.reserve();
+    let answers: { status: number; body: any }[];
+    try {
+      await conn`select pg_advisory_lock(hashtext(${'fit:' + fx.sessionId}))`;
+      const pending = Promise.all([1, 2, 3].map(() => engineer.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: body })));
+      const deadline = Date.now() + 30_000;
+      for (;;) {
+        const [{ waiting }] = await conn`select count(*)::int as waiting from pg_locks w join pg_locks h
+          on h.locktype = 'advisory' and h.granted and h.pid = pg_backend_pid()
+          and w.classid = h.classid and w.objid = h.objid and w.objsubid = h.objsubid
+          where w.locktype = 'advisory' and not w.granted`;
+        if (waiting >= 3) break;
+        if (Date.now() > deadline) throw new Error(`only ${waiting} of 3 requests reached the fit lock within 30 s`);
+        await new Promise((r) => setTimeout(r, 20));
+      }
+      await conn`select pg_advisory_unlock(hashtext(${'fit:' + fx.sessionId}))`;
+      answers = await pending;
+    } finally {
+      conn.release();
+    }
     const ids = new Set(answers.map((a) => a.body.id));
     expect(ids.size, JSON.stringify(answers.map((a) => [a.status, a.body]))).toBe(1);
     expect(answers.filter((a) => a.status === 202)).toHaveLength(1);

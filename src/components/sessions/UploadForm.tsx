@@ -64,6 +64,7 @@ const META_FIELDS: Record<string, string> = {
   measuredOn: 'Measured on',
   technician: 'Technician',
   instrument: 'Laser tracker / instrument id',
+  instrumentUncertainty: "Instrument's stated uncertainty",
   ambientC: 'Ambient temperature (°C)',
   target: 'Target (SMR) and mounting',
   notes: 'Notes',
@@ -157,7 +158,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
     if (!form || !file) return;
     const fields = new FormData(form);
     const meta: Record<string, string> = {};
-    for (const name of ['unit', 'measuredOn', 'technician', 'instrument', 'ambientC', 'target', 'notes']) meta[name] = String(fields.get(name) ?? '');
+    for (const name of ['unit', 'measuredOn', 'technician', 'instrument', 'instrumentUncertainty', 'ambientC', 'target', 'notes']) meta[name] = String(fields.get(name) ?? '');
     meta.allowOutsideLimits = override ? 'true' : 'false';
     if (file.size > PRESIGNED_ABOVE_BYTES && globalThis.crypto?.subtle && (await presignedUpload(file, meta))) return;
 
@@ -292,6 +293,10 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
         <label className="field">
           <span>Laser tracker / instrument id</span>
           <input className="input" {...metaProps('instrument')} maxLength={120} placeholder="e.g. tracker LT-07" />
+        </label>
+        <label className="field">
+          <span>Instrument's stated uncertainty</span>
+          <input className="input" {...metaProps('instrumentUncertainty')} maxLength={120} placeholder="as on its certificate, e.g. ±(15 µm + 6 µm/m), k = 2" />
         </label>
         <label className="field">
           <span>Ambient temperature (°C)</span>

@@ -16,6 +16,8 @@ export const sessions = pgTable(
     measuredOn: date().notNull(),
     technician: text().notNull().default(''),
     instrument: text().notNull().default(''),
+    /** The instrument's stated measurement uncertainty as its own certificate gives it (free text, e.g. "±(15 µm + 6 µm/m), k = 2"). */
+    instrumentUncertainty: text().notNull().default(''),
     ambientC: real(),
     target: text().notNull().default(''),
     notes: text().notNull().default(''),

@@ -71,7 +71,7 @@ export async function certificateInputFor(s: SetRow, database: Db = sharedDb()):
         measuredOn: session.measuredOn,
         technician: session.technician,
         instrument: session.instrument,
-        statedUncertainty: null,
+        statedUncertainty: session.instrumentUncertainty || null,
         ambientC: session.ambientC,
         target: session.target,
         fileName: session.fileName,

@@ -107,6 +107,7 @@ const metaFields = {
   measuredOn: metaValue.optional(),
   technician: metaValue.optional(),
   instrument: metaValue.optional(),
+  instrumentUncertainty: metaValue.optional(),
   ambientC: metaValue.optional(),
   target: metaValue.optional(),
   notes: metaValue.optional(),

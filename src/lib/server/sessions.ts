@@ -46,7 +46,7 @@ const FORM_OVERHEAD_BYTES = 256 * 1024;
 export const MAX_LISTED_PROBLEMS = 100;
 /** Rows per multi-row INSERT: 1 000 rows × 10 columns stays far below PostgreSQL's 65 535 parameters. */
 
-export const UPLOAD_FIELDS = ['unit', 'measuredOn', 'technician', 'instrument', 'ambientC', 'target', 'notes', 'allowOutsideLimits', 'file'] as const;
+export const UPLOAD_FIELDS = ['unit', 'measuredOn', 'technician', 'instrument', 'instrumentUncertainty', 'ambientC', 'target', 'notes', 'allowOutsideLimits', 'file'] as const;
 
 // ---- metadata -------------------------------------------------------------------------------------
 
@@ -80,6 +80,7 @@ export const sessionMetaSchema = z.strictObject({
     .refine((s) => s <= new Date(Date.now() + 86_400_000).toISOString().slice(0, 10), 'measuredOn is in the future'),
   technician: text('technician', 120).default(''),
   instrument: text('instrument', 120).default(''),
+  instrumentUncertainty: text('instrumentUncertainty', 120).default(''),
   ambientC: z
     .string()
     .trim()
@@ -115,6 +116,7 @@ export const FIELD_EXPECTED: Record<string, string> = {
   allowOutsideLimits: 'true or false',
   technician: 'at most 120 characters',
   instrument: 'at most 120 characters',
+  instrumentUncertainty: "the instrument's stated uncertainty as its certificate gives it, at most 120 characters",
   target: 'at most 200 characters',
   notes: 'at most 4000 characters',
 };
@@ -611,6 +613,7 @@ export async function storeSession(input: StoreSessionInput, database: Db = shar
         measuredOn: input.meta.measuredOn,
         technician: input.meta.technician,
         instrument: input.meta.instrument,
+        instrumentUncertainty: input.meta.instrumentUncertainty,
         ambientC: input.meta.ambientC,
         target: input.meta.target,
         notes: input.meta.notes,
@@ -747,6 +750,7 @@ export interface SessionView {
   measuredOn: string;
   technician: string;
   instrument: string;
+  instrumentUncertainty: string;
   ambientC: number | null;
   target: string;
   notes: string;
@@ -788,6 +792,7 @@ export async function getSession(id: string, database: Db = sharedDb()): Promise
     measuredOn: s.measuredOn,
     technician: s.technician,
     instrument: s.instrument,
+    instrumentUncertainty: s.instrumentUncertainty,
     ambientC: s.ambientC,
     target: s.target,
     notes: s.notes,

@@ -101,6 +101,8 @@ export const session = z.looseObject({
     unit: z.looseObject({ id, serial: z.string() }),
     model: z.looseObject({ id, name: z.string(), revision: z.number().int() }),
     measuredOn: day,
+    instrument: z.string(),
+    instrumentUncertainty: z.string().meta({ description: "The instrument's stated uncertainty as its certificate gives it; empty when not recorded" }),
     fileName: z.string(),
     fileSha256: z.string().regex(/^[0-9a-f]{64}$/),
     fileBytes: z.number().int(),

@@ -11,7 +11,7 @@ export const GET: APIRoute = async ({ url }) => {
 
 /**
  * Upload a session: multipart/form-data with `file` (the CSV) and the fields unit, measuredOn, technician,
- * instrument, ambientC, target, notes, allowOutsideLimits. Send `unit` before `file` so the CSV is checked
+ * instrument, instrumentUncertainty, ambientC, target, notes, allowOutsideLimits. Send `unit` before `file` so the CSV is checked
  * while it arrives.
  */
 export const POST: APIRoute = async ({ locals, request }) => {

@@ -1,0 +1,1 @@
+ALTER TABLE "sessions" ADD COLUMN "instrument_uncertainty" text DEFAULT '' NOT NULL;
