@@ -30,6 +30,6 @@ export default defineConfig({
   devToolbar: { enabled: false },
   vite: {
     plugins: [tailwindcss()],
-    ssr: { external: ['pg-boss', 'postgres', 's3rver', 'smtp-server', 'nodemailer', 'pdfkit'] },
+    ssr: { external: ['pg-boss', 'piscina', 'postgres', 's3rver', 'smtp-server', 'nodemailer', 'pdfkit'] },
   },
 });

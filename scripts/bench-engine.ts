@@ -15,28 +15,20 @@ import { spawnSync } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { cpus, loadavg } from 'node:os';
 import { levenbergMarquardt as mlLevenbergMarquardt } from 'ml-levenberg-marquardt';
-import { fitSession, registerBase, writeBase } from '../src/lib/engine/fit';
+import { fitSession } from '../src/lib/engine/fit';
+import { registerBase, writeBase } from '../src/lib/engine/fit-problem';
 import { compileArm, createArmData, forwardKinematics, setParameters } from '../src/lib/engine/kinematics';
 import { pointJacobian, poseBuffers, predictPoints } from '../src/lib/engine/jacobian';
 import type { ArmGeometry, SessionPose } from '../src/lib/engine/types';
-import { seededRandom } from '../src/lib/engine/workspace';
+import { normalVariate, seededRandom } from '../src/lib/engine/random';
+import { sixAxisDh } from '../tests/support/arms';
 
 const quick = process.argv.includes('--quick');
 const SIZES = quick ? [60, 500, 5000] : [60, 500, 5000, 20000];
 
 // Invented six-axis arm (Offsetry test arm), not any product's parameters.
-const nominal: ArmGeometry = {
-  format: 'offsetry-arm/1', name: 'Bench arm BA-6', convention: 'dh',
-  joints: [
-    { name: 'J1', type: 'revolute', a: 150, alpha: -90, d: 420, theta: 0, min: -170, max: 170 },
-    { name: 'J2', type: 'revolute', a: 610, alpha: 0, d: 0, theta: -90, beta: 0, min: -120, max: 80 },
-    { name: 'J3', type: 'revolute', a: 115, alpha: -90, d: 0, theta: 0, min: -110, max: 150 },
-    { name: 'J4', type: 'revolute', a: 0, alpha: 90, d: 640, theta: 0, min: -180, max: 180 },
-    { name: 'J5', type: 'revolute', a: 0, alpha: -90, d: 0, theta: 0, min: -120, max: 120 },
-    { name: 'J6', type: 'revolute', a: 0, alpha: 0, d: 105, theta: 0, min: -350, max: 350 },
-  ],
-  tool: { x: 12, y: -8, z: 135, rx: 0, ry: 0, rz: 0 },
-};
+// The engine tests' invented six-axis DH arm (tests/support/arms.ts), under the benchmark's name.
+const nominal: ArmGeometry = { ...sixAxisDh(), name: 'Bench arm BA-6' };
 
 const random = seededRandom;
 
@@ -56,7 +48,7 @@ function session(count: number): SessionPose[] {
   const model = compileArm(truth);
   const data = createArmData(model);
   const r = random(count);
-  const g = () => Math.sqrt(-2 * Math.log(Math.max(r(), 1e-300))) * Math.cos(2 * Math.PI * r());
+  const g = () => normalVariate(r);
   const q = new Float64Array(6);
   return Array.from({ length: count }, (_, k) => {
     const deg = truth.joints.map((j) => j.min! + (j.max! - j.min!) * r());
@@ -109,7 +101,7 @@ function runMl(poses: SessionPose[], v0: Float64Array, active: number[]): { ms: 
         setParameters(model, data, v);
         const p = active.length;
         for (let i = 0; i < n; i++) {
-          forwardKinematics(model, data, pb.q, i * model.n, true);
+          forwardKinematics(model, data, pb.q, { offset: i * model.n, withDerivatives: true });
           pointJacobian(model, data, cols, J);
           for (let k = 0; k < p; k++) for (let r = 0; r < 3; r++) rows[(3 * i + r) * p + k] = J[3 * k + r];
         }

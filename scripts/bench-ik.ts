@@ -9,29 +9,21 @@ import { spawnSync } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { cpuUsage } from 'node:process';
 import { compensateProgram } from '../src/lib/engine/compensate';
-import { anglesFromRotation, IkSolver } from '../src/lib/engine/ik';
+import { IkSolver } from '../src/lib/engine/ik';
+import { anglesFromRotation } from '../src/lib/engine/rotations';
 import { compileArm } from '../src/lib/engine/kinematics';
 import type { ParsedProgram } from '../src/lib/engine/program-csv';
 import type { ArmGeometry } from '../src/lib/engine/types';
-import { seededRandom } from '../src/lib/engine/workspace';
+import { normalVariate, seededRandom } from '../src/lib/engine/random';
+import { sixAxisDh } from '../tests/support/arms';
 
 const quick = process.argv.includes('--quick');
 const COUNT = 10_000;
 const SCIPY_COUNT = quick ? 100 : 500;
 
 // Invented six-axis arm (the engine benchmark's BA-6), not any product's parameters.
-const nominal: ArmGeometry = {
-  format: 'offsetry-arm/1', name: 'Bench arm BA-6', convention: 'dh',
-  joints: [
-    { name: 'J1', type: 'revolute', a: 150, alpha: -90, d: 420, theta: 0, min: -170, max: 170 },
-    { name: 'J2', type: 'revolute', a: 610, alpha: 0, d: 0, theta: -90, beta: 0, min: -120, max: 80 },
-    { name: 'J3', type: 'revolute', a: 115, alpha: -90, d: 0, theta: 0, min: -110, max: 150 },
-    { name: 'J4', type: 'revolute', a: 0, alpha: 90, d: 640, theta: 0, min: -180, max: 180 },
-    { name: 'J5', type: 'revolute', a: 0, alpha: -90, d: 0, theta: 0, min: -120, max: 120 },
-    { name: 'J6', type: 'revolute', a: 0, alpha: 0, d: 105, theta: 0, min: -350, max: 350 },
-  ],
-  tool: { x: 12, y: -8, z: 135, rx: 0, ry: 0, rz: 0 },
-};
+// The engine tests' invented six-axis DH arm (tests/support/arms.ts), under the benchmark's name.
+const nominal: ArmGeometry = { ...sixAxisDh(), name: 'Bench arm BA-6' };
 const r = seededRandom(3);
 const s = () => 2 * r() - 1;
 const calibrated: ArmGeometry = {
@@ -92,7 +84,7 @@ console.log(scipyRate !== undefined
 // tracker frame, with joint hints a few degrees off: compensated = solved on the calibrated arm; uncompensated =
 // solved on the nominal model placed exactly at the true base. Error = |true arm's tool point − target|.
 const { fitSession } = await import('../src/lib/engine/fit');
-const gauss = (g: () => number) => Math.sqrt(-2 * Math.log(Math.max(g(), 1e-300))) * Math.cos(2 * Math.PI * g());
+const gauss = normalVariate;
 function trueArm(g: ArmGeometry, seed: number): ArmGeometry {
   const q = seededRandom(seed), u = () => 2 * q() - 1;
   return {

@@ -60,8 +60,8 @@ async function seed(url) {
   const { default: postgres } = await import('postgres');
   const sql = postgres(url, { max: 2, onnotice: () => {} });
   try {
-    const geometry = JSON.parse(fs.readFileSync(path.join(root, 'test-data', 'vx-620-nominal.json'), 'utf8'));
-    const [model] = await sql`insert into arm_models (name, description) values ('BENCH-VX (invented)', 'load benchmark') returning id`;
+    const geometry = JSON.parse(fs.readFileSync(path.join(root, 'test-data', 'orrin-r6-620-nominal.json'), 'utf8'));
+    const [model] = await sql`insert into arm_models (name, description) values ('BENCH-R6 (invented)', 'load benchmark') returning id`;
     const [rev] = await sql`insert into arm_model_revisions (model_id, revision, geometry) values (${model.id}, 1, ${sql.json(geometry)}) returning id`;
     await sql`
       insert into units (serial, model_revision_id, site, cell, commissioned_on)

@@ -1,6 +1,6 @@
 /**
  * Scale benchmark (`npm run bench -- scale`): how upload, fit and the fit/session pages grow with the
- * session size, at 1 000 / 10 000 / 100 000 poses (invented TQ-6 sessions from scripts/scale-fixture.ts).
+ * session size, at 1 000 / 10 000 / 100 000 poses (invented Tarn R6-420 sessions from scripts/scale-fixture.ts).
  * Starts a throw-away stack on loopback like bench-load (PostgreSQL with durability off, S3 and mail fakes,
  * the built app with its fit worker), one engineer with an API token, then for each size: the upload
  * (POST /api/sessions, request → 201), the fit (POST → state fitted, polled every 100 ms), the fit summary
@@ -94,7 +94,7 @@ async function main() {
   const [user] = await sql`insert into users (email, name, roles) values ('bench-scale@offsetry.test', 'Bench Engineer', '{engineer}'::text[]) returning id`;
   const token = `ofs_${crypto.randomBytes(24).toString('base64url')}`;
   await sql`insert into api_tokens (user_id, name, token_hash, prefix) values (${user!.id}, 'bench', ${crypto.createHash('sha256').update(token).digest('hex')}, ${token.slice(0, 10)})`;
-  const [model] = await sql`insert into arm_models (name, description) values ('TQ-6 (invented, scale bench)', 'scale benchmark') returning id`;
+  const [model] = await sql`insert into arm_models (name, description) values ('Tarn R6-420 (invented, scale bench)', 'scale benchmark') returning id`;
   const [rev] = await sql`insert into arm_model_revisions (model_id, revision, geometry) values (${model!.id}, 1, ${sql.json(scaleNominal() as never)}) returning id`;
   for (const n of SIZES) await sql`insert into units (serial, model_revision_id, site, cell) values (${`SCALE-${n}`}, ${rev!.id}, 'Bench hall', 'C1')`;
   await sql.end();

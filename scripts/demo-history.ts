@@ -11,7 +11,7 @@
 import { and, asc, eq, gte, inArray, sql } from 'drizzle-orm';
 import { auditLog, driftAlerts, fits, mailOutbox, parameterSets, sessions, units, users } from '../src/db/schema';
 import type { Db } from '../src/lib/server/db';
-import { fitSettingsSchema } from '../src/lib/server/fits';
+import { fitSettingsSchema } from '../src/lib/server/fit-settings';
 import { runFit } from '../src/lib/server/jobs';
 import { approveFit, submitFit } from '../src/lib/server/reviews';
 import type { CurrentUser } from '../src/lib/server/users';
@@ -74,7 +74,7 @@ export async function seedHistory(db: Db, serials: string[]): Promise<string> {
       await db
         .update(auditLog)
         .set({ at: approvedAt })
-        .where(and(eq(auditLog.unitId, unit.id), recent, inArray(auditLog.action, ['fit.approved', 'parameter_set.created', 'parameter_set.superseded', 'drift.alert'])));
+        .where(and(eq(auditLog.unitId, unit.id), recent, inArray(auditLog.action, ['fit.approved', 'parameter_set.created', 'parameter_set.superseded', 'drift_alert.raised'])));
       await db.update(driftAlerts).set({ createdAt: approvedAt }).where(and(eq(driftAlerts.unitId, unit.id), sql`${driftAlerts.createdAt} > now() - interval '1 hour'`));
     }
     // Each visit's upload: the evening of the day it was measured.

@@ -15,8 +15,8 @@ import { forwardPoint } from '../src/lib/engine/kinematics';
 import { parseSessionCsv, sessionToCsv } from '../src/lib/engine/session-csv';
 import type { ArmGeometry, FrameSpec, SessionPose } from '../src/lib/engine/types';
 import type { Db } from '../src/lib/server/db';
-import { storeSession } from '../src/lib/server/sessions';
-import { seededRandom } from '../src/lib/engine/workspace';
+import { storeSession } from '../src/lib/server/session-store';
+import { seededRandom } from '../src/lib/engine/random';
 
 export const DEMO_COMPANY = 'Larkspur Cell Services';
 

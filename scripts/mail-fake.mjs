@@ -10,6 +10,7 @@ import fs from 'node:fs';
 import http from 'node:http';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
+import { simpleParser } from 'mailparser';
 import { SMTPServer } from 'smtp-server';
 
 const { values } = parseArgs({
@@ -69,132 +70,21 @@ function emlPath(id) {
   return path.join(dir, `${id}.eml`);
 }
 
-// ---- parsing: mailparser when installed (a devDependency), otherwise a small plain-text reader -----------
+// ---- parsing: mailparser (a devDependency; every install of this repository has it) ---------------------
 
-/** @type {null | ((raw: Buffer) => Promise<{ subject: string, from: string, text: string, html: string | null }>)} */
-let parser = null;
-// MAIL_FAKE_PARSER=builtin forces the small reader (used to check it against mailparser).
-if (process.env.MAIL_FAKE_PARSER !== 'builtin') try {
-  const { simpleParser } = await import('mailparser');
-  parser = async (raw) => {
-    const mail = await simpleParser(raw, { skipImageLinks: true });
-    return {
-      subject: mail.subject ?? '',
-      from: mail.from?.text ?? '',
-      text: mail.text ?? '',
-      html: typeof mail.html === 'string' ? mail.html : null,
-    };
-  };
-} catch {
-  parser = null;
-}
-
-/** @param {Buffer} raw */
+/**
+ * Subject, From, the text part and the HTML part of a raw RFC 5322 message.
+ * @param {Buffer} raw
+ * @returns {Promise<{ subject: string, from: string, text: string, html: string | null }>}
+ */
 async function parseMessage(raw) {
-  if (parser) {
-    try {
-      return await parser(raw);
-    } catch {
-      /* fall through to the small reader */
-    }
-  }
-  return minimalParse(raw.toString('latin1'));
-}
-
-/**
- * Headers and the first text/plain part of a MIME message (RFC 5322 headers, RFC 2045/2046 multipart).
- * @param {string} source
- */
-function minimalParse(source) {
-  const { headers, body } = splitEntity(source);
-  const textPart = findPart(headers, body, 'text/plain');
-  const htmlPart = findPart(headers, body, 'text/html');
+  const mail = await simpleParser(raw, { skipImageLinks: true });
   return {
-    subject: decodeWords(headers.get('subject') ?? ''),
-    from: decodeWords(headers.get('from') ?? ''),
-    text: textPart ?? '',
-    html: htmlPart,
+    subject: mail.subject ?? '',
+    from: mail.from?.text ?? '',
+    text: mail.text ?? '',
+    html: typeof mail.html === 'string' ? mail.html : null,
   };
-}
-
-/** @param {string} source */
-function splitEntity(source) {
-  const cut = source.search(/\r?\n\r?\n/);
-  const head = cut < 0 ? source : source.slice(0, cut);
-  const body = cut < 0 ? '' : source.slice(cut).replace(/^\r?\n\r?\n/, '');
-  /** @type {Map<string, string>} */
-  const headers = new Map();
-  for (const line of head.replace(/\r?\n[ \t]+/g, ' ').split(/\r?\n/)) {
-    const colon = line.indexOf(':');
-    if (colon > 0) headers.set(line.slice(0, colon).trim().toLowerCase(), line.slice(colon + 1).trim());
-  }
-  return { headers, body };
-}
-
-/**
- * @param {Map<string, string>} headers
- * @param {string} body
- * @param {string} wanted
- * @returns {string | null}
- */
-function findPart(headers, body, wanted) {
-  const type = (headers.get('content-type') ?? 'text/plain').toLowerCase();
-  if (type.startsWith('multipart/')) {
-    const boundary = /boundary="?([^";]+)"?/i.exec(headers.get('content-type') ?? '')?.[1];
-    if (!boundary) return null;
-    for (const chunk of body.split(`--${boundary}`).slice(1)) {
-      if (chunk.startsWith('--')) break;
-      const part = splitEntity(chunk.replace(/^\r?\n/, ''));
-      const found = findPart(part.headers, part.body, wanted);
-      if (found !== null) return found;
-    }
-    return null;
-  }
-  if (!type.startsWith(wanted)) return null;
-  const charset = /charset="?([^";]+)"?/i.exec(type)?.[1] ?? 'utf-8';
-  const encoding = (headers.get('content-transfer-encoding') ?? '7bit').toLowerCase();
-  let bytes;
-  if (encoding === 'base64') bytes = Buffer.from(body.replace(/\s+/g, ''), 'base64');
-  else if (encoding === 'quoted-printable') bytes = decodeQuotedPrintable(body);
-  else bytes = Buffer.from(body, 'latin1');
-  try {
-    return new TextDecoder(charset).decode(bytes).replace(/\r\n/g, '\n').trimEnd();
-  } catch {
-    return bytes.toString('utf8').trimEnd();
-  }
-}
-
-/** RFC 2045 §6.7 quoted-printable. @param {string} text */
-function decodeQuotedPrintable(text) {
-  const soft = text.replace(/=\r?\n/g, '');
-  /** @type {number[]} */
-  const out = [];
-  for (let i = 0; i < soft.length; i++) {
-    const hex = soft.slice(i + 1, i + 3);
-    if (soft[i] === '=' && /^[0-9A-Fa-f]{2}$/.test(hex)) {
-      out.push(Number.parseInt(hex, 16));
-      i += 2;
-    } else {
-      out.push(soft.charCodeAt(i) & 0xff);
-    }
-  }
-  return Buffer.from(out);
-}
-
-/** RFC 2047 encoded words (=?charset?B|Q?...?=). @param {string} value */
-function decodeWords(value) {
-  // Whitespace between two adjacent encoded words is not part of the text (RFC 2047 §6.2).
-  return value.replace(/(=\?[^?]+\?[BbQq]\?[^?]*\?=)\s+(?==\?)/g, '$1').replace(/=\?([^?]+)\?([BbQq])\?([^?]*)\?=/g, (_, charset, kind, data) => {
-    const bytes =
-      kind.toUpperCase() === 'B'
-        ? Buffer.from(data, 'base64')
-        : decodeQuotedPrintable(data.replaceAll('_', ' '));
-    try {
-      return new TextDecoder(charset).decode(bytes);
-    } catch {
-      return bytes.toString('utf8');
-    }
-  });
 }
 
 // ---- SMTP -------------------------------------------------------------------------------------------------
@@ -337,7 +227,7 @@ try {
   await listen(api, apiPort, 'HTTP API');
   console.log(
     `mail-fake ready smtp://${host}:${smtpPort} api=http://${host}:${apiPort} dir=${dir}` +
-      ` (${index.length} stored, parser ${parser ? 'mailparser' : 'built-in'})`,
+      ` (${index.length} stored)`,
   );
 } catch (error) {
   console.error(`mail-fake: could not listen: ${error instanceof Error ? error.message : error}`);

@@ -50,8 +50,9 @@ async function main() {
   const { default: postgres } = await import('postgres');
   const sql = postgres(url, { max: 1, onnotice: () => {}, connect_timeout: 10 });
   try {
+    // public first: the message should name the application's own tables before any queue or migration schema.
     const [{ n, names }] = await sql`
-      select count(*)::int as n, coalesce(string_agg(n.nspname || '.' || c.relname, ', ' order by n.nspname, c.relname), '') as names
+      select count(*)::int as n, coalesce(string_agg(n.nspname || '.' || c.relname, ', ' order by n.nspname <> 'public', n.nspname, c.relname), '') as names
       from pg_class c join pg_namespace n on n.oid = c.relnamespace
       where c.relkind in ('r', 'p', 'v', 'm', 'S', 'f')
         and n.nspname not in ('pg_catalog', 'information_schema') and n.nspname not like 'pg_toast%' and n.nspname not like 'pg_temp%'`;

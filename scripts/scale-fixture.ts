@@ -1,17 +1,17 @@
 /**
- * A large invented session for the scale benchmark and the scale tests: an invented six-axis arm (TQ-6,
+ * A large invented session for the scale benchmark and the scale tests: an invented six-axis arm (Tarn R6-420,
  * no real product's parameters), its "true" geometry with small invented errors in an invented tracker
  * placement, and N poses measured with 15 µm noise, written as the session CSV the upload takes.
  * A few poses carry a 2 mm bump (known outliers) at fixed positions. Reproducible from the seed.
  */
 import { forwardPoint } from '../src/lib/engine/kinematics';
-import { seededRandom } from '../src/lib/engine/workspace';
+import { normalVariate, seededRandom } from '../src/lib/engine/random';
 import type { ArmGeometry } from '../src/lib/engine/types';
 
 export function scaleNominal(): ArmGeometry {
   return {
     format: 'offsetry-arm/1',
-    name: 'TQ-6 (invented test arm)',
+    name: 'Tarn R6-420 (invented test arm)',
     convention: 'mdh',
     joints: [
       { name: 'J1', type: 'revolute', a: 0, alpha: 0, d: 350, theta: 0, min: -160, max: 160 },
@@ -25,17 +25,29 @@ export function scaleNominal(): ArmGeometry {
   };
 }
 
+/** Invented errors of the "true" arm per joint, [Δa mm, Δα °, Δd mm, Δθ °] (shared with tests/support/arms.ts). */
+export const scaleJointErrors: readonly (readonly [number, number, number, number])[] = [
+  [0, 0, 0, 0],
+  [0.18, -0.025, 0, 0.038],
+  [-0.29, 0.021, 0, -0.031],
+  [0.12, 0.03, -0.22, 0.045],
+  [-0.07, -0.035, 0, -0.021],
+  [0, 0.019, 0.14, 0],
+];
+
+/** The invented tracker placement of the "true" arm (its base frame in the measurement frame). */
+export const scaleTrackerBase = { x: 1820.5, y: -512.3, z: -244.9, rx: 0.09, ry: -0.06, rz: 21.4 } as const;
+
 function scaleTrue(): ArmGeometry {
   const g = scaleNominal();
-  const errors = [[0, 0, 0, 0], [0.18, -0.025, 0, 0.038], [-0.29, 0.021, 0, -0.031], [0.12, 0.03, -0.22, 0.045], [-0.07, -0.035, 0, -0.021], [0, 0.019, 0.14, 0]];
   g.joints.forEach((j, i) => {
-    const [da, dal, dd, dth] = errors[i]!;
-    j.a += da!;
-    j.alpha += dal!;
-    j.d += dd!;
-    j.theta += dth!;
+    const [da, dal, dd, dth] = scaleJointErrors[i]!;
+    j.a += da;
+    j.alpha += dal;
+    j.d += dd;
+    j.theta += dth;
   });
-  g.base = { x: 1820.5, y: -512.3, z: -244.9, rx: 0.09, ry: -0.06, rz: 21.4 };
+  g.base = { ...scaleTrackerBase };
   g.tool = { x: 0.35, y: -0.27, z: 95.48, rx: 0, ry: 0, rz: 0 };
   return g;
 }
@@ -49,7 +61,7 @@ export function scaleSessionCsv(n: number, seed = 17): string {
   const truth = scaleTrue();
   const nominal = scaleNominal();
   const bumped = new Set(bumpedPositions(n));
-  const noise = () => 0.015 * Math.sqrt(-2 * Math.log(Math.max(r(), 1e-300))) * Math.cos(2 * Math.PI * r());
+  const noise = () => 0.015 * normalVariate(r);
   const lines = ['pose,q1,q2,q3,q4,q5,q6,x,y,z'];
   for (let i = 0; i < n; i++) {
     const q = nominal.joints.map((j) => Number((j.min! * 0.8 + (j.max! - j.min!) * 0.8 * r()).toFixed(4)));

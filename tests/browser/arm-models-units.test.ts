@@ -30,8 +30,8 @@ describe('arm model form, unit registration, pose plan, unit list', () => {
     await page.goto(`${BASE_URL}/arm-models/new`);
     await page.locator('[data-arm-model-form][data-hydrated="true"]').waitFor();
 
-    await page.locator('[data-import-input]').setInputFiles('test-data/vx-620-nominal.json');
-    await page.getByText('Read vx-620-nominal.json: 6 joints, modified DH').waitFor();
+    await page.locator('[data-import-input]').setInputFiles('test-data/orrin-r6-620-nominal.json');
+    await page.getByText('Read orrin-r6-620-nominal.json: 6 joints, modified DH').waitFor();
     expect(await page.locator('[data-joint-row]').count()).toBe(6);
     await page.locator('input[name="name"]').fill(name);
 
@@ -102,7 +102,7 @@ describe('arm model form, unit registration, pose plan, unit list', () => {
     await signInPage(page, DEMO.engineer);
     // Three units on a fresh model, registered through the API with the page's own cookies.
     const modelName = uniq('LIST-ARM-');
-    const geometry = await (await import('node:fs/promises')).readFile('test-data/lz-410-nominal.json', 'utf8');
+    const geometry = await (await import('node:fs/promises')).readFile('test-data/orrin-s4-410-nominal.json', 'utf8');
     const created = await page.request.post(`${BASE_URL}/api/arm-models`, { data: { name: modelName, geometry: { ...JSON.parse(geometry), name: modelName } }, headers: { origin: BASE_URL } });
     expect(created.status()).toBe(201);
     const modelId = (await created.json()).id;

@@ -53,7 +53,7 @@ describe('charts that read true', () => {
 
     // Excluded poses: hollow dashed bars (2 poses × before/after) and ✕ markers (2 poses × 3 axes).
     await expect(page.locator('[data-chart="residuals"] .recharts-bar-rectangle path[stroke-dasharray]').count()).resolves.toBe(4);
-    await expect(page.locator('[data-chart="axes"] path[fill="none"][stroke="#8a94a6"]').count()).resolves.toBe(6);
+    await expect(page.locator('[data-chart="axes"] path[fill="none"][stroke="var(--color-chart-nominal)"]').count()).resolves.toBe(6);
 
     // Tooltip of an excluded pose's bar (pose 3 in file order) names its role and carries units.
     const bars = page.locator('[data-chart="residuals"] .recharts-bar-rectangle');

@@ -7,9 +7,10 @@ import { mkdirSync } from 'node:fs';
 import { parse } from 'csv-parse/sync';
 import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { anglesFromRotation, IkSolver } from '../../src/lib/engine/ik';
+import { IkSolver } from '../../src/lib/engine/ik';
+import { anglesFromRotation } from '../../src/lib/engine/rotations';
 import { createDb } from '../../src/lib/server/db';
-import { vx620Nominal, vx620True } from '../engine/make-test-data';
+import { r6Nominal, r6True } from '../engine/make-test-data';
 import { approveSet, makeModel, makeUnit } from '../support/approved-sets';
 import { islandsHydrated, launchBrowser, signInPage } from '../support/browser';
 import { BASE_URL, DEMO } from '../support/http';
@@ -18,7 +19,7 @@ import { serviceEnv } from '../support/services';
 const db = createDb(serviceEnv().databaseUrl, { max: 2 });
 let browser: Browser;
 let serial: string;
-const calibrated = vx620True();
+const calibrated = r6True();
 const solver = new IkSolver({ ...calibrated, base: undefined });
 // A small drilling pattern: 5 × 4 holes, tool pointing down (rx = 180°).
 const program = (() => {
@@ -33,7 +34,7 @@ const program = (() => {
 
 beforeAll(async () => {
   browser = await launchBrowser();
-  const m = await makeModel(db, vx620Nominal());
+  const m = await makeModel(db, r6Nominal());
   const u = await makeUnit(db, m.revisionId);
   await approveSet(db, { unitId: u.unitId, revisionId: m.revisionId, geometry: calibrated });
   serial = u.serial;

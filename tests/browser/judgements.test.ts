@@ -11,7 +11,8 @@ import type { ArmGeometry } from '../../src/lib/engine/types';
 import { islandsHydrated, launchBrowser, signInPage } from '../support/browser';
 import { approveSet, moved } from '../support/approved-sets';
 import { BASE_URL, DEMO, signedIn, uniq } from '../support/http';
-import { createFixture, nominalTq6, testDb, waitForFit } from '../integration/fit-fixtures';
+import { nominalTq6 } from '../support/arms';
+import { createFixture, testDb, waitForFit } from '../integration/fit-fixtures';
 
 let browser: Browser;
 beforeAll(async () => {
@@ -34,9 +35,9 @@ const shots = async (page: import('playwright-core').Page, name: string, checkWi
 describe('plausibility gate in the browser', () => {
   it('a session of a different arm: red verdicts on the session and the fit; submitting needs an engineer override the reviewer sees', async () => {
     const db = testDb();
-    const vx = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
+    const r6 = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
     // Another six-axis model with the same joint ranges (a little wider) but other link lengths.
-    const other: ArmGeometry = { ...vx, name: 'Other six-axis', joints: vx.joints.map((j, k) => ({ ...j, a: [0, 75, 560, 35, 0, 0][k]!, d: [420, 0, 0, 515, 0, 90][k]!, min: j.min! - 10, max: j.max! + 10 })) };
+    const other: ArmGeometry = { ...r6, name: 'Other six-axis', joints: r6.joints.map((j, k) => ({ ...j, a: [0, 75, 560, 35, 0, 0][k]!, d: [420, 0, 0, 515, 0, 90][k]!, min: j.min! - 10, max: j.max! + 10 })) };
     const [model] = await db.insert(armModels).values({ name: uniq('OTHER-6-') }).returning();
     const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry: other }).returning();
     const serial = uniq('WM-');
@@ -46,7 +47,7 @@ describe('plausibility gate in the browser', () => {
     const page = await ctx.newPage();
     await signInPage(page, DEMO.technician);
     await page.goto(`${BASE_URL}/sessions/new?unit=${serial}`);
-    await page.locator('[data-file-input]').setInputFiles({ name: 'vx-620-session.csv', mimeType: 'text/csv', buffer: readFileSync('test-data/vx-620-session.csv') });
+    await page.locator('[data-file-input]').setInputFiles({ name: 'orrin-r6-620-session.csv', mimeType: 'text/csv', buffer: readFileSync('test-data/orrin-r6-620-session.csv') });
     await page.getByLabel('Laser tracker / instrument id').fill('tracker LT-99');
     await Promise.all([page.waitForURL(/\/sessions\/[0-9a-f-]{36}$/, { timeout: 30_000 }), page.getByRole('button', { name: 'Upload session' }).click()]);
     const sessionId = new URL(page.url()).pathname.split('/').pop()!;

@@ -21,9 +21,9 @@ import { testS3 } from '../support/s3';
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
 const s3 = testS3();
-const nominal = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const truth = JSON.parse(readFileSync('test-data/vx-620-true.json', 'utf8')) as ArmGeometry;
-const goodFile = readFileSync('test-data/vx-620-session.csv');
+const nominal = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const truth = JSON.parse(readFileSync('test-data/orrin-r6-620-true.json', 'utf8')) as ArmGeometry;
+const goodFile = readFileSync('test-data/orrin-r6-620-session.csv');
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 
 let browser: Browser;

@@ -13,14 +13,14 @@ import { BASE_URL, DEMO, uniq } from '../support/http';
 import { serviceEnv } from '../support/services';
 
 const db = createDb(serviceEnv().databaseUrl, { max: 2 });
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const goodFile = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const goodFile = readFileSync('test-data/orrin-r6-620-session.csv');
 let browser: Browser;
 let serial: string;
 
 beforeAll(async () => {
   browser = await launchBrowser();
-  const [model] = await db.insert(armModels).values({ name: uniq('BROWSER-VX-') }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('BROWSER-R6-') }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   serial = uniq('BR-');
   await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Test hall', cell: 'B2' });

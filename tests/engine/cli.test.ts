@@ -9,14 +9,15 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { parseGeometry } from '../../src/lib/engine/geometry';
 import { parseSessionCsv } from '../../src/lib/engine/session-csv';
+import { normalVariate, seededRandom } from '../../src/lib/engine/random';
 import { BAD_FILES, ROOT } from './make-test-data';
 
 const PROJECT = resolve(__dirname, '..', '..');
 const BIN = join(PROJECT, 'bin', 'offsetry.mjs');
-const VX = join(ROOT, 'vx-620-nominal.json');
-const VX_SESSION = join(ROOT, 'vx-620-session.csv');
-const LZ = join(ROOT, 'lz-410-nominal.json');
-const LZ_SESSION = join(ROOT, 'lz-410-session.csv');
+const R6 = join(ROOT, 'orrin-r6-620-nominal.json');
+const R6_SESSION = join(ROOT, 'orrin-r6-620-session.csv');
+const S4 = join(ROOT, 'orrin-s4-410-nominal.json');
+const S4_SESSION = join(ROOT, 'orrin-s4-410-session.csv');
 
 interface Run { code: number; stdout: string; stderr: string }
 
@@ -63,9 +64,9 @@ describe('offsetry --help and usage errors', () => {
     const [none, unknown, flag, missing, holdout] = await Promise.all([
       offsetry([]),
       offsetry(['calibrate']),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'x.json'), '--fast']),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION]),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'x.json'), '--holdout', '1.5']),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', join(dir, 'x.json'), '--fast']),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION]),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', join(dir, 'x.json'), '--holdout', '1.5']),
     ]);
     expect(none.code).toBe(2);
     expect(unknown).toMatchObject({ code: 2, stderr: expect.stringMatching(/unknown command "calibrate"/) });
@@ -78,25 +79,25 @@ describe('offsetry --help and usage errors', () => {
 
 describe('offsetry fit', () => {
   it('prints the plausibility verdicts and exits 7 for a session of a different arm model', async () => {
-    const vx = JSON.parse(readFileSync(VX, 'utf8'));
-    // Another six-axis model: the VX-620 session does not belong to it (J3.a 560 mm instead of 470 mm …).
-    const other = { ...vx, name: 'other', joints: vx.joints.map((j: Record<string, number>, k: number) => ({ ...j, a: [0, 75, 560, 35, 0, 0][k], d: [420, 0, 0, 515, 0, 90][k], min: j.min! - 10, max: j.max! + 10 })) };
+    const r6 = JSON.parse(readFileSync(R6, 'utf8'));
+    // Another six-axis model: the Orrin R6-620 session does not belong to it (J3.a 560 mm instead of 470 mm …).
+    const other = { ...r6, name: 'other', joints: r6.joints.map((j: Record<string, number>, k: number) => ({ ...j, a: [0, 75, 560, 35, 0, 0][k], d: [420, 0, 0, 515, 0, 90][k], min: j.min! - 10, max: j.max! + 10 })) };
     const model = join(dir, 'other-model.json');
     writeFileSync(model, JSON.stringify(other));
-    const r = await offsetry(['fit', '--model', model, '--data', VX_SESSION, '--out', join(dir, 'other-cal.json')]);
+    const r = await offsetry(['fit', '--model', model, '--data', R6_SESSION, '--out', join(dir, 'other-cal.json')]);
     expect(r.code).toBe(7);
     expect(r.stdout).toMatch(/Plausibility: IMPLAUSIBLE/);
     expect(r.stdout).toMatch(/✕ These measurements do not look like this arm model: The nominal model is \d+\.\d{3} mm RMS off/);
     expect(r.stdout).toMatch(/✕ \d parameter changes beyond the plausible bounds: .*J3\.a -9\d\.\d{3} mm/);
-    const good = await offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'vx-cal-2.json')]);
+    const good = await offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', join(dir, 'r6-cal-2.json')]);
     expect(good.code).toBe(0);
     expect(good.stdout).toMatch(/Plausibility: PASS/);
   });
 
-  it('fits the VX-620 sample: writes a full-precision geometry and the report, prints a summary', async () => {
-    const out = join(dir, 'vx-cal.json');
-    const rep = join(dir, 'vx-report.json');
-    const r = await offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--report', rep]);
+  it('fits the Orrin R6-620 sample: writes a full-precision geometry and the report, prints a summary', async () => {
+    const out = join(dir, 'r6-cal.json');
+    const rep = join(dir, 'r6-report.json');
+    const r = await offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', out, '--report', rep]);
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     expect(r.stdout).toMatch(/fit RMS\s+\d+\.\d{3} mm\s+\d+\.\d{3} mm/);
@@ -119,19 +120,19 @@ describe('offsetry fit', () => {
     noTempFiles();
   });
 
-  it('fits the LZ-410 sample with a random hold-out and reports the rank-deficient parameters', async () => {
-    const out = join(dir, 'lz-cal.json');
-    const r = await offsetry(['fit', '--model', LZ, '--data', LZ_SESSION, '--out', out, '--holdout', '0.25', '--seed', '7']);
+  it('fits the Orrin S4-410 sample with a random hold-out and reports the rank-deficient parameters', async () => {
+    const out = join(dir, 's4-cal.json');
+    const r = await offsetry(['fit', '--model', S4, '--data', S4_SESSION, '--out', out, '--holdout', '0.25', '--seed', '7']);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/held out at random \(0\.25\)/);
     expect(r.stdout).toMatch(/fixed at nominal:/);
-    expect(parseGeometry(readFileSync(out, 'utf8'), out).name).toBe('LZ-410');
+    expect(parseGeometry(readFileSync(out, 'utf8'), out).name).toBe('Orrin S4-410');
   });
 
   it('every bad session file exits 1 naming the file and line, and writes nothing', async () => {
     const names = Object.keys(BAD_FILES);
     const runs = await pool(names, 3, (name) =>
-      offsetry(['fit', '--model', VX, '--data', join(ROOT, 'bad', name), '--out', join(dir, `bad-${name}.json`), '--report', join(dir, `bad-${name}.report.json`)]),
+      offsetry(['fit', '--model', R6, '--data', join(ROOT, 'bad', name), '--out', join(dir, `bad-${name}.json`), '--report', join(dir, `bad-${name}.report.json`)]),
     );
     names.forEach((name, k) => {
       const r = runs[k];
@@ -155,7 +156,7 @@ describe('offsetry fit', () => {
       ['geometry-duplicate-joint.json', /field joints\[4\]\.name: joint name "J4" is used twice/],
       ['geometry-missing-type.json', /field joints\[3\]\.type/],
     ];
-    const runs = await Promise.all(cases.map(([f]) => offsetry(['fit', '--model', join(ROOT, 'bad', f), '--data', VX_SESSION, '--out', join(dir, `g-${f}`)])));
+    const runs = await Promise.all(cases.map(([f]) => offsetry(['fit', '--model', join(ROOT, 'bad', f), '--data', R6_SESSION, '--out', join(dir, `g-${f}`)])));
     cases.forEach(([f, re], k) => {
       expect(runs[k].code).toBe(1);
       expect(runs[k].stderr).toContain(`cannot read the geometry file ${join(ROOT, 'bad', f)}`);
@@ -165,7 +166,7 @@ describe('offsetry fit', () => {
   });
 
   it('joints outside the limits: refused (existing output kept), accepted with --allow-outside-limits', async () => {
-    const text = readFileSync(VX_SESSION, 'utf8').split('\n');
+    const text = readFileSync(R6_SESSION, 'utf8').split('\n');
     const cells = text[10].split(','); // line 11: P10, visited once
     expect(cells[0]).toBe('P10');
     cells[1] = '171.25'; // J1 limit is ±165
@@ -174,12 +175,12 @@ describe('offsetry fit', () => {
     writeFileSync(session, text.join('\n'));
     const out = join(dir, 'outside-cal.json');
     writeFileSync(out, 'previous content');
-    const refused = await offsetry(['fit', '--model', VX, '--data', session, '--out', out]);
+    const refused = await offsetry(['fit', '--model', R6, '--data', session, '--out', out]);
     expect(refused.code).toBe(1);
     expect(refused.stderr).toMatch(/line 11, field q1: joint J1 reading 171\.25 deg is outside the model's limits/);
     expect(refused.stderr).toMatch(/--allow-outside-limits/);
     expect(readFileSync(out, 'utf8')).toBe('previous content');
-    const accepted = await offsetry(['fit', '--model', VX, '--data', session, '--out', out, '--allow-outside-limits']);
+    const accepted = await offsetry(['fit', '--model', R6, '--data', session, '--out', out, '--allow-outside-limits']);
     expect(accepted.code, accepted.stderr).toBe(0);
     expect(accepted.stderr).toMatch(/warning: .*line 11, field q1/);
     expect(parseGeometry(readFileSync(out, 'utf8'), out).format).toBe('offsetry-arm/1');
@@ -187,9 +188,9 @@ describe('offsetry fit', () => {
 
   it('fewer poses than identifiable parameters exits 1 and writes nothing', async () => {
     const session = join(dir, 'few.csv');
-    writeFileSync(session, readFileSync(VX_SESSION, 'utf8').split('\n').slice(0, 9).join('\n') + '\n');
+    writeFileSync(session, readFileSync(R6_SESSION, 'utf8').split('\n').slice(0, 9).join('\n') + '\n');
     const out = join(dir, 'few-cal.json');
-    const r = await offsetry(['fit', '--model', VX, '--data', session, '--out', out, '--holdout', '0']);
+    const r = await offsetry(['fit', '--model', R6, '--data', session, '--out', out, '--holdout', '0']);
     expect(r.code).toBe(1);
     expect(r.stderr).toMatch(/cannot fit .* to .*few\.csv/);
     expect(r.stderr).toContain('few.csv');
@@ -199,16 +200,16 @@ describe('offsetry fit', () => {
 
   it('refuses an output that would overwrite an input', async () => {
     const model = join(dir, 'model-copy.json');
-    writeFileSync(model, readFileSync(VX));
-    const r = await offsetry(['fit', '--model', model, '--data', VX_SESSION, '--out', model]);
+    writeFileSync(model, readFileSync(R6));
+    const r = await offsetry(['fit', '--model', model, '--data', R6_SESSION, '--out', model]);
     expect(r).toMatchObject({ code: 2, stderr: expect.stringMatching(/would overwrite the input --model/) });
-    expect(readFileSync(model, 'utf8')).toBe(readFileSync(VX, 'utf8'));
+    expect(readFileSync(model, 'utf8')).toBe(readFileSync(R6, 'utf8'));
   });
 
   it('a missing input file or output folder exits 1 before any work', async () => {
     const [noModel, noDir] = await Promise.all([
-      offsetry(['fit', '--model', join(dir, 'nope.json'), '--data', VX_SESSION, '--out', join(dir, 'n.json')]),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', join(dir, 'no-such-folder', 'n.json')]),
+      offsetry(['fit', '--model', join(dir, 'nope.json'), '--data', R6_SESSION, '--out', join(dir, 'n.json')]),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', join(dir, 'no-such-folder', 'n.json')]),
     ]);
     expect(noModel).toMatchObject({ code: 1, stderr: expect.stringMatching(/nope\.json: geometry file not found/) });
     expect(noDir).toMatchObject({ code: 1, stderr: expect.stringMatching(/the folder .*no-such-folder does not exist/) });
@@ -217,7 +218,7 @@ describe('offsetry fit', () => {
 
 describe('offsetry check', () => {
   it('prints the nominal error statistics after registering the tracker frame', async () => {
-    const r = await offsetry(['check', '--model', VX, '--data', VX_SESSION]);
+    const r = await offsetry(['check', '--model', R6, '--data', R6_SESSION]);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/85 poses, measurement frame registered/);
     const m = /RMS\s+mean\s+p95\s+max\n\s+(\d+\.\d+) mm/.exec(r.stdout);
@@ -226,7 +227,7 @@ describe('offsetry check', () => {
   });
 
   it('a bad session exits 1 with the located problem', async () => {
-    const r = await offsetry(['check', '--model', VX, '--data', join(ROOT, 'bad', 'nan-cell.csv')]);
+    const r = await offsetry(['check', '--model', R6, '--data', join(ROOT, 'bad', 'nan-cell.csv')]);
     expect(r.code).toBe(1);
     expect(r.stderr).toMatch(/nan-cell\.csv, line 2, field x: NaN is not a measured value/);
   });
@@ -235,7 +236,7 @@ describe('offsetry check', () => {
 describe('offsetry plan', () => {
   it('writes a pose plan that reads back as a session header with joints inside the limits', async () => {
     const out = join(dir, 'plan.csv');
-    const r = await offsetry(['plan', '--model', VX, '--count', '30', '--out', out, '--seed', '3']);
+    const r = await offsetry(['plan', '--model', R6, '--count', '30', '--out', out, '--seed', '3']);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/Planned 30 poses/);
     const text = readFileSync(out, 'utf8');
@@ -244,14 +245,14 @@ describe('offsetry plan', () => {
     expect(lines).toHaveLength(31);
     // a plan plus measured columns is a session: check limits with the session parser
     const asSession = lines.map((l, k) => (k === 0 ? `${l},x,y,z` : `${l},0,0,0`)).join('\n');
-    const geometry = parseGeometry(readFileSync(VX, 'utf8'), VX);
+    const geometry = parseGeometry(readFileSync(R6, 'utf8'), R6);
     const parsed = await parseSessionCsv(asSession, { fileName: 'plan.csv', geometry });
     expect(parsed.ok).toBe(true);
   });
 
   it('a bad count exits 2 and writes nothing', async () => {
     const out = join(dir, 'plan-bad.csv');
-    const r = await offsetry(['plan', '--model', VX, '--count', 'many', '--out', out]);
+    const r = await offsetry(['plan', '--model', R6, '--count', 'many', '--out', out]);
     expect(r.code).toBe(2);
     expect(r.stderr).toMatch(/--count: "many" is not valid/);
     expect(existsSync(out)).toBe(false);
@@ -261,7 +262,7 @@ describe('offsetry plan', () => {
 describe('offsetry fit: robust loss, exclusions, instrument noise and warnings', () => {
   it('--loss huber --exclude P12,P30 --noise-mm 0.02: excluded poses, sandwich note, noise in the summary and report', async () => {
     const out = join(dir, 'robust.json'), rep = join(dir, 'robust-report.json');
-    const r = await offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--report', rep, '--loss', 'huber', '--exclude', 'P12,P30', '--noise-mm', '0.02']);
+    const r = await offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', out, '--report', rep, '--loss', 'huber', '--exclude', 'P12,P30', '--noise-mm', '0.02']);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/, 2 excluded\./);
     expect(r.stdout).toMatch(/Loss: huber \(scale 0\.050 mm\); instrument noise 0\.020 mm per coordinate/);
@@ -275,19 +276,18 @@ describe('offsetry fit: robust loss, exclusions, instrument noise and warnings',
 
   it('a session where every joint moves only ±15° prints warnings naming the joints and the pose planner', async () => {
     const { forwardPoint } = await import('../../src/lib/engine/kinematics');
-    const truth = parseGeometry(readFileSync(join(ROOT, 'vx-620-true.json'), 'utf8'), 'vx-620-true.json');
-    let seed = 7;
-    const r01 = () => ((seed = (seed * 16807) % 2147483647) / 2147483647);
+    const truth = parseGeometry(readFileSync(join(ROOT, 'orrin-r6-620-true.json'), 'utf8'), 'orrin-r6-620-true.json');
+    const r01 = seededRandom(7);
     const rows = ['pose,' + truth.joints.map((_, k) => `q${k + 1}`).join(',') + ',x,y,z'];
     for (let k = 0; k < 80; k++) {
       const q = truth.joints.map((j) => ((j.min ?? -180) + (j.max ?? 180)) / 2 + 15 * (2 * r01() - 1));
-      // Tracker-like noise, 0.02 mm per coordinate (Box–Muller).
-      const p = forwardPoint(truth, q).map((v) => v + 0.02 * Math.sqrt(-2 * Math.log(r01())) * Math.cos(2 * Math.PI * r01()));
+      // Tracker-like noise, 0.02 mm per coordinate.
+      const p = forwardPoint(truth, q).map((v) => v + 0.02 * normalVariate(r01));
       rows.push([`N${k + 1}`, ...q.map((v) => v.toFixed(4)), ...p.map((v) => v.toFixed(4))].join(','));
     }
     const session = join(dir, 'narrow.csv');
     writeFileSync(session, rows.join('\n') + '\n');
-    const r = await offsetry(['fit', '--model', VX, '--data', session, '--out', join(dir, 'narrow.json'), '--holdout', '0']);
+    const r = await offsetry(['fit', '--model', R6, '--data', session, '--out', join(dir, 'narrow.json'), '--holdout', '0']);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/Warnings:\n  \[warning\] Joints barely move over the fit poses: J1 spans/);
     expect(r.stdout).toMatch(/→ Measure again moving J1, J2, J3, J4, J5, J6 over more of their range\. The pose planner/);
@@ -297,10 +297,10 @@ describe('offsetry fit: robust loss, exclusions, instrument noise and warnings',
   it('bad --loss, --noise-mm or --exclude values exit 2 (usage) or 1 (unknown pose) and write nothing', async () => {
     const out = join(dir, 'never.json');
     const [loss, noise, empty, unknown] = await Promise.all([
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--loss', 'squared']),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--noise-mm=-0.1']),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--exclude', 'P12,,P30']),
-      offsetry(['fit', '--model', VX, '--data', VX_SESSION, '--out', out, '--exclude', 'P999']),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', out, '--loss', 'squared']),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', out, '--noise-mm=-0.1']),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', out, '--exclude', 'P12,,P30']),
+      offsetry(['fit', '--model', R6, '--data', R6_SESSION, '--out', out, '--exclude', 'P999']),
     ]);
     expect(loss).toMatchObject({ code: 2, stderr: expect.stringMatching(/--loss: "squared" is not valid \(expected huber, cauchy or none\)/) });
     expect(noise).toMatchObject({ code: 2, stderr: expect.stringMatching(/--noise-mm: "-0.1" is not valid/) });

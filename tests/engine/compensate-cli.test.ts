@@ -11,14 +11,14 @@ import { join, resolve } from 'node:path';
 import { parse } from 'csv-parse/sync';
 import { parseGeometry } from '../../src/lib/engine/geometry';
 import { forwardFrames } from '../../src/lib/engine/kinematics';
-import { anglesFromRotation } from '../../src/lib/engine/ik';
+import { anglesFromRotation } from '../../src/lib/engine/rotations';
 import { ROOT } from './make-test-data';
 
 const PROJECT = resolve(__dirname, '..', '..');
 const BIN = join(PROJECT, 'bin', 'offsetry.mjs');
-const NOMINAL = join(ROOT, 'vx-620-nominal.json');
+const NOMINAL = join(ROOT, 'orrin-r6-620-nominal.json');
 // The invented "true" unit stands in for a calibrated geometry (it has a base in the tracker frame).
-const CALIBRATED = join(ROOT, 'vx-620-true.json');
+const CALIBRATED = join(ROOT, 'orrin-r6-620-true.json');
 
 function offsetry(args: string[]): Promise<{ code: number; stdout: string; stderr: string }> {
   return new Promise((done) => {
@@ -87,8 +87,8 @@ describe('offsetry compensate', () => {
 
   it('refuses a geometry pair of different arms, and bad usage', async () => {
     writeFileSync(join(dir, 'j.csv'), 'target,q1,q2,q3,q4\nA,1,2,-3,4\n');
-    const lz = join(ROOT, 'lz-410-nominal.json');
-    const r = await offsetry(['compensate', '--model', CALIBRATED, '--nominal', lz, '--targets', join(dir, 'joints.csv'), '--out', join(dir, 'o.csv')]);
+    const s4 = join(ROOT, 'orrin-s4-410-nominal.json');
+    const r = await offsetry(['compensate', '--model', CALIBRATED, '--nominal', s4, '--targets', join(dir, 'joints.csv'), '--out', join(dir, 'o.csv')]);
     expect(r.code).toBe(1);
     expect(r.stderr).toMatch(/the calibrated geometry has 6 joints, the nominal 4/);
     // A program for another arm: its header names the columns this arm needs.

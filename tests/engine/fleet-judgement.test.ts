@@ -5,7 +5,7 @@
 import { describe, expect, it } from 'vitest';
 import { digamma, inverseTrigamma, studentTwoSidedCritical, studentTwoSidedP, tetragamma, trigamma } from '../../src/lib/engine/distributions';
 import { judgeFleet, variancePrior, type FleetParameterInput } from '../../src/lib/engine/fleet-judgement';
-import { seededRandom } from '../../src/lib/engine/workspace';
+import { seededRandom } from '../../src/lib/engine/random';
 
 describe('distributions', () => {
   it('match SciPy', () => {

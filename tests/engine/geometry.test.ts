@@ -3,7 +3,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { armGeometrySchema, parseGeometry, serializeGeometry, validateGeometry } from '../../src/lib/engine/geometry';
 import { EngineInputError, type InputProblem } from '../../src/lib/engine/types';
-import { ROOT, lz410Nominal, vx620Nominal, vx620True } from './make-test-data';
+import { ROOT, s4Nominal, r6Nominal, r6True } from './make-test-data';
 
 function problemsOf(text: string, file = 'arm.json'): InputProblem[] {
   try {
@@ -27,9 +27,9 @@ const minimal = {
 
 describe('parseGeometry', () => {
   it('reads the committed sample files and matches the generator', () => {
-    expect(parseGeometry(readFileSync(join(ROOT, 'vx-620-nominal.json'), 'utf8'), 'vx-620-nominal.json')).toEqual(vx620Nominal());
-    expect(parseGeometry(readFileSync(join(ROOT, 'lz-410-nominal.json'), 'utf8'), 'lz-410-nominal.json')).toEqual(lz410Nominal());
-    expect(parseGeometry(readFileSync(join(ROOT, 'vx-620-true.json'), 'utf8'), 'vx-620-true.json')).toEqual(vx620True());
+    expect(parseGeometry(readFileSync(join(ROOT, 'orrin-r6-620-nominal.json'), 'utf8'), 'orrin-r6-620-nominal.json')).toEqual(r6Nominal());
+    expect(parseGeometry(readFileSync(join(ROOT, 'orrin-s4-410-nominal.json'), 'utf8'), 'orrin-s4-410-nominal.json')).toEqual(s4Nominal());
+    expect(parseGeometry(readFileSync(join(ROOT, 'orrin-r6-620-true.json'), 'utf8'), 'orrin-r6-620-true.json')).toEqual(r6True());
   });
 
   it('fills omitted base and tool rotations with 0 and keeps beta only where listed', () => {
@@ -128,7 +128,7 @@ describe('parseGeometry', () => {
 
 describe('serializeGeometry', () => {
   it('round-trips every double exactly (no rounding)', () => {
-    const g = vx620True();
+    const g = r6True();
     g.joints[2].a = 469.66000000000003; // not representable in fewer digits
     g.joints[1].alpha = -Math.PI * 28.65;
     g.base!.rz = 1 / 3;
@@ -149,7 +149,7 @@ describe('serializeGeometry', () => {
   });
 
   it('refuses to write non-finite numbers', () => {
-    const g = vx620Nominal();
+    const g = r6Nominal();
     g.joints[0].d = NaN;
     expect(() => serializeGeometry(g)).toThrow(/joints\[0\]\.d/);
   });

@@ -7,7 +7,8 @@ import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { parse } from 'csv-parse/sync';
-import { IkSolver, anglesFromRotation, rotationFromAngles, rotationVector } from '../../src/lib/engine/ik';
+import { IkSolver } from '../../src/lib/engine/ik';
+import { anglesFromRotation, rotationFromAngles, rotationVector } from '../../src/lib/engine/rotations';
 import { compensateProgram } from '../../src/lib/engine/compensate';
 import { compensatedCsv, parseProgramCsv, programCsv, type ParsedProgram, type ProgramTarget } from '../../src/lib/engine/program-csv';
 import { forwardFrames, compileArm } from '../../src/lib/engine/kinematics';
@@ -32,9 +33,9 @@ function angleBetween(A: ArrayLike<number>, B: ArrayLike<number>): number {
   return (2 * Math.asin(Math.min(1, Math.sqrt(s) / (2 * Math.SQRT2))) * 180) / Math.PI;
 }
 
-const withBeta: ArmGeometry = { ...perturbed(sixAxisDh(), 11), name: 'TA-6 true, beta and base' };
-const mdhTrue: ArmGeometry = { ...perturbed(sixAxisMdh(), 12), name: 'TA-6m true' };
-const prismatic: ArmGeometry = { ...perturbed(fourAxisParallel(), 13), name: 'TS-4 true, prismatic' };
+const withBeta: ArmGeometry = { ...perturbed(sixAxisDh(), 11), name: 'Pell R6-700 true, beta and base' };
+const mdhTrue: ArmGeometry = { ...perturbed(sixAxisMdh(), 12), name: 'Pell R6-700m true' };
+const prismatic: ArmGeometry = { ...perturbed(fourAxisParallel(), 13), name: 'Pell S4-600 true, prismatic' };
 
 describe('rotation helpers', () => {
   it('round-trips Rz·Ry·Rx angles and finds the rotation vector up to π', () => {

@@ -9,7 +9,7 @@ import { join } from 'node:path';
 import { iso9283, repeatGroups } from '../../src/lib/engine/iso9283';
 import { parseSessionCsv } from '../../src/lib/engine/session-csv';
 import { forwardPoint } from '../../src/lib/engine/kinematics';
-import { NOISE_MM, ROOT, vx620Nominal, vx620True } from './make-test-data';
+import { NOISE_MM, ROOT, r6Nominal, r6True } from './make-test-data';
 
 describe('iso9283', () => {
   it('four visits symmetric about the commanded point: AP = 0, RP = 1.5 + 3·sqrt(1/3)', () => {
@@ -51,10 +51,10 @@ describe('iso9283', () => {
     expect(iso9283([])).toEqual({ poses: [], ap: null, rp: null, apPose: null, rpPose: null });
   });
 
-  it('on the VX-620 sample session, RP reflects the tracker noise and AP the model error', async () => {
-    const r = await parseSessionCsv(readFileSync(join(ROOT, 'vx-620-session.csv'), 'utf8'), { fileName: 's', geometry: vx620Nominal() });
+  it('on the Orrin R6-620 sample session, RP reflects the tracker noise and AP the model error', async () => {
+    const r = await parseSessionCsv(readFileSync(join(ROOT, 'orrin-r6-620-session.csv'), 'utf8'), { fileName: 's', geometry: r6Nominal() });
     if (!r.ok) throw new Error('sample session must parse');
-    const truth = vx620True();
+    const truth = r6True();
     const groups = repeatGroups(r.poses, (q) => forwardPoint(truth, q));
     expect(groups.map((g) => [g.label, g.measured.length])).toEqual([['P01', 6], ['P02', 6], ['P03', 6], ['P04', 6], ['P05', 6]]);
     const res = iso9283(groups);

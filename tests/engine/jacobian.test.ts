@@ -1,6 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import type { ArmGeometry, JointSpec } from '../../src/lib/engine/types';
 import { compileArm, createArmData, forwardKinematics, jointsToInternal, setParameters } from '../../src/lib/engine/kinematics';
+import { toolParam } from '../../src/lib/engine/layout';
 import { pointJacobian } from '../../src/lib/engine/jacobian';
 import { fourAxisParallel, rng, sixAxisDh, sixAxisMdh } from './helpers';
 
@@ -20,7 +21,7 @@ function checkArm(g: ArmGeometry, seed: number) {
   for (let trial = 0; trial < 10; trial++) {
     jointsToInternal(model, g.joints.map((j) => (j.type === 'prismatic' ? -150 * r() : 340 * r() - 170)), q);
     setParameters(model, data, model.nominal);
-    forwardKinematics(model, data, q, 0, true);
+    forwardKinematics(model, data, q, { withDerivatives: true });
     pointJacobian(model, data, cols, J);
     const v = Float64Array.from(model.nominal);
     for (let j = 0; j < model.size; j++) {
@@ -64,9 +65,9 @@ describe('analytic Jacobian against central finite differences', () => {
     const g = withFrames(sixAxisDh());
     const model = compileArm(g);
     const data = createArmData(model);
-    forwardKinematics(model, data, new Float64Array([0.1, 0.2, 0.3, 0.4, 0.5, 0.6]), 0, true);
+    forwardKinematics(model, data, new Float64Array([0.1, 0.2, 0.3, 0.4, 0.5, 0.6]), { withDerivatives: true });
     const J = new Float64Array(9);
-    pointJacobian(model, data, [model.layout.toolOffset + 3, model.layout.toolOffset + 4, model.layout.toolOffset + 5], J);
+    pointJacobian(model, data, [toolParam(model.n, 'rx'), toolParam(model.n, 'ry'), toolParam(model.n, 'rz')], J);
     expect(Array.from(J)).toEqual(new Array(9).fill(0));
   });
 });
@@ -92,7 +93,7 @@ describe('normal equations accumulated pose by pose', () => {
     const J = new Float64Array(3 * p);
     setParameters(model, data, model.nominal);
     for (let i = 0; i < pb.count; i++) {
-      forwardKinematics(model, data, pb.q, i * model.n, true);
+      forwardKinematics(model, data, pb.q, { offset: i * model.n, withDerivatives: true });
       pointJacobian(model, data, active, J);
       const w = pb.weights[i];
       const res = [0, 1, 2].map((c) => data.point[c] - pb.measured[3 * i + c]);

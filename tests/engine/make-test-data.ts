@@ -2,8 +2,8 @@
  * Writes the invented sample files in test-data/ (run: `npx tsx tests/engine/make-test-data.ts`).
  * The output is committed; tests read it and check that it still matches this script's arms.
  *
- * Everything here is made up for Offsetry: the arm models "VX-620" (six axes, modified DH, beta on the
- * nearly parallel J3) and "LZ-410" (four axes with a prismatic axis), their "true" geometries (nominal
+ * Everything here is made up for Offsetry: the arm models "Orrin R6-620" (six axes, modified DH, beta on the
+ * nearly parallel J3) and "Orrin S4-410" (four axes with a prismatic axis), their "true" geometries (nominal
  * plus small invented errors and a tracker placement), and the sessions measured on them with
  * tracker-like noise (0.02 mm standard deviation per coordinate).
  */
@@ -14,22 +14,20 @@ import { forwardPoint } from '../../src/lib/engine/kinematics';
 import { serializeGeometry } from '../../src/lib/engine/geometry';
 import { sessionToCsv } from '../../src/lib/engine/session-csv';
 import type { ArmGeometry, SessionPose } from '../../src/lib/engine/types';
-import { seededRandom } from '../../src/lib/engine/workspace';
+import { normalVariate, seededRandom } from '../../src/lib/engine/random';
 
 export const ROOT = join(dirname(fileURLToPath(import.meta.url)), '..', '..', 'test-data');
 export const NOISE_MM = 0.02;
 
 /** Seeded uniform generator (the engine's mulberry32). */
 const rng = seededRandom;
-function gauss(r: () => number): number {
-  return Math.sqrt(-2 * Math.log(Math.max(r(), 1e-300))) * Math.cos(2 * Math.PI * r()); // Box–Muller
-}
+const gauss = normalVariate;
 const round = (v: number, digits: number) => Number(v.toFixed(digits));
 
-export function vx620Nominal(): ArmGeometry {
+export function r6Nominal(): ArmGeometry {
   return {
     format: 'offsetry-arm/1',
-    name: 'VX-620',
+    name: 'Orrin R6-620',
     convention: 'mdh',
     joints: [
       { name: 'J1', type: 'revolute', a: 0, alpha: 0, d: 380, theta: 0, min: -165, max: 165 },
@@ -43,9 +41,9 @@ export function vx620Nominal(): ArmGeometry {
   };
 }
 
-/** The "true" VX-620 unit VX620-0417: nominal plus invented errors, placed in the tracker frame. */
-export function vx620True(): ArmGeometry {
-  const g = vx620Nominal();
+/** The "true" Orrin R6-620 unit LAB-R6-0417: nominal plus invented errors, placed in the tracker frame. */
+export function r6True(): ArmGeometry {
+  const g = r6Nominal();
   const err: [number, number, number, number, number?][] = [
     // a (mm), alpha (deg), d (mm), theta (deg), beta (deg)
     [0, 0.0, 0.0, 0.0],
@@ -63,16 +61,16 @@ export function vx620True(): ArmGeometry {
     j.theta += dth;
     if (dbe !== undefined) j.beta = (j.beta ?? 0) + dbe;
   });
-  g.name = 'VX-620 unit VX620-0417 (invented true geometry)';
+  g.name = 'Orrin R6-620 unit LAB-R6-0417 (invented true geometry)';
   g.base = { x: 2150.4, y: -640.2, z: -310.7, rx: 0.12, ry: -0.08, rz: 28.5 };
   g.tool = { x: 0.42, y: -0.31, z: 110.55, rx: 0, ry: 0, rz: 0 };
   return g;
 }
 
-export function lz410Nominal(): ArmGeometry {
+export function s4Nominal(): ArmGeometry {
   return {
     format: 'offsetry-arm/1',
-    name: 'LZ-410',
+    name: 'Orrin S4-410',
     convention: 'dh',
     joints: [
       { name: 'J1', type: 'revolute', a: 270, alpha: 0, d: 310, theta: 0, min: -140, max: 140 },
@@ -84,8 +82,8 @@ export function lz410Nominal(): ArmGeometry {
   };
 }
 
-export function lz410True(): ArmGeometry {
-  const g = lz410Nominal();
+export function s4True(): ArmGeometry {
+  const g = s4Nominal();
   const err: [number, number, number, number][] = [
     [0.26, 0.012, 0.0, 0.031],
     [-0.19, -0.015, 0.0, -0.047],
@@ -99,7 +97,7 @@ export function lz410True(): ArmGeometry {
     j.d += dd;
     j.theta += dth;
   });
-  g.name = 'LZ-410 unit LZ410-0093 (invented true geometry)';
+  g.name = 'Orrin S4-410 unit LAB-S4-0093 (invented true geometry)';
   g.base = { x: -820.3, y: 1310.8, z: -95.2, rx: -0.05, ry: 0.07, rz: -112.0 };
   g.tool = { x: 25.18, y: -0.22, z: 60.31, rx: 0, ry: 0, rz: 0 };
   return g;
@@ -175,8 +173,8 @@ function buildBad() {
   bad('tab-delimiter.csv', `${H.replace(/,/g, '\t')}\n${r1.replace(/,/g, '\t')}\n`, /wrong delimiter: .*tabs/, 1);
   bad('semicolon-decimal-comma.csv', `${H.replace(/,/g, ';')}\n${r1.replace(/,/g, ';').replace(/\./g, ',')}\n`, /decimal comma/, 1);
   bad('decimal-comma.csv', `${H}\nP1,10,-20,30,0,45,0,2180,5123,-512,3301,640,1102\n`, /decimal comma/, 2);
-  bad('missing-joint-column.csv', `pose,q1,q2,q3,q4,q5,x,y,z\nP1,10,-20,30,0,45,2180.5,-512.3,640.1\n`, /missing joint column q6: the model "VX-620" has 6 joints/, 1, 'q6');
-  bad('extra-joint-column.csv', `pose,q1,q2,q3,q4,q5,q6,q7,x,y,z\nP1,10,-20,30,0,45,0,5,2180.5,-512.3,640.1\n`, /extra joint column q7: the model "VX-620" has 6 joints/, 1, 'q7');
+  bad('missing-joint-column.csv', `pose,q1,q2,q3,q4,q5,x,y,z\nP1,10,-20,30,0,45,2180.5,-512.3,640.1\n`, /missing joint column q6: the model "Orrin R6-620" has 6 joints/, 1, 'q6');
+  bad('extra-joint-column.csv', `pose,q1,q2,q3,q4,q5,q6,q7,x,y,z\nP1,10,-20,30,0,45,0,5,2180.5,-512.3,640.1\n`, /extra joint column q7: the model "Orrin R6-620" has 6 joints/, 1, 'q7');
   bad('missing-xyz-column.csv', `pose,q1,q2,q3,q4,q5,q6,x,y\nP1,10,-20,30,0,45,0,2180.5,-512.3\n`, /missing column "z"/, 1, 'z');
   bad('duplicate-header-column.csv', `pose,q1,q2,q3,q4,q5,q6,x,y,z,q2\n${r1},-20\n`, /duplicated header column "q2"/, 1, 'q2');
   bad('header-repeated.csv', `${H}\n${r1}\n${H}\n${r2}\n`, /header is repeated as a data row/, 3);
@@ -213,19 +211,19 @@ buildBad();
 buildGoodVariants();
 
 function main() {
-  write('vx-620-nominal.json', serializeGeometry(vx620Nominal()));
-  write('vx-620-true.json', serializeGeometry(vx620True()));
-  write('lz-410-nominal.json', serializeGeometry(lz410Nominal()));
-  write('lz-410-true.json', serializeGeometry(lz410True()));
+  write('orrin-r6-620-nominal.json', serializeGeometry(r6Nominal()));
+  write('orrin-r6-620-true.json', serializeGeometry(r6True()));
+  write('orrin-s4-410-nominal.json', serializeGeometry(s4Nominal()));
+  write('orrin-s4-410-true.json', serializeGeometry(s4True()));
   // 60 distinct poses, every 5th held out by the split column, 5 poses visited 6 times in all (ISO 9283).
-  const vx = makeSession(vx620True(), { count: 60, seed: 620, repeatPoses: 5, repeatVisits: 6, validateEvery: 5 });
-  write('vx-620-session.csv', sessionToCsv(vx, 6));
-  const lz = makeSession(lz410True(), { count: 40, seed: 410 });
-  write('lz-410-session.csv', sessionToCsv(lz, 4));
+  const r6 = makeSession(r6True(), { count: 60, seed: 620, repeatPoses: 5, repeatVisits: 6, validateEvery: 5 });
+  write('orrin-r6-620-session.csv', sessionToCsv(r6, 6));
+  const s4 = makeSession(s4True(), { count: 40, seed: 410 });
+  write('orrin-s4-410-session.csv', sessionToCsv(s4, 4));
   for (const [name, f] of Object.entries(BAD_FILES)) write(join('bad', name), f.content);
   for (const [name, f] of Object.entries(GOOD_VARIANTS)) write(join('variants', name), f.content);
   // Bad geometry files for the CLI and the geometry tests.
-  const nominal = serializeGeometry(vx620Nominal());
+  const nominal = serializeGeometry(r6Nominal());
   write('bad/geometry-malformed.json', nominal.replace('"convention": "mdh",', '"convention": "mdh"'));
   write('bad/geometry-unknown-convention.json', nominal.replace('"convention": "mdh"', '"convention": "denavit"'));
   write('bad/geometry-duplicate-joint.json', nominal.replace('"name": "J5"', '"name": "J4"'));

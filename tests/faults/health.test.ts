@@ -6,6 +6,7 @@ import { afterEach, describe, expect, it } from 'vitest';
 import journal from '../../drizzle/meta/_journal.json';
 import { BASE_URL } from '../support/http';
 import { harnessStatus, startMail, startPostgres, startS3, stopMail, stopPostgres, stopS3 } from '../support/services';
+import { waitUntil } from '../support/wait';
 
 interface Health {
   status: 'ok' | 'degraded';
@@ -24,16 +25,7 @@ async function health(): Promise<{ status: number; body: Health; ms: number }> {
 }
 
 /** Poll until health answers 200 (services take a moment to be seen again). */
-async function healthyAgain(timeoutMs = 20_000) {
-  const deadline = Date.now() + timeoutMs;
-  let last: Awaited<ReturnType<typeof health>> | undefined;
-  while (Date.now() < deadline) {
-    last = await health();
-    if (last.status === 200) return last;
-    await new Promise((r) => setTimeout(r, 250));
-  }
-  throw new Error(`health did not recover: ${JSON.stringify(last?.body)}`);
-}
+const healthyAgain = (timeoutMs = 20_000) => waitUntil('health answering 200 again', health, (h) => h.status === 200, { timeoutMs });
 
 // Whatever a test stopped is started again, so the next fault file finds everything running.
 afterEach(async () => {

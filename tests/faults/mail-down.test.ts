@@ -10,6 +10,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mailOutbox, parameterSets } from '../../src/db/schema';
 import { DEMO, signedIn, type Client } from '../support/http';
 import { harnessStatus, startMail, stopMail, waitForMail } from '../support/services';
+import { waitUntil } from '../support/wait';
 import { createFixture, testDb, waitForFit, type Fixture } from '../integration/fit-fixtures';
 
 let engineer: Client, engineer2: Client;
@@ -33,16 +34,6 @@ async function outboxFor(subjectPart: string) {
     .where(and(eq(mailOutbox.to, DEMO.engineer), like(mailOutbox.subject, `%${subjectPart}%`)));
 }
 
-async function until<T>(what: string, get: () => Promise<T>, ok: (v: T) => boolean, timeoutMs: number): Promise<T> {
-  const deadline = Date.now() + timeoutMs;
-  for (;;) {
-    const v = await get();
-    if (ok(v)) return v;
-    if (Date.now() > deadline) throw new Error(`${what}: not reached within ${timeoutMs} ms (last: ${JSON.stringify(v)})`);
-    await new Promise((r) => setTimeout(r, 250));
-  }
-}
-
 describe('mail server down during an approval', () => {
   it('keeps the approval, queues the mail with its error, and sends it when the server is back', async () => {
     const run = await engineer.json(`/api/sessions/${fx.sessionId}/fits`, { method: 'POST', json: { groups: ['lengths', 'offsets', 'base', 'tool'] } });
@@ -64,7 +55,7 @@ describe('mail server down during an approval', () => {
 
     // The message waits: pending, tried at least twice, the SMTP error kept.
     const subject = `Fit for unit ${fx.serial} approved`;
-    const [waiting] = await until('two failed delivery attempts', () => outboxFor(subject), (rows) => rows.length === 1 && rows[0]!.attempts >= 2, 30_000);
+    const [waiting] = await waitUntil('two failed delivery attempts', () => outboxFor(subject), (rows) => rows.length === 1 && rows[0]!.attempts >= 2, { timeoutMs: 30_000 });
     expect(waiting!.status).toBe('pending');
     expect(waiting!.lastError).toMatch(/ECONNREFUSED|connect/i);
     expect(waiting!.sentAt).toBeNull();

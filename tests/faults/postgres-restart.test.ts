@@ -6,6 +6,7 @@
 import { afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { BASE_URL, Client, DEMO, signedIn } from '../support/http';
 import { harnessStatus, startPostgres, stopPostgres } from '../support/services';
+import { sleep, waitUntil } from '../support/wait';
 
 interface Answer {
   path: string;
@@ -54,7 +55,7 @@ function traffic() {
     let i = k;
     while (running) {
       answers.push(await ask(client, PATHS[i++ % PATHS.length]!));
-      await new Promise((r) => setTimeout(r, 20));
+      await sleep(20);
     }
   });
   return {
@@ -66,21 +67,15 @@ function traffic() {
   };
 }
 
-async function until200(client: Client, timeoutMs = 20_000) {
-  const deadline = Date.now() + timeoutMs;
-  for (;;) {
-    const a = await ask(client, '/api/units?page=1');
-    if (a.status === 200) return a;
-    if (Date.now() > deadline) throw new Error(`no 200 within ${timeoutMs} ms after PostgreSQL came back; last: ${a.status} ${a.body}`);
-    await new Promise((r) => setTimeout(r, 200));
-  }
-}
+/** Poll until the API answers 200 again on `client`. */
+const until200 = (client: Client, timeoutMs = 20_000) =>
+  waitUntil('a 200 after PostgreSQL came back', () => ask(client, '/api/units?page=1'), (a) => a.status === 200, { timeoutMs, intervalMs: 200 });
 
 describe.each(['fast', 'immediate'] as const)('PostgreSQL stopped (%s) in the middle of traffic', (mode) => {
   it('answers 503 JSON while it is away and 200 again afterwards, without an app restart', async () => {
     expect((await ask(bearer, '/api/units?page=1')).status).toBe(200);
     const load = traffic();
-    await new Promise((r) => setTimeout(r, 500));
+    await sleep(500);
     await stopPostgres(mode);
 
     // Deliberate requests during the outage, on both kinds of sign-in and on a page.

@@ -17,14 +17,14 @@ import { testS3 } from '../support/s3';
 const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
 const s3 = testS3();
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const csv = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const csv = readFileSync('test-data/orrin-r6-620-session.csv');
 
 let tech: Client;
 let unit: { id: string; serial: string };
 
 beforeAll(async () => {
-  const [model] = await db.insert(armModels).values({ name: uniq('FAULT-VX-'), description: 's3 fault test' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('FAULT-R6-'), description: 's3 fault test' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   const serial = uniq('S3F-');
   const [u] = await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Fault hall', cell: 'F1' }).returning();

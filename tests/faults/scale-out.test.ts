@@ -8,30 +8,15 @@
  *
  * In tests/faults because it starts and stops processes of its own for a minute or more.
  */
-import { existsSync, readFileSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { DEMO, signedIn, type Client } from '../support/http';
-import { startAppInstance, type AppInstance } from '../support/services';
+import { startAppInstance, startWorker, type AppInstance } from '../support/services';
+import { waitUntil } from '../support/wait';
 import { createFixture, testDb, type Fixture } from '../integration/fit-fixtures';
 
 const FITS = 50;
 const SESSIONS = 10;
 const started: AppInstance[] = [];
-
-async function startWorker(name: string): Promise<AppInstance> {
-  const worker = await startAppInstance(
-    { WORKER_NAME: name, WORKER_CONCURRENCY: '2' },
-    { entry: 'scripts/worker.mjs', waitForPort: false },
-  );
-  started.push(worker);
-  const deadline = Date.now() + 30_000;
-  const logText = () => (existsSync(worker.logFile) ? readFileSync(worker.logFile, 'utf8') : '');
-  while (!logText().includes('"msg":"fit worker ready"')) {
-    if (Date.now() > deadline) throw new Error(`worker ${name} did not start:\n${logText().slice(-2000)}`);
-    await new Promise((r) => setTimeout(r, 200));
-  }
-  return worker;
-}
 
 async function startInstance(): Promise<AppInstance> {
   const app = await startAppInstance({ RUN_WORKER: 'false' });
@@ -57,14 +42,6 @@ async function fitRows(ids: string[]): Promise<Map<string, FitRow>> {
   return new Map(rows.map((r) => [r.id, r]));
 }
 
-async function waitUntil(what: string, ok: () => Promise<boolean>, timeoutMs: number) {
-  const deadline = Date.now() + timeoutMs;
-  while (!(await ok())) {
-    if (Date.now() > deadline) throw new Error(`${what}: not reached within ${timeoutMs} ms`);
-    await new Promise((r) => setTimeout(r, 250));
-  }
-}
-
 let fixtures: Fixture[];
 let a: AppInstance, b: AppInstance;
 let clientA: Client, clientB: Client;
@@ -73,7 +50,7 @@ let w1: AppInstance, w2: AppInstance;
 beforeAll(async () => {
   fixtures = [];
   for (let i = 0; i < SESSIONS; i++) fixtures.push(await createFixture({ count: 36, seed: 100 + i }));
-  [a, b, w1, w2] = await Promise.all([startInstance(), startInstance(), startWorker('scale-w1'), startWorker('scale-w2')]);
+  [a, b, w1, w2] = await Promise.all([startInstance(), startInstance(), startWorker({ name: 'scale-w1', concurrency: 2, started }), startWorker({ name: 'scale-w2', concurrency: 2, started })]);
   [clientA, clientB] = await Promise.all([signedIn(DEMO.engineer, undefined, a.url), signedIn(DEMO.engineer, undefined, b.url)]);
 }, 120_000);
 
@@ -97,7 +74,7 @@ describe('two app instances and two worker processes', () => {
     expect(new Set(ids).size).toBe(FITS);
 
     // Half-way: stop instance B, read every status through A, start B again, compare.
-    await waitUntil('10 fits fitted', async () => [...(await fitRows(ids)).values()].filter((r) => r.state === 'fitted').length >= 10, 120_000);
+    await waitUntil('10 fits fitted', async () => [...(await fitRows(ids)).values()].filter((r) => r.state === 'fitted').length >= 10, Boolean, { timeoutMs: 120_000 });
     const before = await fitRows(ids);
     const fittedBefore = [...before.values()].filter((r) => r.state === 'fitted');
     const stopped = await b.stop('SIGTERM');
@@ -112,7 +89,7 @@ describe('two app instances and two worker processes', () => {
       expect(new Date(res.body.fit.finishedAt).getTime()).toBe(time(row.finished_at));
     }
 
-    await waitUntil(`all ${FITS} fits finished`, async () => [...(await fitRows(ids)).values()].every((r) => r.state === 'fitted' || r.state === 'failed'), 240_000);
+    await waitUntil(`all ${FITS} fits finished`, async () => [...(await fitRows(ids)).values()].every((r) => r.state === 'fitted' || r.state === 'failed'), Boolean, { timeoutMs: 240_000 });
     const rows = await fitRows(ids);
     for (const id of ids) {
       const r = rows.get(id)!;

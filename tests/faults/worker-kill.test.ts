@@ -9,34 +9,20 @@
  */
 import { eq } from 'drizzle-orm';
 import PgBoss from 'pg-boss';
-import { existsSync, readFileSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { armModelRevisions, armModels, auditLog, sessionPoses, sessions, units } from '../../src/db/schema';
 import { forwardPoint } from '../../src/lib/engine/kinematics';
 import { DEMO, signedIn, uniq, type Client } from '../support/http';
-import { startAppInstance, type AppInstance } from '../support/services';
-import { nominalTq6, testDb, trueTq6 } from '../integration/fit-fixtures';
+import { startAppInstance, startWorker, type AppInstance } from '../support/services';
+import { poll } from '../support/wait';
+import { nominalTq6, trueTq6 } from '../support/arms';
+import { testDb } from '../integration/fit-fixtures';
 
 const POSES = 20_000;
 const QUICK_QUEUE = { FIT_JOB_EXPIRE_SECONDS: '20', FIT_JOB_MAINTENANCE_SECONDS: '2', FIT_JOB_RETRY_DELAY_SECONDS: '1', FIT_JOB_POLL_SECONDS: '0.5' };
 const started: AppInstance[] = [];
 
-async function startWorker(name: string, concurrency: number): Promise<AppInstance> {
-  const worker = await startAppInstance(
-    { ...QUICK_QUEUE, WORKER_NAME: name, WORKER_CONCURRENCY: String(concurrency) },
-    { entry: 'scripts/worker.mjs', waitForPort: false },
-  );
-  started.push(worker);
-  const deadline = Date.now() + 30_000;
-  const logText = () => (existsSync(worker.logFile) ? readFileSync(worker.logFile, 'utf8') : '');
-  while (!logText().includes('"msg":"fit worker ready"')) {
-    if (Date.now() > deadline) throw new Error(`worker ${name} did not start:\n${logText().slice(-2000)}`);
-    await new Promise((r) => setTimeout(r, 200));
-  }
-  return worker;
-}
-
-/** A unit with one session of POSES poses predicted by the invented "true" TQ-6 plus tracker-like noise. */
+/** A unit with one session of POSES poses predicted by the invented "true" Tarn R6-420 plus tracker-like noise. */
 async function bigSession(): Promise<{ unitId: string; sessionId: string }> {
   const db = testDb();
   const nominal = nominalTq6();
@@ -44,7 +30,7 @@ async function bigSession(): Promise<{ unitId: string; sessionId: string }> {
   let s = 20261201;
   // Park–Miller minimal standard generator (public domain), seeded for a reproducible session.
   const r = () => ((s = (s * 16807) % 2147483647) / 2147483647);
-  const [model] = await db.insert(armModels).values({ name: `TQ-6 ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
+  const [model] = await db.insert(armModels).values({ name: `Tarn R6-420 ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry: nominal }).returning();
   const [unit] = await db.insert(units).values({ serial: `TQ6-${uniq()}`, modelRevisionId: rev!.id, site: 'Test hall' }).returning();
   const [session] = await db
@@ -91,24 +77,21 @@ describe('a worker killed mid-fit', () => {
     const sql = testDb().$client;
     // Many polling slots on the victim, so it (not the main app's worker) most likely takes the job; if
     // another worker takes it, that fit is let finish and a new one is tried (at most 4 times).
-    const victim = await startWorker('kill-victim', 8);
+    const victim = await startWorker({ name: 'kill-victim', concurrency: 8, env: QUICK_QUEUE, started });
     let fitId = '';
     let claimedAt = 0;
     for (let tryNo = 0; tryNo < 4 && !fitId; tryNo++) {
       const res = await engineer.json(`/api/sessions/${big.sessionId}/fits`, { method: 'POST', json: { kFold: 10, robust: true, holdout: 0.2, seed: tryNo + 1 } });
       expect(res.status, JSON.stringify(res.body)).toBe(202);
-      const deadline = Date.now() + 60_000;
-      for (;;) {
-        const [row] = await sql<{ state: string; worker: string | null; attempts: number }[]>`select state, progress->>'worker' as worker, attempts from fits where id = ${res.body.id}`;
-        if (row!.state === 'running' && row!.worker) {
-          if (row!.worker === 'kill-victim') {
-            fitId = res.body.id;
-            claimedAt = Date.now();
-          }
-          break;
-        }
-        if (row!.state === 'fitted' || row!.state === 'failed' || Date.now() > deadline) break;
-        await new Promise((r) => setTimeout(r, 50));
+      // Until a worker has claimed it (or it is already over).
+      const { value: row } = await poll(
+        async () => (await sql<{ state: string; worker: string | null; attempts: number }[]>`select state, progress->>'worker' as worker, attempts from fits where id = ${res.body.id}`)[0]!,
+        (r) => (r.state === 'running' && !!r.worker) || r.state === 'fitted' || r.state === 'failed',
+        { timeoutMs: 60_000, intervalMs: 50 },
+      );
+      if (row.state === 'running' && row.worker === 'kill-victim') {
+        fitId = res.body.id;
+        claimedAt = Date.now();
       }
     }
     expect(fitId, 'the victim worker never took one of the fits').not.toBe('');
@@ -121,24 +104,22 @@ describe('a worker killed mid-fit', () => {
     const [orphan] = await sql<{ state: string }[]>`select state from pgboss.job where name = 'fit' and singleton_key = ${fitId}`;
     expect(orphan!.state).toBe('active');
     // The rescuer starts after the kill, so nothing but the expired job can bring the fit to it or the main app.
-    await startWorker('kill-rescuer', 1);
+    await startWorker({ name: 'kill-rescuer', concurrency: 1, env: QUICK_QUEUE, started });
 
-    const deadline = Date.now() + 90_000;
-    let fit: { state: string; attempts: number; worker: string | null; has_report: boolean } | undefined;
-    for (;;) {
-      [fit] = await sql<{ state: string; attempts: number; worker: string | null; has_report: boolean }[]>`
-        select state, attempts, progress->>'worker' as worker, report is not null as has_report from fits where id = ${fitId}`;
-      if (fit!.state === 'fitted' || fit!.state === 'failed' || Date.now() > deadline) break;
-      await new Promise((r) => setTimeout(r, 250));
-    }
-    console.log(`[worker-kill] fit ${fitId}: ${fit!.state} after ${((Date.now() - claimedAt) / 1000).toFixed(1)} s from the victim's claim, by ${fit!.worker}`);
+    const { value: fit } = await poll(
+      async () => (await sql<{ state: string; attempts: number; worker: string | null; has_report: boolean }[]>`
+        select state, attempts, progress->>'worker' as worker, report is not null as has_report from fits where id = ${fitId}`)[0]!,
+      (f) => f.state === 'fitted' || f.state === 'failed',
+      { timeoutMs: 90_000 },
+    );
+    console.log(`[worker-kill] fit ${fitId}: ${fit.state} after ${((Date.now() - claimedAt) / 1000).toFixed(1)} s from the victim's claim, by ${fit.worker}`);
     expect(fit).toMatchObject({ state: 'fitted', attempts: 2, has_report: true });
-    expect(fit!.worker).not.toBe('kill-victim');
+    expect(fit.worker).not.toBe('kill-victim');
 
     // One parameter report: one fit.fitted entry, from the second attempt.
     const entries = await testDb().select().from(auditLog).where(eq(auditLog.entityId, fitId));
     expect(entries.map((e) => e.action).sort()).toEqual(['fit.created', 'fit.fitted']);
-    expect(entries.find((e) => e.action === 'fit.fitted')!.details).toMatchObject({ attempt: 2, worker: fit!.worker });
+    expect(entries.find((e) => e.action === 'fit.fitted')!.details).toMatchObject({ attempt: 2, worker: fit.worker });
     // The job: failed once by its expiry, retried, completed with the fit.
     const jobs = await sql<{ state: string; retry_count: number; outcome: string | null }[]>`
       select state, retry_count, output->>'outcome' as outcome from pgboss.job where name = 'fit' and singleton_key = ${fitId}

@@ -8,7 +8,7 @@ import { parseGeometry, serializeGeometry } from '../../src/lib/engine/geometry'
 import type { ArmGeometry } from '../../src/lib/engine/types';
 import { Client, DEMO, signedIn, uniq } from '../support/http';
 
-const nominal = parseGeometry(readFileSync('test-data/vx-620-nominal.json', 'utf8'), 'vx-620-nominal.json');
+const nominal = parseGeometry(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8'), 'orrin-r6-620-nominal.json');
 const withName = (name: string, g: ArmGeometry = nominal): ArmGeometry => ({ ...structuredClone(g), name });
 
 let engineer: Client;
@@ -243,7 +243,7 @@ describe('roles', () => {
       const created = await createModel(engineer);
       await engineer.json(`/api/arm-models/${created.id}`, { method: 'PUT', json: { description: 'changed' } });
       const rows = await sql<{ action: string }[]>`select action from audit_log where entity_type = 'arm_model' and entity_id = ${created.id} order by at`;
-      expect(rows.map((r) => r.action)).toEqual(['create', 'update']);
+      expect(rows.map((r) => r.action)).toEqual(['arm_model.created', 'arm_model.updated']);
     } finally {
       await sql.end();
     }
@@ -263,7 +263,7 @@ describe('pages', () => {
     expect(html).toContain('data-joint-table');
     expect(html).toContain('a (mm)');
     expect(html).toContain('alpha (deg)');
-    // d of J1 in the VX-620 test geometry, with 3 decimals.
+    // d of J1 in the Orrin R6-620 test geometry, with 3 decimals.
     expect(html).toContain('380.000');
     expect(html).toContain('data-arm-sketch');
     expect(html).toContain('Side view (x–z)');

@@ -63,13 +63,13 @@ beforeAll(async () => {
   source = createDb(sourceUrl, { max: 2 });
   const email = `backup-${tag}@offsetry.test`;
   await upsertUserWithPassword({ email, name: 'Backup Tech', roles: ['technician'], password: 'backup test password 1' }, source);
-  const geometry = JSON.parse(readFileSync(join(root, 'test-data/vx-620-nominal.json'), 'utf8'));
-  const [model] = await source.insert(armModels).values({ name: `BK-VX-${tag}`, description: 'backup test' }).returning();
+  const geometry = JSON.parse(readFileSync(join(root, 'test-data/orrin-r6-620-nominal.json'), 'utf8'));
+  const [model] = await source.insert(armModels).values({ name: `BK-R6-${tag}`, description: 'backup test' }).returning();
   const [rev] = await source.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   app = await startAppInstance({ DATABASE_URL: sourceUrl, RUN_WORKER: 'false' });
   const client = new Client(app.url);
   expect(await client.signIn(email, 'backup test password 1')).not.toMatch(/error=/);
-  const base = readFileSync(join(root, 'test-data/vx-620-session.csv'), 'utf8');
+  const base = readFileSync(join(root, 'test-data/orrin-r6-620-session.csv'), 'utf8');
   for (let k = 0; k < 3; k++) {
     const serial = `BK-${tag}-${k}`.toUpperCase();
     await source.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Backup hall' });

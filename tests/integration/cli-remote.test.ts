@@ -15,7 +15,7 @@ import { approveSet, fitAwaitingReview, moved } from '../support/approved-sets';
 import { BASE_URL, DEMO, signedIn, uniq, type Client } from '../support/http';
 import { testDb } from './fit-fixtures';
 
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
 const dir = mkdtempSync(join(tmpdir(), 'offsetry-cli-'));
 
 function offsetry(args: string[], env: Record<string, string | undefined> = {}): Promise<{ code: number; stdout: string; stderr: string }> {
@@ -39,7 +39,7 @@ let serial: string, bareSerial: string, setId: string;
 beforeAll(async () => {
   [tech, service, engineer] = await Promise.all([tokenFor(DEMO.technician), tokenFor(DEMO.service), tokenFor(DEMO.engineer)]);
   const db = testDb();
-  const [model] = await db.insert(armModels).values({ name: uniq('CLI VX '), manufacturer: 'Invented Arms Ltd.' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('CLI R6 '), manufacturer: 'Invented Arms Ltd.' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   serial = uniq('CLI-');
   bareSerial = uniq('CLI-BARE-');
@@ -61,7 +61,7 @@ const env = (token: string) => ({ OFFSETRY_URL: BASE_URL, OFFSETRY_TOKEN: token 
 
 describe('offsetry upload', () => {
   it('uploads a session and says where it is', async () => {
-    const r = await offsetry(['upload', '--unit', serial, '--file', 'test-data/vx-620-session.csv', '--measured-on', '2026-04-02', '--instrument', 'Invented tracker T-2', '--uncertainty', '±(20 µm + 8 µm/m), k = 2', '--notes', 'from the CLI test'], env(tech.token));
+    const r = await offsetry(['upload', '--unit', serial, '--file', 'test-data/orrin-r6-620-session.csv', '--measured-on', '2026-04-02', '--instrument', 'Invented tracker T-2', '--uncertainty', '±(20 µm + 8 µm/m), k = 2', '--notes', 'from the CLI test'], env(tech.token));
     expect(r.code, r.stderr).toBe(0);
     const id = /session ([0-9a-f-]{36}), (\d+) poses/.exec(r.stdout);
     expect(id, r.stdout).not.toBeNull();
@@ -69,12 +69,12 @@ describe('offsetry upload', () => {
     expect(got.body.session).toMatchObject({ instrument: 'Invented tracker T-2', instrumentUncertainty: '±(20 µm + 8 µm/m), k = 2', notes: 'from the CLI test', measuredOn: '2026-04-02', poseCount: Number(id![2]) });
     // Byte for byte what was on disk.
     const file = await tech.client.fetch(`/api/sessions/${id![1]}/file`);
-    expect(Buffer.from(await file.arrayBuffer()).equals(readFileSync('test-data/vx-620-session.csv'))).toBe(true);
+    expect(Buffer.from(await file.arrayBuffer()).equals(readFileSync('test-data/orrin-r6-620-session.csv'))).toBe(true);
   });
 
   it('prints the server\'s line/field problems exactly like the local parser, and stores nothing', async () => {
     const file = 'test-data/bad/non-numeric-cell.csv';
-    const local = await offsetry(['check', '--model', 'test-data/vx-620-nominal.json', '--data', file]);
+    const local = await offsetry(['check', '--model', 'test-data/orrin-r6-620-nominal.json', '--data', file]);
     expect(local.code).toBe(1);
     const remote = await offsetry(['upload', '--unit', serial, '--file', file, '--measured-on', '2026-04-03'], env(tech.token));
     expect(remote.code).toBe(1);
@@ -87,13 +87,13 @@ describe('offsetry upload', () => {
   });
 
   it('names a bad form field the way the server names it', async () => {
-    const r = await offsetry(['upload', '--unit', serial, '--file', 'test-data/vx-620-session.csv', '--measured-on', '2026-02-30'], env(tech.token));
+    const r = await offsetry(['upload', '--unit', serial, '--file', 'test-data/orrin-r6-620-session.csv', '--measured-on', '2026-02-30'], env(tech.token));
     expect(r.code).toBe(1);
     expect(r.stderr).toMatch(/field measuredOn: measuredOn is not a calendar date/);
   });
 
   it('shows a progress bar for a large file', async () => {
-    const [header, ...rows] = readFileSync('test-data/vx-620-session.csv', 'utf8').trim().split('\n');
+    const [header, ...rows] = readFileSync('test-data/orrin-r6-620-session.csv', 'utf8').trim().split('\n');
     const big = [header, ...Array.from({ length: 45 }, (_, k) => rows.map((r) => r.replace(/^P/, `R${k}-`))).flat()].join('\n') + '\n';
     const path = join(dir, 'big-session.csv');
     writeFileSync(path, big);
@@ -106,7 +106,7 @@ describe('offsetry upload', () => {
   });
 
   it('exits 2 without a server or token, and 4 with a revoked token', async () => {
-    const none = await offsetry(['upload', '--unit', serial, '--file', 'test-data/vx-620-session.csv', '--measured-on', '2026-04-02']);
+    const none = await offsetry(['upload', '--unit', serial, '--file', 'test-data/orrin-r6-620-session.csv', '--measured-on', '2026-04-02']);
     expect(none.code).toBe(2);
     expect(none.stderr).toContain('OFFSETRY_URL');
     const bad = await offsetry(['status', '--unit', serial, '--server', BASE_URL, '--token', 'ofs_not-a-real-token']);

@@ -8,18 +8,20 @@ import { parse } from 'csv-parse/sync';
 import { eq } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { compensations } from '../../src/db/schema';
-import { anglesFromRotation, IkSolver } from '../../src/lib/engine/ik';
+import { IkSolver } from '../../src/lib/engine/ik';
+import { anglesFromRotation } from '../../src/lib/engine/rotations';
 import { createDb } from '../../src/lib/server/db';
-import { vx620Nominal, vx620True } from '../engine/make-test-data';
+import { r6Nominal, r6True } from '../engine/make-test-data';
 import { approveSet, makeModel, makeUnit } from '../support/approved-sets';
 import { DEMO, signedIn, type Client } from '../support/http';
+import { poll } from '../support/wait';
 
 const db = createDb(process.env.DATABASE_URL!, { max: 2 });
 afterAll(() => db.$client.end());
 const sha = (b: Uint8Array | string) => createHash('sha256').update(b).digest('hex');
 
-const nominal = vx620Nominal();
-const calibrated = vx620True();
+const nominal = r6Nominal();
+const calibrated = r6True();
 const onCalibrated = new IkSolver({ ...calibrated, base: undefined });
 
 function upload(client: Client, serial: string, csv: string, name = 'drill.csv', fields: Record<string, string> = {}) {
@@ -30,13 +32,13 @@ function upload(client: Client, serial: string, csv: string, name = 'drill.csv',
 }
 
 async function finished(client: Client, id: string, timeoutMs = 60_000) {
-  const until = Date.now() + timeoutMs;
-  for (;;) {
+  const { value } = await poll(
     // A reused keep-alive socket closed by the server at the same moment resets the request (undici); ask again.
-    const r = await client.json(`/api/compensations/${id}`).catch(() => ({ status: 0, body: { state: 'unknown' } }));
-    if (r.body.state === 'done' || r.body.state === 'failed' || Date.now() > until) return r.body;
-    await new Promise((d) => setTimeout(d, 300));
-  }
+    () => client.json(`/api/compensations/${id}`).catch(() => ({ status: 0, body: { state: 'unknown' } })),
+    (r) => r.body.state === 'done' || r.body.state === 'failed',
+    { timeoutMs, intervalMs: 300 },
+  );
+  return value.body;
 }
 
 describe('compensated programs', () => {

@@ -8,7 +8,7 @@ import { eq, inArray } from 'drizzle-orm';
 import { afterAll, describe, expect, it } from 'vitest';
 import { sessions, units } from '../../src/db/schema';
 import { createDb } from '../../src/lib/server/db';
-import { sessionCheck } from '../../src/lib/server/sessions';
+import { sessionCheck } from '../../src/lib/server/session-checks';
 import { seedScenario } from '../../scripts/demo-scenario';
 import { serviceEnv } from '../support/services';
 import { testS3 } from '../support/s3';

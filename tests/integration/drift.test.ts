@@ -143,7 +143,7 @@ describe('drift alerts', () => {
     expect(u!.needsAttention).toBe(false);
     const [row] = await db.select().from(driftAlerts).where(eq(driftAlerts.id, newer.id));
     expect(row!.acknowledgeComment).toBe('Re-measured; the change is real, arm was repaired.');
-    const entries = await db.select().from(auditLog).where(and(eq(auditLog.unitId, unit.unitId), eq(auditLog.action, 'drift.acknowledged')));
+    const entries = await db.select().from(auditLog).where(and(eq(auditLog.unitId, unit.unitId), eq(auditLog.action, 'drift_alert.acknowledged')));
     expect(entries).toHaveLength(2);
     const still = await quality.json('/api/alerts');
     expect(still.body.alerts.filter((a: { serial: string }) => a.serial === unit.serial)).toHaveLength(0);

@@ -1,5 +1,5 @@
 /**
- * Invented data for fit and review tests, written straight into the database: an arm model "TQ-6"
+ * Invented data for fit and review tests, written straight into the database: an arm model "Tarn R6-420"
  * (six axes, modified DH, made up for Offsetry), a unit, and a session whose poses are predicted by a
  * "true" geometry (nominal plus invented errors, placed in an invented tracker frame) with tracker-like
  * noise. The session's S3 object is not needed: fits read the poses from session_poses.
@@ -10,8 +10,9 @@ import { forwardPoint } from '../../src/lib/engine/kinematics';
 import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb, type Db } from '../../src/lib/server/db';
 import { uniq } from '../support/http';
-import { seededRandom } from '../../src/lib/engine/workspace';
-import { scaleNominal } from '../../scripts/scale-fixture';
+import { normalVariate, seededRandom } from '../../src/lib/engine/random';
+import { nominalTq6, trueTq6 } from '../support/arms';
+import { waitUntil } from '../support/wait';
 
 let shared: Db | undefined;
 export function testDb(): Db {
@@ -19,32 +20,6 @@ export function testDb(): Db {
   return shared;
 }
 
-/** The invented TQ-6 arm (one definition, shared with the scale benchmark's fixture). */
-export const nominalTq6 = scaleNominal;
-
-/** Nominal plus invented errors, in an invented tracker placement. */
-export function trueTq6(): ArmGeometry {
-  const g = nominalTq6();
-  const errors: [number, number, number, number][] = [
-    [0, 0, 0, 0],
-    [0.18, -0.025, 0, 0.038],
-    [-0.29, 0.021, 0, -0.031],
-    [0.12, 0.03, -0.22, 0.045],
-    [-0.07, -0.035, 0, -0.021],
-    [0, 0.019, 0.14, 0],
-  ];
-  g.joints.forEach((j, i) => {
-    const [da, dal, dd, dth] = errors[i]!;
-    j.a += da;
-    j.alpha += dal;
-    j.d += dd;
-    j.theta += dth;
-  });
-  g.joints[2]!.beta = 0.03;
-  g.base = { x: 1820.5, y: -512.3, z: -244.9, rx: 0.09, ry: -0.06, rz: 21.4 };
-  g.tool = { x: 0.35, y: -0.27, z: 95.48, rx: 0, ry: 0, rz: 0 };
-  return g;
-}
 
 // The engine's seeded generator, so each fixture is reproducible.
 const rng = seededRandom;
@@ -68,11 +43,11 @@ export async function createFixture(options: { count?: number; seed?: number; ou
   const r = rng(options.seed ?? 7);
   const nominal = nominalTq6();
   const truth = trueTq6();
-  const [model] = await db.insert(armModels).values({ name: `TQ-6 ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
+  const [model] = await db.insert(armModels).values({ name: `Tarn R6-420 ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry: nominal }).returning();
   const serial = `TQ6-${uniq()}`;
   const [unit] = await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Test hall', cell: 'C1' }).returning();
-  const noise = () => 0.015 * Math.sqrt(-2 * Math.log(Math.max(r(), 1e-300))) * Math.cos(2 * Math.PI * r()); // Box–Muller
+  const noise = () => 0.015 * normalVariate(r);
   const poses = Array.from({ length: count }, (_, i) => {
     const q = nominal.joints.map((j) => j.min! * 0.8 + (j.max! - j.min!) * 0.8 * r());
     const p = forwardPoint(truth, q);
@@ -115,13 +90,16 @@ export async function createFixture(options: { count?: number; seed?: number; ou
 /** Poll GET /api/fits/{id} until the fit leaves queued/running; returns the last body and the states seen. */
 export async function waitForFit(client: { json: (path: string) => Promise<{ status: number; body: any }> }, id: string, timeoutMs = 60_000) {
   const seen = new Set<string>();
-  const deadline = Date.now() + timeoutMs;
-  for (;;) {
-    const res = await client.json(`/api/fits/${id}`);
-    if (res.status !== 200) throw new Error(`GET /api/fits/${id} answered ${res.status}: ${JSON.stringify(res.body)}`);
-    seen.add(res.body.fit.state);
-    if (res.body.fit.state === 'fitted' || res.body.fit.state === 'failed') return { fit: res.body.fit, seen };
-    if (Date.now() > deadline) throw new Error(`fit ${id} still ${res.body.fit.state} after ${timeoutMs} ms`);
-    await new Promise((r) => setTimeout(r, 150));
-  }
+  const fit = await waitUntil(
+    `fit ${id} leaving queued/running`,
+    async () => {
+      const res = await client.json(`/api/fits/${id}`);
+      if (res.status !== 200) throw new Error(`GET /api/fits/${id} answered ${res.status}: ${JSON.stringify(res.body)}`);
+      seen.add(res.body.fit.state);
+      return res.body.fit;
+    },
+    (f) => f.state === 'fitted' || f.state === 'failed',
+    { timeoutMs, intervalMs: 150 },
+  );
+  return { fit, seen };
 }

@@ -8,7 +8,8 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { auditLog, fits } from '../../src/db/schema';
 import { readFileSync } from 'node:fs';
 import { DEMO, signedIn, type Client } from '../support/http';
-import { startAppInstance } from '../support/services';
+import { startWorker } from '../support/services';
+import { poll } from '../support/wait';
 import { createFixture, testDb, waitForFit, type Fixture } from './fit-fixtures';
 
 let engineer: Client;
@@ -151,12 +152,7 @@ describe('job queue', () => {
     await boss.start();
     const jobId = await boss.send('fit', { fitId: fit.id }, { singletonKey: fit.id });
     expect(jobId).toBeTruthy();
-    const deadline = Date.now() + 30_000;
-    let job = await boss.getJobById('fit', jobId!);
-    while (job?.state !== 'completed' && Date.now() < deadline) {
-      await new Promise((r) => setTimeout(r, 200));
-      job = await boss.getJobById('fit', jobId!);
-    }
+    const { value: job } = await poll(() => boss.getJobById('fit', jobId!), (j) => j?.state === 'completed', { timeoutMs: 30_000, intervalMs: 200 });
     await boss.stop({ graceful: false, wait: true, close: true });
     expect(job?.state).toBe('completed');
     expect(job?.output).toEqual({ outcome: 'skipped' });
@@ -193,13 +189,8 @@ describe('a crashed run', () => {
 
 describe('worker process (npm run worker)', () => {
   it('starts on the shared queue, runs fits on threads, and stops cleanly on SIGTERM', async () => {
-    const worker = await startAppInstance({ WORKER_CONCURRENCY: '2' }, { entry: 'scripts/worker.mjs', waitForPort: false });
-    const deadline = Date.now() + 30_000;
-    let log = '';
-    while (!log.includes('fit worker ready') && Date.now() < deadline) {
-      await new Promise((r) => setTimeout(r, 250));
-      log = readFileSync(worker.logFile, 'utf8');
-    }
+    const worker = await startWorker({ concurrency: 2 });
+    const log = readFileSync(worker.logFile, 'utf8');
     expect(log).toContain('"msg":"fit worker ready"');
     expect(log).toContain('"engine":"thread"');
     // Fits still finish with two workers on the queue (the app's and this one), each exactly once.

@@ -18,10 +18,11 @@ import { API_ROUTES } from '../../src/lib/shared/routes';
 import { approveSet, moved } from '../support/approved-sets';
 import { DEMO, signedIn, uniq, type Client } from '../support/http';
 import { testDb } from './fit-fixtures';
+import { poll } from '../support/wait';
 
 const METHODS = ['get', 'post', 'put', 'patch', 'delete'] as const;
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const sessionFile = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const sessionFile = readFileSync('test-data/orrin-r6-620-session.csv');
 
 let admin: Client;
 let doc: any;
@@ -30,7 +31,7 @@ const ids: Record<string, string> = {};
 beforeAll(async () => {
   admin = await signedIn(DEMO.admin);
   const db = testDb();
-  const [model] = await db.insert(armModels).values({ name: uniq('OpenAPI VX '), manufacturer: 'Invented Arms Ltd.' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('OpenAPI R6 '), manufacturer: 'Invented Arms Ltd.' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   const serial = uniq('OA-');
   const [unit] = await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Test hall', cell: 'C2' }).returning();
@@ -41,7 +42,7 @@ beforeAll(async () => {
   const form = new FormData();
   form.append('unit', serial);
   form.append('measuredOn', '2026-05-04');
-  form.append('file', new Blob([sessionFile], { type: 'text/csv' }), 'vx-620-session.csv');
+  form.append('file', new Blob([sessionFile], { type: 'text/csv' }), 'orrin-r6-620-session.csv');
   const up = await admin.json('/api/sessions', { method: 'POST', body: form });
   expect(up.status, JSON.stringify(up.body)).toBe(201);
   ids.session = up.body.id;
@@ -61,13 +62,12 @@ beforeAll(async () => {
   const comp = await admin.json(`/api/units/${encodeURIComponent(serial)}/compensations`, { method: 'POST', body: programForm });
   expect(comp.status, JSON.stringify(comp.body)).toBe(202);
   ids.compensation = comp.body.id;
-  const until = Date.now() + 60_000;
-  let state = 'queued';
-  while (state !== 'done' && state !== 'failed' && Date.now() < until) {
-    await new Promise((d) => setTimeout(d, 300));
+  const { value: state } = await poll(
     // A reused keep-alive socket closed by the server at the same moment resets the request (undici); ask again.
-    state = (await admin.json(`/api/compensations/${ids.compensation}`).catch(() => ({ body: { state } }))).body.state;
-  }
+    async () => (await admin.json(`/api/compensations/${ids.compensation}`).catch(() => ({ body: { state: 'unknown' } }))).body.state as string,
+    (s) => s === 'done' || s === 'failed',
+    { timeoutMs: 60_000, intervalMs: 300 },
+  );
   expect(state, 'the compensation job finished').toBe('done');
 
   // An invitation with a known link token (the mail only carries it to the person).

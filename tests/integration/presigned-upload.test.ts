@@ -19,8 +19,8 @@ const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
 const s3 = testS3();
 
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const goodFile = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const goodFile = readFileSync('test-data/orrin-r6-620-session.csv');
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 const META = { measuredOn: '2025-04-02', technician: 'Test Tech', instrument: 'tracker T-2', instrumentUncertainty: '±(10 µm + 5 µm/m), k = 2', ambientC: 20.5, target: '1.5 in SMR', notes: 'presigned' };
 

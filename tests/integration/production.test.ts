@@ -17,6 +17,7 @@ import { createDb } from '../../src/lib/server/db';
 import { createApiToken, upsertUserWithPassword } from '../../src/lib/server/users';
 import { Client, DEMO, uniq } from '../support/http';
 import { harnessStatus, requireEnv, startAppInstance, type AppInstance } from '../support/services';
+import { poll } from '../support/wait';
 
 const root = resolve(new URL('../..', import.meta.url).pathname);
 const db = createDb(requireEnv('DATABASE_URL'), { max: 2 });
@@ -52,14 +53,8 @@ function completeEnv(overrides: Record<string, string | undefined> = {}): Record
   return env;
 }
 
-async function waitUntil(check: () => Promise<boolean>, timeoutMs = 10_000) {
-  const deadline = Date.now() + timeoutMs;
-  while (Date.now() < deadline) {
-    if (await check()) return true;
-    await new Promise((r) => setTimeout(r, 100));
-  }
-  return false;
-}
+/** Whether `check` comes true within the time. */
+const cameTrue = async (check: () => Promise<boolean>, timeoutMs = 10_000) => (await poll(check, Boolean, { timeoutMs, intervalMs: 100 })).done;
 
 describe('scripts/serve.mjs checks the configuration before starting', () => {
   it('lists every missing and malformed variable and exits with 78', async () => {
@@ -96,7 +91,7 @@ describe('the built server checks the configuration at first use', () => {
     const res = await fetch(`${app.url}/api/health`);
     expect(res.status).toBe(503);
     expect(((await res.json()) as { error: string }).error).toMatch(/not configured completely/);
-    const gone = await waitUntil(async () => !(await harnessStatus()).apps.some((a) => a.id === app.id));
+    const gone = await cameTrue(async () => !(await harnessStatus()).apps.some((a) => a.id === app.id));
     expect(gone, 'the instance should have exited').toBe(true);
     const logText = readFileSync(app.logFile, 'utf8');
     expect(logText).toMatch(/AUTH_SECRET: the example secret is refused/);
@@ -165,7 +160,7 @@ describe('a production instance', () => {
     const id = `ops-check-${uniq().toLowerCase()}`;
     const res = await fetch(`${app.url}/api/health`, { headers: { 'x-request-id': id } });
     expect(res.headers.get('x-request-id')).toBe(id);
-    const line = await waitUntil(async () => readFileSync(app.logFile, 'utf8').includes(id), 5000);
+    const line = await cameTrue(async () => readFileSync(app.logFile, 'utf8').includes(id), 5000);
     expect(line).toBe(true);
     const entry = readFileSync(app.logFile, 'utf8')
       .split('\n')

@@ -9,6 +9,7 @@ import { auditLog, parameterSets } from '../../src/db/schema';
 import { DEMO, signedIn, type Client } from '../support/http';
 import { capturedMail, type CapturedMail } from '../support/services';
 import { createFixture, testDb, waitForFit, type Fixture } from './fit-fixtures';
+import { poll } from '../support/wait';
 
 let technician: Client, engineer: Client, engineer2: Client, admin: Client;
 
@@ -37,12 +38,7 @@ const post = (c: Client, id: string, action: string, json: unknown = {}) => c.js
 
 /** Wait until the mail fake holds a message matching `pick` (the app's sender loop delivers the outbox). */
 async function mailsFor(pick: (m: CapturedMail) => boolean, atLeast = 1, timeoutMs = 20_000): Promise<CapturedMail[]> {
-  const deadline = Date.now() + timeoutMs;
-  for (;;) {
-    const found = (await capturedMail()).filter(pick);
-    if (found.length >= atLeast || Date.now() > deadline) return found;
-    await new Promise((r) => setTimeout(r, 250));
-  }
+  return (await poll(async () => (await capturedMail()).filter(pick), (found) => found.length >= atLeast, { timeoutMs })).value;
 }
 
 describe('state machine and four-eyes rule', () => {

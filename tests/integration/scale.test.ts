@@ -24,7 +24,7 @@ const label = (i: number) => `P${String(i + 1).padStart(6, '0')}`;
 
 beforeAll(async () => {
   engineer = await signedIn(DEMO.engineer);
-  const [model] = await db.insert(armModels).values({ name: `TQ-6 scale ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
+  const [model] = await db.insert(armModels).values({ name: `Tarn R6-420 scale ${uniq()}`, manufacturer: 'Invented Arms Co.' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry: scaleNominal() }).returning();
   const serial = `SC-${uniq()}`;
   await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Test hall', cell: 'C1' });

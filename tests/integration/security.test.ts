@@ -18,8 +18,8 @@ import { BASE_URL, Client, DEMO, signedIn, uniq } from '../support/http';
 import { requireEnv, startAppInstance, type AppInstance } from '../support/services';
 
 const db = createDb(requireEnv('DATABASE_URL'), { max: 2 });
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const goodFile = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const goodFile = readFileSync('test-data/orrin-r6-620-session.csv');
 const demoFor: Record<Role, string> = {
   technician: DEMO.technician,
   engineer: DEMO.engineer,
@@ -60,7 +60,7 @@ beforeAll(async () => {
     tokenIds[role] = created.body.id;
     bearer[role] = new Client(BASE_URL, created.body.token);
   }
-  const [model] = await db.insert(armModels).values({ name: uniq('SEC-VX-'), description: 'security tests' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('SEC-R6-'), description: 'security tests' }).returning();
   modelId = model!.id;
   const [rev] = await db.insert(armModelRevisions).values({ modelId, revision: 1, geometry }).returning();
   revisionId = rev!.id;
@@ -277,7 +277,7 @@ describe('uploads over the size limit are refused before the body is read', () =
     expect(res.status, res.body).toBe(413);
     expect(JSON.parse(res.body).error).toMatch(/larger than the limit of 64 KiB/);
     // The whole body is capped at the limit plus a 256 KiB allowance for the form around the file
-    // (src/lib/server/sessions.ts); the answer comes there, while most of the 4 MiB is still to come.
+    // (src/lib/server/session-intake.ts); the answer comes there, while most of the 4 MiB is still to come.
     // busboy reads one buffer ahead of the old reader: 128 KiB of slack instead of 64.
     expect(res.sentWhenAnswered).toBeLessThan(64 * 1024 + 256 * 1024 + 64 * 1024 + 64 * 1024);
     const [n] = await db.select({ n: sql<number>`count(*)::int` }).from(sessions).where(eq(sessions.unitId, unit.id));

@@ -188,7 +188,7 @@ describe('mail fake through nodemailer', () => {
     expect(mine).toEqual([`second ${tag}`, `first ${tag}`]);
   });
 
-  describe('a private instance (built-in parser, DELETE)', () => {
+  describe('a private instance (folded and encoded headers, DELETE)', () => {
     let child: ChildProcess | undefined;
     const dir = mkdtempSync(join(tmpdir(), 'offsetry-mail-test-'));
     afterAll(() => {
@@ -204,10 +204,9 @@ describe('mail fake through nodemailer', () => {
         });
       });
 
-    it('parses like mailparser without it, and DELETE /messages empties the store', async () => {
+    it('reads a long non-ASCII subject and the text and HTML parts, and DELETE /messages empties the store', async () => {
       const [smtpPort, apiPort] = [await freePort(), await freePort()];
       child = spawn(process.execPath, ['scripts/mail-fake.mjs', '--smtp-port', String(smtpPort), '--api-port', String(apiPort), '--dir', dir], {
-        env: { ...process.env, MAIL_FAKE_PARSER: 'builtin' },
         stdio: ['ignore', 'pipe', 'inherit'],
       });
       await new Promise<void>((resolve, reject) => {
@@ -215,23 +214,25 @@ describe('mail fake through nodemailer', () => {
         child!.once('exit', (code) => reject(new Error(`mail fake exited with ${code}`)));
       });
       const api = `http://127.0.0.1:${apiPort}`;
+      // Long enough to be folded over several header lines, and encoded (RFC 2047) for its non-ASCII words.
       const subject = `Parser check ${unique()} — Größe ✓ ${'long words '.repeat(8)}`.trim();
       const to = `parser-${unique()}@example.com`;
       const privateTransport = nodemailer.createTransport({ host: '127.0.0.1', port: smtpPort, secure: false });
       await send(to, subject, privateTransport);
-      await send(to, subject); // the same message to the shared fake, parsed by mailparser
       privateTransport.close();
 
-      const builtin = ((await (await fetch(`${api}/messages`)).json()) as CapturedMail[])[0]!;
-      const reference = await waitForMail((m) => m.subject === subject);
-      expect(builtin.subject).toBe(reference.subject);
-      expect(builtin.text).toBe(reference.text);
-      expect(builtin.html).toBe(reference.html);
+      const [captured] = (await (await fetch(`${api}/messages`)).json()) as CapturedMail[];
+      const raw = await (await fetch(`${api}/messages/${captured!.id}/raw`)).text();
+      expect(raw, 'the subject travels encoded').toMatch(/^Subject: .*=\?UTF-8\?[BQ]\?/im);
+      expect(captured!.subject).toBe(subject);
+      expect(captured!.recipients).toContain(to);
+      expect(captured!.text).toBe(`Set your password: ${env.baseUrl}/invite/abc123\nLengths in µm — ✓ confirmed.`);
+      expect(captured!.html).toBe(`<p>Set your password: <a href="${env.baseUrl}/invite/abc123">link</a></p>`);
 
       const deleted = (await (await fetch(`${api}/messages`, { method: 'DELETE' })).json()) as { deleted: number };
       expect(deleted.deleted).toBe(1);
       expect(await (await fetch(`${api}/messages`)).json()).toEqual([]);
-      expect((await fetch(`${api}/messages/${builtin.id}/raw`)).status).toBe(404);
+      expect((await fetch(`${api}/messages/${captured!.id}/raw`)).status).toBe(404);
     });
   });
 });

@@ -22,8 +22,8 @@ const env = serviceEnv();
 const db = createDb(env.databaseUrl, { max: 2 });
 const s3 = testS3();
 
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const goodFile = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const goodFile = readFileSync('test-data/orrin-r6-620-session.csv');
 const HEADER = 'pose,q1,q2,q3,q4,q5,q6,x,y,z';
 const ROW1 = 'P1,10,-20,30,0,45,0,2180.5123,-512.3301,640.1102';
 const ROW2 = 'P2,-15,-35,55,20,-30,90,2050.2231,-820.7704,720.4455';
@@ -33,7 +33,7 @@ let revisionId: string;
 let tech: Client;
 
 beforeAll(async () => {
-  const [model] = await db.insert(armModels).values({ name: uniq('TEST-VX-'), description: 'upload tests' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('TEST-R6-'), description: 'upload tests' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   revisionId = rev!.id;
   tech = await signedIn(DEMO.technician);
@@ -260,17 +260,17 @@ describe('metadata is checked with the file', () => {
 describe('good uploads', () => {
   it('stores the file unchanged and the poses; download is byte-identical with the same SHA-256', async () => {
     const unit = await newUnit();
-    const res = await upload(tech, { unit: unit.serial, file: goodFile, fileName: 'VX visit 1.csv' });
+    const res = await upload(tech, { unit: unit.serial, file: goodFile, fileName: 'R6 visit 1.csv' });
     expect(res.status, JSON.stringify(res.body)).toBe(201);
     const expectedRows = goodFile.toString().trim().split('\n').length - 1;
     expect(res.body).toMatchObject({ poseCount: expectedRows, url: `/sessions/${res.body.id}` });
 
     const keys = await objectsUnder(unit.serial);
-    expect(keys).toEqual([`sessions/${unit.serial}/${res.body.id}/VX_visit_1.csv`]);
+    expect(keys).toEqual([`sessions/${unit.serial}/${res.body.id}/R6_visit_1.csv`]);
 
     const file = await tech.fetch(`/api/sessions/${res.body.id}/file`);
     expect(file.status).toBe(200);
-    expect(file.headers.get('content-disposition')).toMatch(/attachment; filename="VX visit 1.csv"/);
+    expect(file.headers.get('content-disposition')).toMatch(/attachment; filename="R6 visit 1.csv"/);
     const bytes = Buffer.from(await file.arrayBuffer());
     expect(Buffer.compare(bytes, goodFile)).toBe(0);
     const sha = createHash('sha256').update(goodFile).digest('hex');

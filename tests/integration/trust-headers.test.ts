@@ -12,7 +12,7 @@ import { Client, DEMO, signedIn, uniq } from '../support/http';
 import { requireEnv, startAppInstance, type AppInstance } from '../support/services';
 
 const db = createDb(requireEnv('DATABASE_URL'), { max: 2 });
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
 const started: AppInstance[] = [];
 let engineer: Client;
 let service: Client;
@@ -20,7 +20,7 @@ let modelId: string;
 
 beforeAll(async () => {
   [engineer, service] = await Promise.all([signedIn(DEMO.engineer), signedIn(DEMO.service)]);
-  const [model] = await db.insert(armModels).values({ name: uniq('HDR-VX-'), description: 'header tests' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('HDR-R6-'), description: 'header tests' }).returning();
   modelId = model!.id;
   await db.insert(armModelRevisions).values({ modelId, revision: 1, geometry });
 });

@@ -18,8 +18,8 @@ import { requireEnv } from '../support/services';
 
 const db = createDb(requireEnv('DATABASE_URL'), { max: 2 });
 const base = new URL(BASE_URL);
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
-const goodFile = readFileSync('test-data/vx-620-session.csv');
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
+const goodFile = readFileSync('test-data/orrin-r6-620-session.csv');
 let engineer: Client;
 let technician: Client;
 let admin: Client;
@@ -31,7 +31,7 @@ beforeAll(async () => {
   [engineer, technician, admin] = await Promise.all([signedIn(DEMO.engineer), signedIn(DEMO.technician), signedIn(DEMO.admin)]);
   const t = await engineer.json('/api/tokens', { method: 'POST', json: { name: 'input tests' } });
   engineerToken = t.body.token;
-  const [model] = await db.insert(armModels).values({ name: uniq('INPUT-VX-'), description: 'input tests' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('INPUT-R6-'), description: 'input tests' }).returning();
   modelId = model!.id;
   const [rev] = await db.insert(armModelRevisions).values({ modelId, revision: 1, geometry }).returning();
   revisionId = rev!.id;
@@ -208,7 +208,7 @@ describe('control and bidi characters are removed from stored display texts', ()
     expect(stored!.site).toBe('Hall B');
     expect(stored!.cell).toBe('C7');
 
-    const model = await engineer.json(`/api/arm-models/${modelId}`, { method: 'PUT', json: { name: `${uniq('VX')}${RLO}lmth.exe` } });
+    const model = await engineer.json(`/api/arm-models/${modelId}`, { method: 'PUT', json: { name: `${uniq('R6')}${RLO}lmth.exe` } });
     expect(model.status, JSON.stringify(model.body)).toBe(200);
     const [m] = await db.select().from(armModels).where(eq(armModels.id, modelId));
     expect(m!.name).not.toMatch(/[\u202a-\u202e\u2066-\u2069]/);

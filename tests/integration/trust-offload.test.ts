@@ -10,15 +10,16 @@ import type { ArmGeometry } from '../../src/lib/engine/types';
 import { createDb } from '../../src/lib/server/db';
 import { BASE_URL, DEMO, signedIn, uniq, type Client } from '../support/http';
 import { requireEnv } from '../support/services';
+import { sleep } from '../support/wait';
 
 const db = createDb(requireEnv('DATABASE_URL'), { max: 2 });
-const geometry = JSON.parse(readFileSync('test-data/vx-620-nominal.json', 'utf8')) as ArmGeometry;
+const geometry = JSON.parse(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8')) as ArmGeometry;
 let engineer: Client;
 let serial: string;
 
 beforeAll(async () => {
   engineer = await signedIn(DEMO.engineer);
-  const [model] = await db.insert(armModels).values({ name: uniq('PLAN-VX-'), description: 'offload tests' }).returning();
+  const [model] = await db.insert(armModels).values({ name: uniq('PLAN-R6-'), description: 'offload tests' }).returning();
   const [rev] = await db.insert(armModelRevisions).values({ modelId: model!.id, revision: 1, geometry }).returning();
   serial = uniq('PLAN-');
   await db.insert(units).values({ serial, modelRevisionId: rev!.id, site: 'Plan hall', cell: 'P1' });
@@ -38,13 +39,13 @@ describe('heavy work runs off the request thread', () => {
       return r;
     });
     const healthAt: number[] = [];
-    await new Promise((r) => setTimeout(r, 150));
+    await sleep(150);
     while (!planDone && healthAt.length < 50) {
       const res = await fetch(new URL('/api/health', BASE_URL));
       expect(res.status).toBe(200);
       await res.arrayBuffer();
       if (!planDone) healthAt.push(performance.now() - t0);
-      await new Promise((r) => setTimeout(r, 50));
+      await sleep(50);
     }
     const res = await plan;
     expect(res.status, JSON.stringify(res.body).slice(0, 300)).toBe(200);

@@ -74,7 +74,7 @@ describe('four eyes over the whole lineage', () => {
     const res = await post(admin, b, 'approve');
     expect(res.status, JSON.stringify(res.body)).toBe(200);
     const entries = await auditActions(b);
-    const exception = entries.find((e) => e.action === 'fit.four_eyes_exception');
+    const exception = entries.find((e) => e.action === 'four_eyes.waived');
     expect(exception, JSON.stringify(entries)).toBeDefined();
     expect(JSON.stringify(exception!.details)).toMatch(/ran fit/);
   });
@@ -113,7 +113,7 @@ describe('approval order', () => {
 
     const confirmed = await post(engineer2, fitOld, 'approve', { confirmOlderSession: true, comment: 'newer set measured with a loose SMR nest' });
     expect(confirmed.status, JSON.stringify(confirmed.body)).toBe(200);
-    const entry = (await auditActions(fitOld)).find((e) => e.action === 'fit.approved_older_session');
+    const entry = (await auditActions(fitOld)).find((e) => e.action === 'older_session.approved');
     expect(entry).toBeDefined();
     expect(entry!.details).toMatchObject({ measuredOn: '2024-03-05', currentMeasuredOn: '2026-11-20' });
   });

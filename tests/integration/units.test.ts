@@ -8,7 +8,7 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { parseGeometry } from '../../src/lib/engine/geometry';
 import { Client, DEMO, signedIn, uniq } from '../support/http';
 
-const nominal = parseGeometry(readFileSync('test-data/vx-620-nominal.json', 'utf8'), 'vx-620-nominal.json');
+const nominal = parseGeometry(readFileSync('test-data/orrin-r6-620-nominal.json', 'utf8'), 'orrin-r6-620-nominal.json');
 
 let engineer: Client;
 let technician: Client;
@@ -40,7 +40,7 @@ beforeAll(async () => {
 
 describe('registration', () => {
   it('registers a unit on the latest revision and returns the record with counts', async () => {
-    const serial = uniq('VX-');
+    const serial = uniq('R6-');
     const res = await technician.json('/api/units', {
       method: 'POST',
       json: { serial, modelId, site: 'Plant North', cell: 'Cell 4', commissionedOn: '2024-03-15', notes: 'welding line' },
@@ -90,7 +90,7 @@ describe('registration', () => {
     const h = await quality.json(`/api/units/${serial}/history`);
     expect(h.status).toBe(200);
     expect(h.body.audit).toHaveLength(1);
-    expect(h.body.audit[0]).toMatchObject({ action: 'register', entityType: 'unit', actorEmail: DEMO.technician });
+    expect(h.body.audit[0]).toMatchObject({ action: 'unit.registered', entityType: 'unit', actorEmail: DEMO.technician });
     expect(h.body.sessions).toEqual([]);
     expect(h.body.fits).toEqual([]);
     expect(h.body.parameterSets).toEqual([]);

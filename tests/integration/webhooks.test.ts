@@ -11,6 +11,7 @@ import { approveSet, fitAwaitingReview, makeModel, makeUnit, moved } from '../su
 import { webhookDeliveries } from '../../src/db/schema';
 import { DEMO, signedIn, type Client } from '../support/http';
 import { createFixture, testDb, waitForFit } from './fit-fixtures';
+import { sleep, waitUntil } from '../support/wait';
 
 interface Received {
   headers: IncomingMessage['headers'];
@@ -44,15 +45,9 @@ function verify(secret: string, r: Received, toleranceSeconds = 300): boolean {
   return given.length === expected.length && timingSafeEqual(given, expected);
 }
 
-async function until<T>(what: string, probe: () => Promise<T | undefined> | T | undefined, timeoutMs = 60_000): Promise<T> {
-  const deadline = Date.now() + timeoutMs;
-  for (;;) {
-    const v = await probe();
-    if (v !== undefined && v !== false) return v;
-    if (Date.now() > deadline) throw new Error(`timed out waiting for ${what}`);
-    await new Promise((r) => setTimeout(r, 200));
-  }
-}
+/** Ask `probe` until it gives something (not undefined, not false). */
+const until = <T>(what: string, probe: () => Promise<T | undefined> | T | undefined, timeoutMs = 60_000): Promise<T> =>
+  waitUntil(what, probe, (v) => v !== undefined && v !== false, { timeoutMs, intervalMs: 200 }) as Promise<T>;
 
 let admin: Client, engineer: Client;
 const registered: string[] = [];
@@ -221,7 +216,7 @@ describe('deliveries', () => {
       expect((await engineer.json(`/api/fits/${u.fitId}/approve`, { method: 'POST', json: {} })).status).toBe(200);
       // The active endpoint registered at the same time gets it; by then the removed one would have too.
       await until('the kept endpoint\'s message', () => (forUnit(kept.got, u.serial).length ? true : undefined));
-      await new Promise((r) => setTimeout(r, 1500));
+      await sleep(1500);
       expect(forUnit(gone.got, u.serial)).toHaveLength(0);
       expect(gone.got).toHaveLength(0);
       expect(await deliveries(b.endpoint.id)).toHaveLength(0);

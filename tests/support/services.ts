@@ -9,6 +9,8 @@
  * Tests that stop a shared service (PostgreSQL, S3, mail, the main app) belong in tests/faults/: the harness
  * runs those after everything else, one file at a time.
  */
+import { existsSync, readFileSync } from 'node:fs';
+import { poll, waitUntil } from './wait';
 
 export interface ServiceEnv {
   databaseUrl: string;
@@ -131,6 +133,33 @@ export async function startAppInstance(env: Record<string, string> = {}, options
   };
 }
 
+export interface WorkerOptions {
+  /** WORKER_NAME: the name the worker writes into the fits it claims. Default: the worker's own. */
+  name?: string;
+  /** WORKER_CONCURRENCY: fits run at once. Default: the worker's own. */
+  concurrency?: number;
+  /** More environment on top (e.g. the queue's FIT_JOB_* timings). */
+  env?: Record<string, string>;
+  /** The started process is pushed here before it is waited for, so an afterAll can stop it even then. */
+  started?: AppInstance[];
+  /** How long to wait for its "fit worker ready" log line, ms. Default 30 000. */
+  timeoutMs?: number;
+}
+
+/** A separate worker process (scripts/worker.mjs) on the run's queue, once its log says it is ready. */
+export async function startWorker(options: WorkerOptions = {}): Promise<AppInstance> {
+  const env: Record<string, string> = { ...options.env };
+  if (options.name !== undefined) env.WORKER_NAME = options.name;
+  if (options.concurrency !== undefined) env.WORKER_CONCURRENCY = String(options.concurrency);
+  const worker = await startAppInstance(env, { entry: 'scripts/worker.mjs', waitForPort: false });
+  options.started?.push(worker);
+  const logText = () => (existsSync(worker.logFile) ? readFileSync(worker.logFile, 'utf8') : '');
+  const timeoutMs = options.timeoutMs ?? 30_000;
+  const ready = await poll(logText, (log) => log.includes('"msg":"fit worker ready"'), { timeoutMs, intervalMs: 200 });
+  if (!ready.done) throw new Error(`worker ${options.name ?? worker.id} did not start within ${timeoutMs} ms:\n${ready.value.slice(-2000)}`);
+  return worker;
+}
+
 // ---- captured mail --------------------------------------------------------------------------------------
 
 export interface CapturedMail {
@@ -166,11 +195,6 @@ export async function rawMail(id: string): Promise<string> {
  * the same time, so match on something unique to your test rather than clearing the store.
  */
 export async function waitForMail(match: (mail: CapturedMail) => boolean, timeoutMs = 10_000): Promise<CapturedMail> {
-  const deadline = Date.now() + timeoutMs;
-  for (;;) {
-    const found = (await capturedMail()).find(match);
-    if (found) return found;
-    if (Date.now() > deadline) throw new Error(`no captured mail matched within ${timeoutMs} ms`);
-    await new Promise((r) => setTimeout(r, 100));
-  }
+  const found = await waitUntil('a captured mail that matches', async () => (await capturedMail()).find(match), (m) => m !== undefined, { timeoutMs, intervalMs: 100 });
+  return found!;
 }

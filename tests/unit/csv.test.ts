@@ -7,7 +7,7 @@ import { parse } from 'csv-parse/sync';
 import { describe, expect, it } from 'vitest';
 import { csvCellText, csvText } from '../../src/lib/shared/csv';
 import { planToCsv, sessionToCsv } from '../../src/lib/engine/session-csv';
-import { parametersCsv } from '../../src/lib/server/exports';
+import { parametersCsv } from '../../src/lib/server/parameter-set-files';
 import { testArm } from '../support/approved-sets';
 
 const PYTHON = process.env.PYTHON || 'python3';

@@ -34,8 +34,8 @@ print(json.dumps({
 }
 
 const HOSTILE = [
-  'VX -- 620',
-  'VX --->  <!DOCTYPE r [<!ENTITY x SYSTEM "file:///etc/passwd">]><robot name="evil">&x;</robot><!--',
+  'R6 -- 620',
+  'R6 --->  <!DOCTYPE r [<!ENTITY x SYSTEM "file:///etc/passwd">]><robot name="evil">&x;</robot><!--',
   '<!DOCTYPE robot [<!ENTITY e SYSTEM "http://evil.example/e">]>',
   'ends with a hyphen -',
   'quote " and apostrophe \' and & and <tag>',

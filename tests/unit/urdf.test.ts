@@ -111,6 +111,38 @@ describe('URDF reader against the URDF XML specification examples', () => {
     }
     expect(() => parseUrdf('<robot><link name="a"></robot>', 'x.urdf')).toThrow(/x\.urdf, line 1: closing tag <\/robot> does not match <link>/);
   });
+
+  it('reads entities and element lines through the XML layer, and names the line of malformed XML', () => {
+    // A byte-order mark, a declaration, a comment and a DOCTYPE before the root do not shift the lines.
+    const text = `\ufeff<?xml version="1.0"?>
+<!-- made by hand -->
+<!DOCTYPE robot>
+<robot name="R &amp; D &#65;&#x42; &lt;1&gt; &quot;q&quot; &apos;s&apos; &amp;#60;">
+  <link name="a"/>
+
+  <link
+    name="b"/>
+  <joint name="j" type="fixed"><parent link="a"/><child link="b"/></joint>
+</robot>`;
+    const robot = parseUrdf(text, 'ok.urdf');
+    // Predefined entities and numeric references decode once ("&amp;#60;" stays the text "&#60;").
+    expect(robot.name).toBe('R & D AB <1> "q" \'s\' &#60;');
+    expect(robot.joints[0]).toMatchObject({ line: 9, parent: 'a', child: 'b' });
+    const fails = (xml: string) => {
+      try {
+        parseUrdf(xml, 'm.urdf');
+      } catch (e) {
+        expect(e).toBeInstanceOf(EngineInputError);
+        return (e as EngineInputError).problems;
+      }
+      return expect.unreachable();
+    };
+    expect(fails('<robot name="x">\n  <link name="a" name="b"/>\n</robot>')).toEqual([expect.objectContaining({ file: 'm.urdf', line: 2, message: expect.stringContaining("'name' is repeated") })]);
+    expect(fails('<robot name="x">\n  <link name="a">\n')).toEqual([expect.objectContaining({ message: expect.stringMatching(/<link> is never closed/) })]);
+    expect(fails('<robot/>\n<robot/>')).toEqual([expect.objectContaining({ line: 2, message: 'more than one root element' })]);
+    expect(fails('  \n')).toEqual([expect.objectContaining({ message: 'no root element: the file is empty' })]);
+    expect(fails('<robot name="x">\n<link name=a/>\n</robot>')).toEqual([expect.objectContaining({ line: 2 })]);
+  });
 });
 
 describe('rpy decomposition', () => {
@@ -143,7 +175,7 @@ const variants: [string, ArmGeometry][] = [
   ['dh six-axis', sixAxisDh()],
   ['mdh six-axis', sixAxisMdh()],
   ['dh with a prismatic joint', fourAxisParallel()],
-  ['mdh with a prismatic joint', { ...fourAxisParallel(), convention: 'mdh', name: 'Test arm TS-4m' }],
+  ['mdh with a prismatic joint', { ...fourAxisParallel(), convention: 'mdh', name: 'Test arm Pell S4-600m' }],
 ];
 
 describe('converter check: URDF chain = engine forward kinematics within 1e-6 mm', () => {

@@ -1,12 +1,11 @@
 import { useState } from 'react';
 import { useDropzone } from 'react-dropzone';
+import { formatBytes } from '../../lib/shared/display';
 
 interface Problem { line?: number; column?: string; field?: string; message: string; expected?: string }
 interface Props { serial: string; jointCount: number; setVersion: number; hasBase: boolean }
 
 type State = { kind: 'idle' } | { kind: 'sending' } | { kind: 'refused'; status: number; error: string; errors: Problem[] };
-
-const formatBytes = (b: number) => (b >= 1048576 ? `${(b / 1048576).toFixed(1)} MiB` : b >= 1024 ? `${(b / 1024).toFixed(1)} KiB` : `${b} bytes`);
 
 /** Drop zone for a robot program, frame and tool; posts multipart and opens the compensation's page. */
 export default function CompensateForm({ serial, jointCount, setVersion, hasBase }: Props) {

@@ -1,9 +1,8 @@
 import { useEffect, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Legend, ResponsiveContainer, Tooltip, XAxis, YAxis } from 'recharts';
 import { api } from '../../lib/shared/api-client';
+import { ACCENT } from '../chart-colours';
 import SafetyNotice from '../SafetyNotice';
-
-const ACCENT = '#0f6e6e';
 
 interface Summary {
   kind: 'cartesian' | 'joint';

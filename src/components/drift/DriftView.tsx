@@ -1,31 +1,7 @@
 import { useState } from 'react';
 import { Area, CartesianGrid, ComposedChart, Legend, Line, ResponsiveContainer, Scatter, Tooltip, XAxis, YAxis } from 'recharts';
+import type { DriftParameter } from '../../lib/shared/drift-view';
 import { downloadCsv, fmt } from '../fleet/format';
-
-export interface DriftPointView {
-  kind: 'set' | 'fit';
-  id: string;
-  version: number | null;
-  state: string;
-  at: string;
-  value: number;
-  standardError: number | null;
-  change: number | null;
-  exceeded: boolean;
-  combinedSe?: number | null;
-  multiple?: number | null;
-  beyondSe?: boolean;
-}
-
-export interface DriftParameterView {
-  key: string;
-  joint?: string;
-  group: string;
-  unit: 'mm' | 'deg';
-  nominal: number | null;
-  tolerance: number | null;
-  points: DriftPointView[];
-}
 
 const day = (t: number) => new Date(t).toISOString().slice(0, 10);
 
@@ -36,7 +12,7 @@ function VersionMark(props: { cx?: number; cy?: number; payload?: { exceeded?: b
   return <circle cx={cx} cy={cy} r={4.5} fill="var(--color-accent)" />;
 }
 
-function History({ p }: { p: DriftParameterView }) {
+function History({ p }: { p: DriftParameter }) {
   const sets = p.points.filter((x) => x.kind === 'set');
   const fitsOnly = p.points.filter((x) => x.kind === 'fit');
   const data = sets.map((x) => ({
@@ -65,7 +41,7 @@ function History({ p }: { p: DriftParameterView }) {
   );
 }
 
-export default function DriftView({ serial, parameters, includeFits }: { serial: string; parameters: DriftParameterView[]; includeFits: boolean }) {
+export default function DriftView({ serial, parameters, includeFits }: { serial: string; parameters: DriftParameter[]; includeFits: boolean }) {
   const exceededKeys = parameters.filter((p) => p.points.some((x) => x.exceeded)).map((p) => p.key);
   const [selected, setSelected] = useState(exceededKeys[0] ?? parameters[0]?.key ?? '');
   const p = parameters.find((x) => x.key === selected);

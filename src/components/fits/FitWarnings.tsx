@@ -1,5 +1,6 @@
 import type { FitReport } from '../../lib/engine/fit';
 import type { FitWarning } from '../../lib/engine/warnings';
+import { HIGH_CORRELATION } from '../../lib/engine/thresholds';
 
 /**
  * The engine's warnings about a fit (excitation and noise), each with its rule and what to do. Kept apart
@@ -27,7 +28,7 @@ export default function FitWarnings({ report }: { report: Omit<FitReport, 'poses
           <p className="mb-3 text-sm text-ink-soft">
             {counted === 0 ? 'No warning. ' : `${counted} warning${counted === 1 ? '' : 's'}. `}
             Rules checked: every joint moves over at least 25 % of its range; condition number at most 1000; standard errors within the arm's limits
-            (lengths max(0.05 mm, 2 × noise); angles that move the tool point by no more than that); at most 3 strongly correlated pairs (|r| &gt; 0.95);
+            (lengths max(0.05 mm, 2 × noise); angles that move the tool point by no more than that); at most 3 strongly correlated pairs (|r| &gt; {HIGH_CORRELATION});
             residual spread at most 2 × the instrument noise ({report.options.noiseMm ?? 0.05} mm per coordinate).
           </p>
           {sorted.length > 0 && (

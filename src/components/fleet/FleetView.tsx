@@ -8,42 +8,14 @@ import {
   type SortingState,
 } from '@tanstack/react-table';
 import { CartesianGrid, ComposedChart, Legend, ReferenceLine, ResponsiveContainer, Scatter, Tooltip, XAxis, YAxis } from 'recharts';
+import type { FleetOutside, FleetParameter, FleetUnit } from '../../lib/shared/fleet-view';
 import { downloadCsv, fmt, fmtSigma, sigmaBackground } from './format';
-
-export interface FleetParameterView {
-  key: string;
-  joint?: string;
-  group: string;
-  unit: 'mm' | 'deg';
-  n: number;
-  mean: number | null;
-  sd: number | null;
-  median: number | null;
-  robustSd: number | null;
-  judged: boolean;
-  reason?: string;
-  outside: string[];
-}
-
-export interface FleetUnitView {
-  serial: string;
-  version: number;
-  needsAttention: boolean;
-  deviations: Record<string, number>;
-  /** Normal-equivalent score against the other units; lines at ± criticalScore. */
-  scores: Record<string, number>;
-  limits: Record<string, { centre: number; lower: number; upper: number; p: number }>;
-  criticalScore: number;
-  flagged: boolean;
-  outside: string[];
-  positionError: { maxMm: number; rmsMm: number };
-}
 
 export interface FleetViewProps {
   modelName: string;
-  parameters: FleetParameterView[];
-  units: FleetUnitView[];
-  outside: { serial: string; key: string; unit: 'mm' | 'deg'; deviation: number; lower: number; upper: number; score: number; p: number }[];
+  parameters: FleetParameter[];
+  units: FleetUnit[];
+  outside: FleetOutside[];
   statistics: { rule: string; alpha: number; criticalScore: number | null; judgedParameters: number };
   positionError: { samples: number; fleet: { maxMm: number; meanMaxMm: number; rmsMm: number } | null };
 }
@@ -57,7 +29,7 @@ function UnitMark(props: { cx?: number; cy?: number; payload?: { outside: boolea
   return <circle cx={cx} cy={cy} r={5} fill="var(--color-accent)" />;
 }
 
-function Distribution({ p, units, critical }: { p: FleetParameterView; units: FleetUnitView[]; critical: number | null }) {
+function Distribution({ p, units, critical }: { p: FleetParameter; units: FleetUnit[]; critical: number | null }) {
   const data = units
     .filter((u) => u.deviations[p.key] !== undefined)
     .map((u) => ({ serial: u.serial, deviation: u.deviations[p.key]!, score: u.scores[p.key] ?? null, limits: u.limits[p.key], outside: u.outside.includes(p.key) }));
@@ -110,10 +82,10 @@ function Distribution({ p, units, critical }: { p: FleetParameterView; units: Fl
   );
 }
 
-type Row = FleetUnitView;
+type Row = FleetUnit;
 const column = createColumnHelper<Row>();
 
-function Matrix({ parameters, units }: { parameters: FleetParameterView[]; units: FleetUnitView[] }) {
+function Matrix({ parameters, units }: { parameters: FleetParameter[]; units: FleetUnit[] }) {
   const [sorting, setSorting] = useState<SortingState>([]);
   const judged = parameters.filter((p) => p.judged);
   const columns = useMemo(

@@ -1,6 +1,7 @@
 import { useEffect, useRef, useState } from 'react';
 import { Bar, BarChart, CartesianGrid, Legend, ReferenceLine, ResponsiveContainer, Scatter, ScatterChart, Tooltip, XAxis, YAxis } from 'recharts';
 import { downloadCsv } from '../csv-download';
+import { ACCENT, NOMINAL, RULE } from '../chart-colours';
 import { PoseTip } from '../fits/chart-bits';
 
 export interface ChartPoint {
@@ -25,8 +26,6 @@ interface Props {
   fileBase: string;
 }
 
-const ACCENT = '#0f6e6e';
-const NOMINAL = '#8a94a6';
 const mm = (v: number) => v.toFixed(3);
 
 
@@ -93,7 +92,7 @@ function EqualScatter({ points, yKey, yTitle }: { points: ChartPoint[]; yKey: 'y
     <div ref={box} className="w-full" data-equal-scale data-plot-size={plot}>
       {width > 0 && (
         <ScatterChart width={plot + M.left + M.right + Y_AXIS_W} height={height} margin={M}>
-          <CartesianGrid stroke="#dde1e8" />
+          <CartesianGrid stroke={RULE} />
           <XAxis type="number" dataKey="x" name="x" domain={x.domain} ticks={x.ticks} allowDataOverflow height={X_AXIS_H} tickFormatter={(v: number) => v.toFixed(0)} label={{ value: 'x (mm)', position: 'insideBottom', offset: 0 }} />
           <YAxis type="number" dataKey={yKey} name={yKey} domain={y.domain} ticks={y.ticks} allowDataOverflow width={Y_AXIS_W} tickFormatter={(v: number) => v.toFixed(0)} label={{ value: yTitle, angle: -90, position: 'insideLeft', offset: 4 }} />
           <Tooltip
@@ -176,7 +175,7 @@ export default function SessionCharts({ points, errors, poseCount, rms, fileBase
         <div className="h-[280px] w-full">
           <ResponsiveContainer width="100%" height="100%">
             <BarChart data={errorData} margin={{ top: 8, right: 16, bottom: 28, left: 16 }}>
-              <CartesianGrid stroke="#dde1e8" vertical={false} />
+              <CartesianGrid stroke={RULE} vertical={false} />
               <XAxis dataKey="index" label={{ value: 'pose (file order)', position: 'insideBottom', offset: -16 }} />
               <YAxis tickFormatter={(v: number) => v.toFixed(2)} label={{ value: 'error (mm)', angle: -90, position: 'insideLeft', offset: -4 }} width={72} />
               <Tooltip

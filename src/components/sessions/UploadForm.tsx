@@ -1,23 +1,14 @@
 import { useEffect, useRef, useState } from 'react';
 import { useDropzone } from 'react-dropzone';
+import { formatBytes } from '../../lib/shared/display';
 import { openResult, useFocusWhen } from '../../lib/shared/focus';
+import type { UploadRefusal } from '../../lib/shared/upload';
 
-interface Problem {
-  file?: string;
-  line?: number;
-  column?: string;
-  field?: string;
-  message: string;
-  expected?: string;
-}
-
-interface Refusal {
-  error: string;
-  errors?: Problem[];
-  truncated?: boolean;
-  outsideLimits?: boolean;
-  existing?: { id: string; url: string };
-}
+/**
+ * What a refused upload answers (UploadRefusal); `errors` may be missing when the refusal did not come from
+ * the app (a proxy's error page, a dropped connection: only the status text is known).
+ */
+type Refusal = Omit<UploadRefusal, 'errors'> & { errors?: UploadRefusal['errors'] };
 
 interface Props {
   units: { serial: string; model: string; site: string }[];
@@ -54,8 +45,6 @@ async function postJson(path: string, body: unknown): Promise<{ status: number; 
   }
   return { status: res.status, body: parsed };
 }
-
-const formatBytes = (b: number) => (b >= 1048576 ? `${(b / 1048576).toFixed(1)} MiB` : b >= 1024 ? `${(b / 1024).toFixed(1)} KiB` : `${b} bytes`);
 
 /** Drop zone + metadata form; uploads with XMLHttpRequest so the bytes sent can be shown. */
 /** The form's own fields, by the name the API uses for them in a refusal. */

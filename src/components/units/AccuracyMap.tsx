@@ -3,7 +3,7 @@ import type { AccuracyMap as Map, AccuracyPlane } from '../../lib/engine/accurac
 import { api } from '../../lib/shared/api-client';
 import { downloadCsv } from '../csv-download';
 
-/** Same colour scale as the certificate (certificate-pdf.ts mapColour): pale → amber → deep brown. */
+/** Same colour scale as the certificate (certificate-layout.ts mapColour): pale → amber → deep brown. */
 function blend(a: number[], b: number[], t: number) {
   return `rgb(${a.map((v, i) => Math.round(v + (b[i]! - v) * Math.min(1, Math.max(0, t)))).join(',')})`;
 }

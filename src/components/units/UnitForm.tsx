@@ -61,7 +61,7 @@ export default function UnitForm({ models, initialModel }: { models: ModelChoice
       </div>
       <label className="field">
         <span>Serial number</span>
-        <input className="input" {...props('serial')} name="serial" required maxLength={64} pattern="[A-Za-z0-9][A-Za-z0-9._\-]*" placeholder="e.g. VX620-10457" autoComplete="off" />
+        <input className="input" {...props('serial')} name="serial" required maxLength={64} pattern="[A-Za-z0-9][A-Za-z0-9._\-]*" placeholder="e.g. LAB-R6-0417" autoComplete="off" />
         <Problem field="serial" />
       </label>
       <div className="grid grid-cols-2 gap-3">

@@ -1,25 +1,7 @@
 import { flexRender, getCoreRowModel, useReactTable, type ColumnDef, type PaginationState, type SortingState } from '@tanstack/react-table';
 import { useEffect, useMemo, useRef, useState } from 'react';
 import { api } from '../../lib/shared/api-client';
-
-export interface UnitListRow {
-  serial: string;
-  modelId: string;
-  model: string;
-  revision: number;
-  site: string;
-  cell: string;
-  commissionedOn: string | null;
-  needsAttention: boolean;
-  createdAt: string;
-}
-
-export interface UnitsPage {
-  items: UnitListRow[];
-  total: number;
-  page: number;
-  pageSize: number;
-}
+import type { UnitRow, UnitsPage } from '../../lib/shared/unit-list';
 
 export interface UnitsTableProps {
   initial: UnitsPage;
@@ -86,7 +68,7 @@ export default function UnitsTable({ initial, initialQuery, models }: UnitsTable
     };
   }, [sorting, pagination, query, model]);
 
-  const columns = useMemo<ColumnDef<UnitListRow>[]>(
+  const columns = useMemo<ColumnDef<UnitRow>[]>(
     () => [
       {
         id: 'serial',
@@ -139,7 +121,7 @@ export default function UnitsTable({ initial, initialQuery, models }: UnitsTable
       <div className="flex flex-wrap items-end gap-3">
         <label className="field min-w-60 flex-1">
           <span>Search serial number, site, cell or model</span>
-          <input className="input" type="search" value={search} onChange={(e) => setSearch(e.target.value)} placeholder="e.g. VX or Plant North" data-units-search />
+          <input className="input" type="search" value={search} onChange={(e) => setSearch(e.target.value)} placeholder="e.g. R6 or Plant North" data-units-search />
         </label>
         <label className="field">
           <span>Arm model</span>

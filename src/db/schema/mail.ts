@@ -3,7 +3,8 @@ import { createdAt, id } from './columns';
 
 /**
  * Outgoing e-mail. Every message is written here first (in the same transaction as the change that causes
- * it) and delivered by the sender loop, so an approval stands even while the mail server is down.
+ * it) and delivered by a job of the mail queue (src/lib/server/mail.ts), so an approval stands even while the
+ * mail server is down.
  */
 export const mailOutbox = pgTable(
   'mail_outbox',

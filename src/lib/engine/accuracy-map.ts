@@ -16,7 +16,8 @@
  */
 import { compileArm, createArmData, forwardKinematics, jointsToInternal } from './kinematics';
 import type { ArmGeometry } from './types';
-import { jointRanges, seededRandom } from './workspace';
+import { seededRandom } from './random';
+import { jointRanges } from './workspace';
 
 export type PlaneAxes = 'xy' | 'xz' | 'yz';
 

@@ -18,9 +18,11 @@
  */
 import type { ArmGeometry, FrameSpec, InputProblem } from './types';
 import { EngineInputError } from './types';
-import { anglesFromRotation, IkSolver, rotationFromAngles, type IkOptions, type IkResult, type IkStatus, type IkTarget } from './ik';
+import { IkSolver, type IkOptions, type IkTarget } from './ik';
+import type { IkResult, IkStatus } from './ik-status';
+import { anglesFromRotation, rotationFromAngles } from './rotations';
 import type { CompensatedRow, ParsedProgram } from './program-csv';
-import { seededRandom } from './workspace';
+import { seededRandom } from './random';
 
 export type ProgramFrame = 'base' | 'measurement';
 

@@ -14,7 +14,7 @@
  *
  * Observability. Singular values of the identified columns, with lengths in mm and angles multiplied by a
  * characteristic length L (Hollerbach & Wampler 1996), are computed as the square roots of the
- * eigenvalues of the scaled normal matrix (cyclic Jacobi on a flat array, which is accurate for the small
+ * eigenvalues of the scaled normal matrix (cyclic Jacobi on a flat array, linalg.ts, which is accurate for the small
  * eigenvalues too — Demmel & Veselić 1992; checked against ml-matrix's EVD in the tests). Squaring limits the resolvable ratio
  * to about √ε ≈ 10⁻⁸, far beyond the conditioning of a kept set (r_j ≥ 10⁻⁹ per column). Indices, with m the
  * number of poses and σ_1 ≥ … ≥ σ_p:
@@ -25,6 +25,8 @@
  */
 import type { ArmGeometry } from './types';
 import type { ParameterInfo } from './parameters';
+import { symmetricEigenvalues } from './linalg';
+import { FRAME_SIZE, baseOffset, toolOffset } from './layout';
 
 export const RANK_TOLERANCE = 1e-9;
 /** Columns shorter than this fraction of the longest scaled column do not move the point at all. */
@@ -43,9 +45,10 @@ export interface IdentifiabilityResult {
   fixed: { candidate: number; fixed: FixedParameter }[];
 }
 
+/** Order in which candidates enter the selection: base (0..5), tool position (6..8), then the joints. */
 function priority(info: ParameterInfo, jointCount: number): number {
-  if (info.owner === 'base') return info.index - 5 * jointCount; // 0..5
-  if (info.owner === 'tool') return 6 + info.index - 5 * jointCount - 6; // 6..8
+  if (info.owner === 'base') return info.index - baseOffset(jointCount);
+  if (info.owner === 'tool') return FRAME_SIZE + info.index - toolOffset(jointCount);
   return 20 + info.index;
 }
 
@@ -217,61 +220,4 @@ export function observability(A: Float64Array, infos: ParameterInfo[], character
     rank,
     parameterCount,
   };
-}
-
-/**
- * Eigenvalues of a symmetric p×p row-major matrix by the cyclic Jacobi method (Golub & Van Loan,
- * "Matrix Computations", §8.5): rotations zero each off-diagonal entry in turn until the off-diagonal
- * mass is below 1e-30 of the diagonal's. Unsorted.
- */
-export function symmetricEigenvalues(S: Float64Array, p: number): Float64Array {
-  const a = Float64Array.from(S);
-  for (let sweep = 0; sweep < 60; sweep++) {
-    let off = 0, diag = 0;
-    for (let i = 0; i < p; i++) {
-      diag += a[i * p + i] * a[i * p + i];
-      for (let j = i + 1; j < p; j++) off += a[i * p + j] * a[i * p + j];
-    }
-    if (off <= 1e-30 * diag || off === 0) break;
-    for (let i = 0; i < p - 1; i++) {
-      for (let j = i + 1; j < p; j++) {
-        const aij = a[i * p + j];
-        if (aij === 0) continue;
-        const theta = (a[j * p + j] - a[i * p + i]) / (2 * aij);
-        const t = (theta >= 0 ? 1 : -1) / (Math.abs(theta) + Math.sqrt(theta * theta + 1));
-        const c = 1 / Math.sqrt(t * t + 1), s = t * c;
-        // A ← Jᵀ A J: columns i, j then rows i, j. Outside the 2×2 block the column and the row updates
-        // touch different entries, so they share one loop; the block itself keeps the columns-then-rows order.
-        const pi = i * p, pj = j * p;
-        for (let k = 0; k < p; k++) {
-          if (k === i || k === j) continue;
-          const pk = k * p;
-          const aki = a[pk + i], akj = a[pk + j];
-          a[pk + i] = c * aki - s * akj;
-          a[pk + j] = s * aki + c * akj;
-          const aik = a[pi + k], ajk = a[pj + k];
-          a[pi + k] = c * aik - s * ajk;
-          a[pj + k] = s * aik + c * ajk;
-        }
-        const aii = a[pi + i], aij2 = a[pi + j], aji = a[pj + i], ajj = a[pj + j];
-        const cii = c * aii - s * aij2, cij = s * aii + c * aij2;
-        const cji = c * aji - s * ajj, cjj = s * aji + c * ajj;
-        a[pi + i] = c * cii - s * cji;
-        a[pj + i] = s * cii + c * cji;
-        a[pi + j] = c * cij - s * cjj;
-        a[pj + j] = s * cij + c * cjj;
-      }
-    }
-  }
-  const out = new Float64Array(p);
-  for (let i = 0; i < p; i++) out[i] = a[i * p + i];
-  return out;
-}
-
-/** Sub-matrix of A (p×p row-major) on the index list `idx`. */
-export function subMatrix(A: Float64Array, p: number, idx: number[]): Float64Array {
-  const k = idx.length;
-  const out = new Float64Array(k * k);
-  for (let a = 0; a < k; a++) for (let b = 0; b < k; b++) out[a * k + b] = A[idx[a] * p + idx[b]];
-  return out;
 }

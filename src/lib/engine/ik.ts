@@ -23,12 +23,14 @@
  * but its result record.
  */
 import type { ArmGeometry, FrameSpec } from './types';
-import { compileArm, createArmData, forwardKinematics, jointsToInternal, type ArmData, type ArmModel } from './kinematics';
+import {
+  compileArm, createArmData, forwardKinematics, jointsToInternal, type ArmData, type ArmModel, type ForwardKinematicsOptions,
+} from './kinematics';
 import { DEG } from './parameters';
-
-export type IkStatus = 'reached' | 'unreachable' | 'outside-limits' | 'singular' | 'jump';
-
-export const IK_STATUSES: readonly IkStatus[] = ['reached', 'singular', 'jump', 'outside-limits', 'unreachable'];
+import { jointParam } from './layout';
+import { choleskyInPlace, choleskySolveInPlace, symmetricEigenvaluesInPlace } from './linalg';
+import { rotationFromAngles, rotationVector } from './rotations';
+import { distanceWords, outsideLimits, reachedStatus, unreachable, type IkResult, type IkSeed } from './ik-status';
 
 export interface IkOptions {
   /** Position tolerance of "reached" (mm). Default 1e-9. */
@@ -68,81 +70,6 @@ export interface IkTarget {
   rotation?: ArrayLike<number>;
 }
 
-export interface IkResult {
-  status: IkStatus;
-  /** Joint values found (deg for revolute, mm for prismatic). */
-  q: number[];
-  /** Remaining distance |p* − p| (mm). */
-  positionError: number;
-  /** Remaining orientation error (deg); 0 for position-only targets. */
-  orientationError: number;
-  iterations: number;
-  /** Smallest singular value of the normalised Jacobian at q (dimensionless). */
-  smallestSingularValue: number;
-  /** For "outside-limits": the joint and the value it would need. */
-  limit?: { joint: string; needed: number; min?: number; max?: number };
-  /** For "jump": the joint and its change from the previous solution (deg / mm). */
-  jump?: { joint: string; change: number };
-  /** The status in plain words. */
-  message: string;
-}
-
-export interface IkSeed {
-  /** Start configuration (deg / mm). */
-  q: ArrayLike<number>;
-  /** The previous target's solution, for the jump check (deg / mm); absent ⇒ no check. */
-  previous?: ArrayLike<number>;
-  /** How far the program itself moves from the previous target (deg / mm per joint), subtracted before the jump check. */
-  intendedChange?: ArrayLike<number>;
-}
-
-/** Rotation matrix (row-major) of R = Rz(rz)·Ry(ry)·Rx(rx), angles in degrees. */
-export function rotationFromAngles(rx: number, ry: number, rz: number, out = new Float64Array(9)): Float64Array {
-  const cx = Math.cos(rx * DEG), sx = Math.sin(rx * DEG);
-  const cy = Math.cos(ry * DEG), sy = Math.sin(ry * DEG);
-  const cz = Math.cos(rz * DEG), sz = Math.sin(rz * DEG);
-  out[0] = cz * cy; out[1] = cz * sy * sx - sz * cx; out[2] = cz * sy * cx + sz * sx;
-  out[3] = sz * cy; out[4] = sz * sy * sx + cz * cx; out[5] = sz * sy * cx - cz * sx;
-  out[6] = -sy;     out[7] = cy * sx;                out[8] = cy * cx;
-  return out;
-}
-
-/** Angles (deg) of R = Rz(rz)·Ry(ry)·Rx(rx) for a row-major rotation; ry in [−90°, 90°]. */
-export function anglesFromRotation(R: ArrayLike<number>): { rx: number; ry: number; rz: number } {
-  const cy = Math.hypot(R[0], R[3]);
-  if (cy > 1e-12) {
-    return { rx: Math.atan2(R[7], R[8]) / DEG, ry: Math.atan2(-R[6], cy) / DEG, rz: Math.atan2(R[3], R[0]) / DEG };
-  }
-  // Gimbal lock (ry = ±90°): only rz − rx (or rz + rx) is defined; put it all in rx.
-  return { rx: Math.atan2(-R[5], R[4]) / DEG, ry: Math.atan2(-R[6], cy) / DEG, rz: 0 };
-}
-
-/**
- * Rotation vector ω (rad) of a row-major rotation M (axis·angle, angle in [0, π]), into out[o..o+2].
- * Near π the axis comes from the diagonal (the skew part vanishes there).
- */
-export function rotationVector(M: ArrayLike<number>, out: Float64Array, o = 0): void {
-  const vx = M[7] - M[5], vy = M[2] - M[6], vz = M[3] - M[1];
-  const s = 0.5 * Math.hypot(vx, vy, vz);
-  const c = 0.5 * (M[0] + M[4] + M[8] - 1);
-  const angle = Math.atan2(s, c);
-  if (s > 1e-7 || c > 0) {
-    // angle / sin(angle) → 1 as angle → 0.
-    const f = s > 1e-12 ? angle / (2 * s) : 0.5;
-    out[o] = f * vx; out[o + 1] = f * vy; out[o + 2] = f * vz;
-    return;
-  }
-  // angle ≈ π: M ≈ 2uuᵀ − I.
-  let ux = Math.sqrt(Math.max(0, (M[0] + 1) / 2));
-  let uy = Math.sqrt(Math.max(0, (M[4] + 1) / 2));
-  let uz = Math.sqrt(Math.max(0, (M[8] + 1) / 2));
-  if (ux >= uy && ux >= uz) { uy = Math.sign(M[1] + M[3] || 1) * uy; uz = Math.sign(M[2] + M[6] || 1) * uz; }
-  else if (uy >= uz) { ux = Math.sign(M[1] + M[3] || 1) * ux; uz = Math.sign(M[5] + M[7] || 1) * uz; }
-  else { ux = Math.sign(M[2] + M[6] || 1) * ux; uy = Math.sign(M[5] + M[7] || 1) * uy; }
-  const k = angle / (Math.hypot(ux, uy, uz) || 1);
-  out[o] = k * ux; out[o + 1] = k * uy; out[o + 2] = k * uz;
-}
-
 /** A length scale of an arm (mm): the sum of its link lengths and offsets and the tool point's distance. */
 export function armLengthScale(geometry: ArmGeometry): number {
   let s = 0;
@@ -153,37 +80,6 @@ export function armLengthScale(geometry: ArmGeometry): number {
   return Math.max(s, 1);
 }
 
-/** Symmetric eigenvalues of a k×k row-major matrix (cyclic Jacobi), into `out`; `A` is destroyed. */
-export function jacobiEigenvalues(A: Float64Array, k: number, out: Float64Array): void {
-  for (let sweep = 0; sweep < 50; sweep++) {
-    let off = 0;
-    for (let i = 0; i < k; i++) for (let j = i + 1; j < k; j++) off += A[i * k + j] * A[i * k + j];
-    if (off < 1e-30) break;
-    for (let p = 0; p < k; p++) {
-      for (let q = p + 1; q < k; q++) {
-        const apq = A[p * k + q];
-        if (Math.abs(apq) < 1e-300) continue;
-        const theta = (A[q * k + q] - A[p * k + p]) / (2 * apq);
-        const t = Math.sign(theta || 1) / (Math.abs(theta) + Math.sqrt(theta * theta + 1));
-        const c = 1 / Math.sqrt(t * t + 1), s = t * c;
-        for (let r = 0; r < k; r++) {
-          const arp = A[r * k + p], arq = A[r * k + q];
-          A[r * k + p] = c * arp - s * arq;
-          A[r * k + q] = s * arp + c * arq;
-        }
-        for (let r = 0; r < k; r++) {
-          const apr = A[p * k + r], aqr = A[q * k + r];
-          A[p * k + r] = c * apr - s * aqr;
-          A[q * k + r] = s * apr + c * aqr;
-        }
-      }
-    }
-  }
-  for (let i = 0; i < k; i++) out[i] = A[i * k + i];
-}
-
-const fmt = (v: number, digits: number) => (Math.abs(v) > 0 && Math.abs(v) < Math.pow(10, -digits) ? v.toExponential(1) : v.toFixed(digits));
-
 export class IkSolver {
   readonly model: ArmModel;
   readonly data: ArmData;
@@ -192,6 +88,9 @@ export class IkSolver {
   private readonly lo: Float64Array;
   private readonly hi: Float64Array;
   private readonly frames: Float64Array;
+  /** forwardKinematics options, made once: the tool frame, and the tool frame with every axis and pivot. */
+  private readonly withFrames: ForwardKinematicsOptions;
+  private readonly withJacobian: ForwardKinematicsOptions;
   private readonly q: Float64Array;
   private readonly qTrial: Float64Array;
   private readonly J: Float64Array; // 6 × n row-major
@@ -227,6 +126,8 @@ export class IkSolver {
       this.hi[i] = j.max !== undefined ? j.max * unit : Infinity;
     });
     this.frames = new Float64Array(16 * (n + 2));
+    this.withFrames = { frames: this.frames };
+    this.withJacobian = { frames: this.frames, withDerivatives: true };
     this.q = new Float64Array(n);
     this.qTrial = new Float64Array(n);
     this.J = new Float64Array(6 * n);
@@ -244,7 +145,7 @@ export class IkSolver {
   /** Tool frame at joint values (deg / mm): position (mm) and row-major rotation, in the base's frame. */
   pose(qBoundary: ArrayLike<number>): { position: [number, number, number]; rotation: Float64Array } {
     jointsToInternal(this.model, qBoundary, this.qTrial);
-    forwardKinematics(this.model, this.data, this.qTrial, 0, false, this.frames);
+    forwardKinematics(this.model, this.data, this.qTrial, this.withFrames);
     const f = this.frames, o = 16 * (this.model.n + 1);
     return {
       position: [f[o + 3], f[o + 7], f[o + 11]],
@@ -258,7 +159,7 @@ export class IkSolver {
    */
   private evaluate(target: IkTarget, jacobian: boolean): number {
     const model = this.model, data = this.data, n = model.n, f = this.frames, o = 16 * (n + 1);
-    forwardKinematics(model, data, this.qTrial, 0, jacobian, this.frames);
+    forwardKinematics(model, data, this.qTrial, jacobian ? this.withJacobian : this.withFrames);
     const p = data.point, t = target.position, r = this.r;
     r[0] = t[0] - p[0]; r[1] = t[1] - p[1]; r[2] = t[2] - p[2];
     let cost = r[0] * r[0] + r[1] * r[1] + r[2] * r[2];
@@ -281,11 +182,11 @@ export class IkSolver {
       const px = p[0], py = p[1], pz = p[2];
       for (let i = 0; i < n; i++) {
         if (pr[i]) {
-          const a = 3 * (5 * i + 2);
+          const a = 3 * jointParam(i, 'd');
           J[i] = ax[a]; J[n + i] = ax[a + 1]; J[2 * n + i] = ax[a + 2];
           J[3 * n + i] = 0; J[4 * n + i] = 0; J[5 * n + i] = 0;
         } else {
-          const a = 3 * (5 * i + 3);
+          const a = 3 * jointParam(i, 'theta');
           const ux = ax[a], uy = ax[a + 1], uz = ax[a + 2];
           const dx = px - pv[a], dy = py - pv[a + 1], dz = pz - pv[a + 2];
           J[i] = uy * dz - uz * dy; J[n + i] = uz * dx - ux * dz; J[2 * n + i] = ux * dy - uy * dx;
@@ -338,9 +239,9 @@ export class IkSolver {
         // (A + mu I) dq = g by Cholesky.
         for (let k = 0; k < n * n; k++) L[k] = A[k];
         for (let a = 0; a < n; a++) L[a * n + a] += mu;
-        if (!cholesky(L, n)) { mu *= 10; continue; }
+        if (!choleskyInPlace(L, n)) { mu *= 10; continue; }
         for (let a = 0; a < n; a++) dq[a] = g[a];
-        choleskySolve(L, n, dq);
+        choleskySolveInPlace(L, n, dq);
         for (let a = 0; a < n; a++) this.qTrial[a] = this.q[a] + dq[a];
         this.clamp(this.qTrial);
         const trial = this.evaluate(target, false);
@@ -387,7 +288,7 @@ export class IkSolver {
         G[a * k + b] = t;
       }
     }
-    jacobiEigenvalues(G, k, this.eig);
+    symmetricEigenvaluesInPlace(G, k, this.eig);
     let least = Infinity;
     for (let i = 0; i < k; i++) least = Math.min(least, this.eig[i]);
     return Math.sqrt(Math.max(0, least));
@@ -412,7 +313,7 @@ export class IkSolver {
     const sigma = this.smallestSingularValue(m);
     const q = this.boundary(this.q);
     const base = { q, positionError: e.position, orientationError: e.orientation, iterations, smallestSingularValue: sigma };
-    const far = `${fmt(e.position, 3)} mm${m === 6 ? ` and ${fmt(e.orientation, 4)}°` : ''}`;
+    const far = distanceWords(e.position, m === 6 ? e.orientation : null);
     if (!reached(e)) {
       // Would the target be reached without the limits? Then the limits are what stands in the way.
       if (o.respectLimits) {
@@ -434,14 +335,8 @@ export class IkSolver {
           }
           if (reached(fe)) {
             const needed = this.boundary(this.q)[worst];
-            const j = joints[worst];
-            const unit = j.type === 'prismatic' ? ' mm' : '°';
             this.q.set(bounded);
-            return {
-              ...base, iterations, status: 'outside-limits',
-              limit: { joint: j.name, needed, min: j.min, max: j.max },
-              message: `outside joint limits: needs ${j.name} at ${fmt(needed, 4)}${unit} (limits ${j.min ?? '−∞'}…${j.max ?? '∞'}${unit}); within the limits the closest configuration found stays ${far} from the target`,
-            };
+            return outsideLimits({ ...base, iterations }, joints[worst], needed, far);
           }
           this.q.set(bounded);
           // restore residual of the bounded solution
@@ -450,14 +345,14 @@ export class IkSolver {
           e = errors();
         }
       }
-      return { ...base, iterations, status: 'unreachable', message: `unreachable: the closest configuration found stays ${far} from the target` };
+      return unreachable({ ...base, iterations }, far);
     }
     return this.finish(target, seed, m, iterations, sigma);
   }
 
   /** Status of a reached configuration in this.q (residual and Jacobian evaluated there). */
   private finish(target: IkTarget, seed: IkSeed, m: number, iterations: number, sigmaKnown?: number): IkResult {
-    const n = this.model.n, o = this.options, joints = this.geometry.joints;
+    const o = this.options;
     this.qTrial.set(this.q);
     this.evaluate(target, true);
     const sigma = sigmaKnown ?? this.smallestSingularValue(m);
@@ -467,59 +362,7 @@ export class IkSolver {
       positionError: Math.hypot(this.r[0], this.r[1], this.r[2]),
       orientationError: m === 6 ? Math.hypot(this.r[3], this.r[4], this.r[5]) / o.lengthScale / DEG : 0,
     };
-    const singular = sigma < o.singularThreshold;
-    const singularWords = `smallest singular value ${sigma.toPrecision(3)} (threshold ${o.singularThreshold})`;
-    // A jump is reported before a singularity (it is the larger motion on the cell); the message names both.
-    if (seed.previous) {
-      let worst = -1, ratio = 1, change = 0;
-      for (let i = 0; i < n; i++) {
-        const d = q[i] - seed.previous[i] - (seed.intendedChange ? seed.intendedChange[i] : 0);
-        const limit = joints[i].type === 'prismatic' ? o.jumpMillimetres : o.jumpDegrees;
-        if (Math.abs(d) / limit > ratio) { ratio = Math.abs(d) / limit; worst = i; change = d; }
-      }
-      if (worst >= 0) {
-        const j = joints[worst];
-        const unit = j.type === 'prismatic' ? ' mm' : '°';
-        return {
-          ...base, status: 'jump', jump: { joint: j.name, change },
-          message: `configuration jump: ${j.name} changes by ${fmt(change, 4)}${unit} from the previous target (threshold ${j.type === 'prismatic' ? o.jumpMillimetres : o.jumpDegrees}${unit})${singular ? `; also near a singularity: ${singularWords}` : ''}`,
-        };
-      }
-    }
-    if (singular) {
-      return { ...base, status: 'singular', message: `near a singularity: ${singularWords}; the joint values are ill-determined here` };
-    }
-    return { ...base, status: 'reached', message: 'reached' };
-  }
-}
-
-/** In-place Cholesky of an SPD n×n row-major matrix (lower factor); false when not positive definite. */
-function cholesky(L: Float64Array, n: number): boolean {
-  for (let j = 0; j < n; j++) {
-    let d = L[j * n + j];
-    for (let k = 0; k < j; k++) d -= L[j * n + k] * L[j * n + k];
-    if (!(d > 0)) return false;
-    const djj = Math.sqrt(d);
-    L[j * n + j] = djj;
-    for (let i = j + 1; i < n; i++) {
-      let s = L[i * n + j];
-      for (let k = 0; k < j; k++) s -= L[i * n + k] * L[j * n + k];
-      L[i * n + j] = s / djj;
-    }
-  }
-  return true;
-}
-
-function choleskySolve(L: Float64Array, n: number, x: Float64Array): void {
-  for (let i = 0; i < n; i++) {
-    let s = x[i];
-    for (let k = 0; k < i; k++) s -= L[i * n + k] * x[k];
-    x[i] = s / L[i * n + i];
-  }
-  for (let i = n - 1; i >= 0; i--) {
-    let s = x[i];
-    for (let k = i + 1; k < n; k++) s -= L[k * n + i] * x[k];
-    x[i] = s / L[i * n + i];
+    return reachedStatus(base, this.geometry.joints, seed, o);
   }
 }
 

@@ -3,7 +3,10 @@
  * Pure TypeScript (no Astro, database or server imports in the numerical modules).
  */
 export * from './types';
+export * from './layout';
 export * from './parameters';
+export * from './linalg';
+export * from './random';
 export * from './kinematics';
 export * from './jacobian';
 export * from './registration';
@@ -14,6 +17,7 @@ export * from './stats';
 export * from './validation';
 export { jointRanges, workspaceDifference, type WorkspaceDifference } from './workspace';
 export * from './fit';
+export * from './fit-problem';
 export * from './planner';
 export * from './geometry';
 export * from './session-csv';
@@ -21,5 +25,6 @@ export * from './iso9283';
 export * from './warnings';
 export * from './rotations';
 export * from './ik';
+export * from './ik-status';
 export * from './compensate';
 export * from './program-csv';

@@ -1,7 +1,7 @@
 /**
  * Analytic Jacobian of the measured point with respect to the geometric parameters.
  *
- * After forwardKinematics(…, derivatives = true) every parameter j has an axis u_j and a pivot c_j
+ * After forwardKinematics(…, { withDerivatives: true }) every parameter j has an axis u_j and a pivot c_j
  * (measurement frame). Its column is u_j for a translation and u_j × (p − c_j) for a rotation
  * (units mm/mm and mm/rad). Checked against central finite differences in tests/engine/jacobian.test.ts.
  */
@@ -78,8 +78,10 @@ export function predictPoints(model: ArmModel, data: ArmData, v: ArrayLike<numbe
   setParameters(model, data, v);
   const n = model.n, pt = data.point, m = poses.measured;
   const fk = forwardKinematics;
+  const at = { offset: 0, jointCos: poses.cq, jointSin: poses.sq };
   for (let i = 0; i < poses.count; i++) {
-    fk(model, data, poses.q, i * n, false, undefined, poses.cq, poses.sq);
+    at.offset = i * n;
+    fk(model, data, poses.q, at);
     out[3 * i] = pt[0];
     out[3 * i + 1] = pt[1];
     out[3 * i + 2] = pt[2];
@@ -123,6 +125,7 @@ export function accumulateNormalEquations(
   const motion = model.motion, ax = data.axis, pv = data.pivot;
   const R = 3 * BLOCK, Jb = work.Jb, rb = work.rb;
   const fk = forwardKinematics;
+  const at = { offset: 0, withDerivatives: true, jointCos: poses.cq, jointSin: poses.sq };
   const pp = work.pp, Ap = work.Ap;
   Ap.fill(0);
   g.fill(0);
@@ -131,7 +134,8 @@ export function accumulateNormalEquations(
   for (let i = 0; i < poses.count; i++) {
     const wi = w[i];
     if (wi === 0) continue;
-    fk(model, data, poses.q, i * n, true, undefined, poses.cq, poses.sq);
+    at.offset = i * n;
+    fk(model, data, poses.q, at);
     const sw = wi === 1 ? 1 : Math.sqrt(wi);
     const px = pt[0], py = pt[1], pz = pt[2];
     const r0 = px - m[3 * i], r1 = py - m[3 * i + 1], r2 = pz - m[3 * i + 2];
@@ -195,9 +199,4 @@ function flushBlock(Jb: Float64Array, rb: Float64Array, rows: number, p: number,
       Ap[r2] += s20; Ap[r2 + 1] += s21; Ap[r2 + 2] += s22;
     }
   }
-}
-
-/** Mirror the upper triangle of a p×p row-major matrix into the lower one. */
-export function symmetrize(A: Float64Array, p: number): void {
-  for (let a = 0; a < p; a++) for (let b = a + 1; b < p; b++) A[b * p + a] = A[a * p + b];
 }

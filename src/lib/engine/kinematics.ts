@@ -18,6 +18,12 @@
  */
 import type { ArmGeometry, Convention } from './types';
 import { DEG, geometryToVector, parameterLayout, type ParameterLayout } from './parameters';
+import { FRAME_FIELDS, FRAME_SIZE, FRAME_SLOT, JOINT_SLOT, JOINT_STRIDE, baseOffset, jointOffset, toolOffset } from './layout';
+
+// Local copies of the layout's joint stride and slots for the per-pose loop: imported bindings can be
+// getters after transpilation (tsx), which costs a call per use (as in jacobian.ts).
+const STRIDE = JOINT_STRIDE;
+const SLOT_A = JOINT_SLOT.a, SLOT_ALPHA = JOINT_SLOT.alpha, SLOT_D = JOINT_SLOT.d, SLOT_THETA = JOINT_SLOT.theta, SLOT_BETA = JOINT_SLOT.beta;
 
 /** How a parameter moves the point: 0 not at all, 1 translation along axis, 2 rotation about axis through pivot. */
 export const MOTION_NONE = 0;
@@ -73,17 +79,19 @@ export function compileArm(geometry: ArmGeometry): ArmModel {
   geometry.joints.forEach((j, i) => (prismatic[i] = j.type === 'prismatic' ? 1 : 0));
   const motion = new Uint8Array(layout.size);
   for (let i = 0; i < n; i++) {
-    motion[5 * i] = MOTION_TRANSLATION; // a
-    motion[5 * i + 1] = MOTION_ROTATION; // alpha
-    motion[5 * i + 2] = MOTION_TRANSLATION; // d
-    motion[5 * i + 3] = MOTION_ROTATION; // theta
-    motion[5 * i + 4] = MOTION_ROTATION; // beta
+    const p = jointOffset(i);
+    motion[p + JOINT_SLOT.a] = MOTION_TRANSLATION;
+    motion[p + JOINT_SLOT.alpha] = MOTION_ROTATION;
+    motion[p + JOINT_SLOT.d] = MOTION_TRANSLATION;
+    motion[p + JOINT_SLOT.theta] = MOTION_ROTATION;
+    motion[p + JOINT_SLOT.beta] = MOTION_ROTATION;
   }
-  for (let k = 0; k < 3; k++) {
-    motion[5 * n + k] = MOTION_TRANSLATION;
-    motion[5 * n + 3 + k] = MOTION_ROTATION;
-    motion[5 * n + 6 + k] = MOTION_TRANSLATION;
-    motion[5 * n + 9 + k] = MOTION_NONE; // tool rotation does not move the tool point
+  const b = baseOffset(n), t = toolOffset(n);
+  for (const field of FRAME_FIELDS) {
+    const k = FRAME_SLOT[field], rotation = k >= FRAME_SLOT.rx;
+    motion[b + k] = rotation ? MOTION_ROTATION : MOTION_TRANSLATION;
+    // The tool rotation does not move the tool point.
+    motion[t + k] = rotation ? MOTION_NONE : MOTION_TRANSLATION;
   }
   return { convention: geometry.convention, n, prismatic, layout, size: layout.size, motion, nominal: geometryToVector(geometry) };
 }
@@ -114,17 +122,20 @@ export function setParameters(model: ArmModel, data: ArmData, v: ArrayLike<numbe
   const dv = data.v;
   for (let j = 0; j < model.size; j++) dv[j] = v[j];
   for (let i = 0; i < n; i++) {
-    data.ca[i] = Math.cos(dv[5 * i + 1]);
-    data.sa[i] = Math.sin(dv[5 * i + 1]);
-    data.cb[i] = Math.cos(dv[5 * i + 4]);
-    data.sb[i] = Math.sin(dv[5 * i + 4]);
-    data.ct[i] = Math.cos(dv[5 * i + 3]);
-    data.st[i] = Math.sin(dv[5 * i + 3]);
+    const p = STRIDE * i;
+    data.ca[i] = Math.cos(dv[p + SLOT_ALPHA]);
+    data.sa[i] = Math.sin(dv[p + SLOT_ALPHA]);
+    data.cb[i] = Math.cos(dv[p + SLOT_BETA]);
+    data.sb[i] = Math.sin(dv[p + SLOT_BETA]);
+    data.ct[i] = Math.cos(dv[p + SLOT_THETA]);
+    data.st[i] = Math.sin(dv[p + SLOT_THETA]);
   }
-  const b = 5 * n;
-  const cx = Math.cos(dv[b + 3]), sx = Math.sin(dv[b + 3]);
-  const cy = Math.cos(dv[b + 4]), sy = Math.sin(dv[b + 4]);
-  const cz = Math.cos(dv[b + 5]), sz = Math.sin(dv[b + 5]);
+  const b = baseOffset(n);
+  const bx = b + FRAME_SLOT.x, by = b + FRAME_SLOT.y, bz = b + FRAME_SLOT.z;
+  const brx = b + FRAME_SLOT.rx, bry = b + FRAME_SLOT.ry, brz = b + FRAME_SLOT.rz;
+  const cx = Math.cos(dv[brx]), sx = Math.sin(dv[brx]);
+  const cy = Math.cos(dv[bry]), sy = Math.sin(dv[bry]);
+  const cz = Math.cos(dv[brz]), sz = Math.sin(dv[brz]);
   // R = Rz(rz)·Ry(ry)·Rx(rx), row-major.
   const R = data.baseR;
   R[0] = cz * cy; R[1] = cz * sy * sx - sz * cx; R[2] = cz * sy * cx + sz * sx;
@@ -133,45 +144,55 @@ export function setParameters(model: ArmModel, data: ArmData, v: ArrayLike<numbe
   // Base motions do not depend on the pose: translations along the measurement axes; rz about the
   // measurement z, ry about Rz·e_y, rx about Rz·Ry·e_x, all through the base origin.
   const ax = data.axis, pv = data.pivot;
-  for (let k = 0; k < 6; k++) {
+  for (let k = 0; k < FRAME_SIZE; k++) {
     const j = 3 * (b + k);
-    pv[j] = dv[b]; pv[j + 1] = dv[b + 1]; pv[j + 2] = dv[b + 2];
+    pv[j] = dv[bx]; pv[j + 1] = dv[by]; pv[j + 2] = dv[bz];
   }
-  ax.fill(0, 3 * b, 3 * (b + 6));
-  ax[3 * b] = 1; ax[3 * (b + 1) + 1] = 1; ax[3 * (b + 2) + 2] = 1;
-  ax[3 * (b + 5) + 2] = 1;
+  ax.fill(0, 3 * b, 3 * (b + FRAME_SIZE));
+  ax[3 * bx] = 1; ax[3 * by + 1] = 1; ax[3 * bz + 2] = 1;
+  ax[3 * brz + 2] = 1;
   if (data.baseIncrements) {
     // Small rotations about the measurement x, y, z axes.
-    ax[3 * (b + 3)] = 1; ax[3 * (b + 4) + 1] = 1;
+    ax[3 * brx] = 1; ax[3 * bry + 1] = 1;
   } else {
-    ax[3 * (b + 4)] = -sz; ax[3 * (b + 4) + 1] = cz;
-    ax[3 * (b + 3)] = cz * cy; ax[3 * (b + 3) + 1] = sz * cy; ax[3 * (b + 3) + 2] = -sy;
+    ax[3 * bry] = -sz; ax[3 * bry + 1] = cz;
+    ax[3 * brx] = cz * cy; ax[3 * brx + 1] = sz * cy; ax[3 * brx + 2] = -sy;
   }
-  ax.fill(0, 3 * (b + 9), 3 * (b + 12));
+  // Tool rotations do not move the point.
+  const t = toolOffset(n);
+  ax.fill(0, 3 * (t + FRAME_SLOT.rx), 3 * (t + FRAME_SIZE));
+}
+
+/** What forwardKinematics reads besides the joint values, and what it records besides the point. */
+export interface ForwardKinematicsOptions {
+  /** Where this pose's n joint values start in q (and in jointCos / jointSin): many poses share one flat array. Default 0. */
+  offset?: number;
+  /** Also record every parameter's axis and pivot (data.axis, data.pivot: what pointJacobian reads). Default false. */
+  withDerivatives?: boolean;
+  /** Receives the 4×4 row-major frames base, joint 1 … joint n, tool in the measurement frame (length 16·(n + 2)). */
+  frames?: Float64Array;
+  /**
+   * cos and sin of every joint value at the same offsets as q (jointTrig): the joint angle's cos/sin then
+   * come from the angle-addition formulas instead of two transcendental calls per joint and pose.
+   */
+  jointCos?: Float64Array;
+  jointSin?: Float64Array;
 }
 
 /**
- * Forward kinematics of one pose. q in internal units (rad for revolute, mm for prismatic), length n.
- * Fills data.point; with `derivatives` also every parameter's axis and pivot; with `frames` (length
- * 16·(n + 2)) the 4×4 row-major frames base, joint 1 … joint n, tool in the measurement frame.
- * With `cq`, `sq` (cos and sin of every q at the same offsets, see jointTrig) the joint angle's cos/sin
- * come from the angle-addition formulas instead of two transcendental calls per joint and pose.
+ * Forward kinematics of one pose. q in internal units (rad for revolute, mm for prismatic), n values from
+ * options.offset. Fills data.point, and what the options ask for. Loops over many poses pass one options
+ * object and move its offset, so the call allocates nothing.
  */
-export function forwardKinematics(
-  model: ArmModel,
-  data: ArmData,
-  q: ArrayLike<number>,
-  qOffset = 0,
-  derivatives = false,
-  frames?: Float64Array,
-  cq?: Float64Array,
-  sq?: Float64Array,
-): void {
+export function forwardKinematics(model: ArmModel, data: ArmData, q: ArrayLike<number>, options: ForwardKinematicsOptions = {}): void {
+  const qOffset = options.offset ?? 0;
+  const derivatives = options.withDerivatives ?? false;
+  const frames = options.frames, cq = options.jointCos, sq = options.jointSin;
   const n = model.n;
   const v = data.v, ca = data.ca, sa = data.sa, cb = data.cb, sb = data.sb, pr = model.prismatic;
   const ax = data.axis, pv = data.pivot;
   const B = data.baseR;
-  const b = 5 * n;
+  const b = baseOffset(n);
   // Current frame: columns x, y, z of the rotation and origin o, all in the measurement frame.
   let xx = B[0], xy = B[3], xz = B[6];
   let yx = B[1], yy = B[4], yz = B[7];
@@ -180,11 +201,15 @@ export function forwardKinematics(
   if (frames) writeFrame(frames, 0, xx, xy, xz, yx, yy, yz, zx, zy, zz, ox, oy, oz);
   const dh = model.convention === 'dh';
   for (let i = 0; i < n; i++) {
-    const p = 5 * i;
+    const p = STRIDE * i;
     const qi = q[qOffset + i];
-    const phi = pr[i] ? v[p + 3] : v[p + 3] + qi;
-    const dd = pr[i] ? v[p + 2] + qi : v[p + 2];
-    const a = v[p];
+    const theta = v[p + SLOT_THETA], d = v[p + SLOT_D];
+    const phi = pr[i] ? theta : theta + qi;
+    const dd = pr[i] ? d + qi : d;
+    const a = v[p + SLOT_A];
+    // Where this joint's parameters keep their axis and pivot (3 numbers each).
+    const uA = 3 * (p + SLOT_A), uAlpha = 3 * (p + SLOT_ALPHA), uD = 3 * (p + SLOT_D);
+    const uTheta = 3 * (p + SLOT_THETA), uBeta = 3 * (p + SLOT_BETA);
     let c: number, s: number;
     if (pr[i]) {
       c = data.ct[i];
@@ -202,9 +227,9 @@ export function forwardKinematics(
     if (dh) {
       if (derivatives) {
         // theta: about z_{i-1} through o_{i-1}; d: along z_{i-1}.
-        ax[3 * p + 9] = zx; ax[3 * p + 10] = zy; ax[3 * p + 11] = zz;
-        pv[3 * p + 9] = ox; pv[3 * p + 10] = oy; pv[3 * p + 11] = oz;
-        ax[3 * p + 6] = zx; ax[3 * p + 7] = zy; ax[3 * p + 8] = zz;
+        ax[uTheta] = zx; ax[uTheta + 1] = zy; ax[uTheta + 2] = zz;
+        pv[uTheta] = ox; pv[uTheta + 1] = oy; pv[uTheta + 2] = oz;
+        ax[uD] = zx; ax[uD + 1] = zy; ax[uD + 2] = zz;
       }
       // Rz(phi)
       const x1x = c * xx + s * yx, x1y = c * xy + s * yy, x1z = c * xz + s * yz;
@@ -216,11 +241,11 @@ export function forwardKinematics(
       const z2x = cA * zx - sA * y1x, z2y = cA * zy - sA * y1y, z2z = cA * zz - sA * y1z;
       if (derivatives) {
         // a: along x'; alpha: about x' through o_i; beta: about y'' through o_i.
-        ax[3 * p] = x1x; ax[3 * p + 1] = x1y; ax[3 * p + 2] = x1z;
-        ax[3 * p + 3] = x1x; ax[3 * p + 4] = x1y; ax[3 * p + 5] = x1z;
-        pv[3 * p + 3] = ox; pv[3 * p + 4] = oy; pv[3 * p + 5] = oz;
-        ax[3 * p + 12] = y2x; ax[3 * p + 13] = y2y; ax[3 * p + 14] = y2z;
-        pv[3 * p + 12] = ox; pv[3 * p + 13] = oy; pv[3 * p + 14] = oz;
+        ax[uA] = x1x; ax[uA + 1] = x1y; ax[uA + 2] = x1z;
+        ax[uAlpha] = x1x; ax[uAlpha + 1] = x1y; ax[uAlpha + 2] = x1z;
+        pv[uAlpha] = ox; pv[uAlpha + 1] = oy; pv[uAlpha + 2] = oz;
+        ax[uBeta] = y2x; ax[uBeta + 1] = y2y; ax[uBeta + 2] = y2z;
+        pv[uBeta] = ox; pv[uBeta + 1] = oy; pv[uBeta + 2] = oz;
       }
       // Ry(beta)
       xx = cB * x1x - sB * z2x; xy = cB * x1y - sB * z2y; xz = cB * x1z - sB * z2z;
@@ -229,9 +254,9 @@ export function forwardKinematics(
     } else {
       if (derivatives) {
         // alpha: about x_{i-1} through o_{i-1}; a: along x_{i-1}.
-        ax[3 * p + 3] = xx; ax[3 * p + 4] = xy; ax[3 * p + 5] = xz;
-        pv[3 * p + 3] = ox; pv[3 * p + 4] = oy; pv[3 * p + 5] = oz;
-        ax[3 * p] = xx; ax[3 * p + 1] = xy; ax[3 * p + 2] = xz;
+        ax[uAlpha] = xx; ax[uAlpha + 1] = xy; ax[uAlpha + 2] = xz;
+        pv[uAlpha] = ox; pv[uAlpha + 1] = oy; pv[uAlpha + 2] = oz;
+        ax[uA] = xx; ax[uA + 1] = xy; ax[uA + 2] = xz;
       }
       // Rx(alpha)
       const y1x = cA * yx + sA * zx, y1y = cA * yy + sA * zy, y1z = cA * yz + sA * zz;
@@ -243,11 +268,11 @@ export function forwardKinematics(
       const z2x = sB * xx + cB * z1x, z2y = sB * xy + cB * z1y, z2z = sB * xz + cB * z1z;
       if (derivatives) {
         // beta: about y' through o'; theta: about z'' through o'; d: along z''.
-        ax[3 * p + 12] = y1x; ax[3 * p + 13] = y1y; ax[3 * p + 14] = y1z;
-        pv[3 * p + 12] = ox; pv[3 * p + 13] = oy; pv[3 * p + 14] = oz;
-        ax[3 * p + 9] = z2x; ax[3 * p + 10] = z2y; ax[3 * p + 11] = z2z;
-        pv[3 * p + 9] = ox; pv[3 * p + 10] = oy; pv[3 * p + 11] = oz;
-        ax[3 * p + 6] = z2x; ax[3 * p + 7] = z2y; ax[3 * p + 8] = z2z;
+        ax[uBeta] = y1x; ax[uBeta + 1] = y1y; ax[uBeta + 2] = y1z;
+        pv[uBeta] = ox; pv[uBeta + 1] = oy; pv[uBeta + 2] = oz;
+        ax[uTheta] = z2x; ax[uTheta + 1] = z2y; ax[uTheta + 2] = z2z;
+        pv[uTheta] = ox; pv[uTheta + 1] = oy; pv[uTheta + 2] = oz;
+        ax[uD] = z2x; ax[uD + 1] = z2y; ax[uD + 2] = z2z;
       }
       // Rz(phi)
       xx = c * x2x + s * y1x; xy = c * x2y + s * y1y; xz = c * x2z + s * y1z;
@@ -258,7 +283,7 @@ export function forwardKinematics(
     }
     if (frames) writeFrame(frames, 16 * (i + 1), xx, xy, xz, yx, yy, yz, zx, zy, zz, ox, oy, oz);
   }
-  const t = b + 6;
+  const t = toolOffset(n);
   const tx = v[t], ty = v[t + 1], tz = v[t + 2];
   const pX = ox + tx * xx + ty * yx + tz * zx;
   const pY = oy + tx * xy + ty * yy + tz * zy;
@@ -331,7 +356,7 @@ export function forwardFrames(geometry: ArmGeometry, q: number[]): number[][] {
   const qi = new Float64Array(model.n);
   jointsToInternal(model, q, qi);
   const frames = new Float64Array(16 * (model.n + 2));
-  forwardKinematics(model, data, qi, 0, false, frames);
+  forwardKinematics(model, data, qi, { frames });
   const out: number[][] = [];
   for (let k = 0; k < model.n + 2; k++) out.push(Array.from(frames.subarray(16 * k, 16 * k + 16)));
   return out;

@@ -8,7 +8,7 @@
  * "Methods for non-linear least squares problems", 2004):
  *   - column scaling D_j = max over iterations of sqrt(A_jj) (MINPACK's rule), so mm and rad columns are
  *     comparable; the step solves (D⁻¹AD⁻¹ + λI)·(Dδ) = −D⁻¹g by a Cholesky factorisation, never an
- *     inverse (a flat Float64Array Cholesky: at p ≈ 30 object-based matrices cost more than the solve;
+ *     inverse (the flat Float64Array Cholesky of linalg.ts: at p ≈ 30 object-based matrices cost more than the solve;
  *     checked against ml-matrix's CholeskyDecomposition in tests/engine/lm.test.ts);
  *   - gain ratio ρ = actual / predicted reduction; accepted steps scale λ by max(1/3, 1 − (2ρ − 1)³),
  *     rejected ones multiply it by ν (ν doubling);
@@ -23,6 +23,7 @@
  *   - robust losses by iteratively reweighted least squares: the problem's `reweight(x)` recomputes the
  *     weights once per accepted iteration (Holland & Welsch 1977).
  */
+import { choleskyInPlace, choleskySolveInPlace } from './linalg';
 
 export interface LeastSquaresProblem {
   /** Number of parameters p. */
@@ -256,42 +257,6 @@ export function levenbergMarquardt(problem: LeastSquaresProblem, x0: ArrayLike<n
     ? `converged: the next step would change every parameter by less than ${+(significance * 100).toPrecision(3)} % of its standard error`
     : REASONS[stop];
   return { x, cost, iterations, stop, stopReason, converged: stop !== 'iterations' && stop !== 'no-decrease' && stop !== 'singular', evaluations, A, g };
-}
-
-/**
- * Cholesky factorisation in place: the lower triangle of the p×p row-major M becomes L with M = LLᵀ
- * (the upper triangle is not read). Returns false when M is not positive definite.
- */
-export function choleskyInPlace(M: Float64Array, p: number): boolean {
-  for (let j = 0; j < p; j++) {
-    const rj = j * p;
-    let d = M[rj + j];
-    for (let k = 0; k < j; k++) d -= M[rj + k] * M[rj + k];
-    if (!(d > 0)) return false;
-    const ljj = Math.sqrt(d);
-    M[rj + j] = ljj;
-    for (let i = j + 1; i < p; i++) {
-      const ri = i * p;
-      let s = M[ri + j];
-      for (let k = 0; k < j; k++) s -= M[ri + k] * M[rj + k];
-      M[ri + j] = s / ljj;
-    }
-  }
-  return true;
-}
-
-/** Solve LLᵀx = b in place (b becomes x) with the factor from choleskyInPlace. */
-export function choleskySolveInPlace(L: Float64Array, p: number, b: Float64Array): void {
-  for (let i = 0; i < p; i++) {
-    let s = b[i];
-    for (let k = 0; k < i; k++) s -= L[i * p + k] * b[k];
-    b[i] = s / L[i * p + i];
-  }
-  for (let i = p - 1; i >= 0; i--) {
-    let s = b[i];
-    for (let k = i + 1; k < p; k++) s -= L[k * p + i] * b[k];
-    b[i] = s / L[i * p + i];
-  }
 }
 
 /** IRLS weight of a residual of size e for a robust loss with scale k (Huber 1964; Cauchy / Lorentzian). */

@@ -1,12 +1,6 @@
 /**
- * The parameter vector of an arm: every geometric quantity the engine can identify, in one flat layout.
- *
- * Layout (internal units mm and rad), n = number of joints, P = 5n + 12 entries:
- *   joint i (0-based): 5i + [a, alpha, d, theta, beta]
- *   base:              5n + [x, y, z, rx, ry, rz]
- *   tool:              5n + 6 + [x, y, z, rx, ry, rz]
- * Keys: "J<i+1>.a" … "J<i+1>.beta" (positional, so they stay stable when a joint is renamed; the joint's
- * name travels beside the key), "base.x" … "base.rz", "tool.x" … "tool.rz".
+ * The parameter vector of an arm: every geometric quantity the engine can identify, in one flat layout
+ * (where each entry lives and its key: layout.ts).
  *
  * Groups (the order screens show them): lengths (a, d), twists (alpha), offsets (theta: the joint zero),
  * beta (Hayati's twist about y), base (6), tool (x, y, z). A prismatic joint adds q to d, so for it d is the
@@ -16,11 +10,10 @@
  */
 import type { ArmGeometry, FrameSpec, ParameterGroup } from './types';
 import { PARAMETER_GROUPS } from './types';
-
-export const JOINT_FIELDS = ['a', 'alpha', 'd', 'theta', 'beta'] as const;
-export type JointField = (typeof JOINT_FIELDS)[number];
-export const FRAME_FIELDS = ['x', 'y', 'z', 'rx', 'ry', 'rz'] as const;
-export type FrameField = (typeof FRAME_FIELDS)[number];
+import {
+  FRAME_FIELDS, JOINT_FIELDS, baseOffset, baseParam, frameKey, jointKey, jointParam, parameterCount, toolOffset, toolParam,
+  type JointField,
+} from './layout';
 
 export const DEG = Math.PI / 180;
 
@@ -74,11 +67,11 @@ export function parameterLayout(geometry: ArmGeometry): ParameterLayout {
   const params: ParameterInfo[] = [];
   geometry.joints.forEach((joint, i) => {
     const prismatic = joint.type === 'prismatic';
-    JOINT_FIELDS.forEach((field, k) => {
+    JOINT_FIELDS.forEach((field) => {
       const isAngle = field === 'alpha' || field === 'beta' || field === 'theta';
       params.push({
-        index: 5 * i + k,
-        key: `J${i + 1}.${field}`,
+        index: jointParam(i, field),
+        key: jointKey(i, field),
         joint: joint.name,
         jointIndex: i,
         name: field,
@@ -91,8 +84,8 @@ export function parameterLayout(geometry: ArmGeometry): ParameterLayout {
   });
   FRAME_FIELDS.forEach((field, k) => {
     params.push({
-      index: 5 * n + k,
-      key: `base.${field}`,
+      index: baseParam(n, field),
+      key: frameKey('base', field),
       name: field,
       owner: 'base',
       group: 'base',
@@ -102,8 +95,8 @@ export function parameterLayout(geometry: ArmGeometry): ParameterLayout {
   });
   FRAME_FIELDS.forEach((field, k) => {
     params.push({
-      index: 5 * n + 6 + k,
-      key: `tool.${field}`,
+      index: toolParam(n, field),
+      key: frameKey('tool', field),
       name: field,
       owner: 'tool',
       group: k < 3 ? 'tool' : 'tool-rotation',
@@ -113,9 +106,9 @@ export function parameterLayout(geometry: ArmGeometry): ParameterLayout {
   });
   return {
     jointCount: n,
-    size: 5 * n + 12,
-    baseOffset: 5 * n,
-    toolOffset: 5 * n + 6,
+    size: parameterCount(n),
+    baseOffset: baseOffset(n),
+    toolOffset: toolOffset(n),
     params,
     byKey: new Map(params.map((p) => [p.key, p])),
   };
@@ -134,19 +127,20 @@ export function fromReportUnit(info: ParameterInfo, value: number): number {
 /** The flat vector (mm, rad) of a geometry; absent base/tool/beta are zeros. */
 export function geometryToVector(geometry: ArmGeometry, base: FrameSpec | undefined = geometry.base): Float64Array {
   const n = geometry.joints.length;
-  const v = new Float64Array(5 * n + 12);
+  const v = new Float64Array(parameterCount(n));
   geometry.joints.forEach((j, i) => {
-    v[5 * i] = j.a;
-    v[5 * i + 1] = j.alpha * DEG;
-    v[5 * i + 2] = j.d;
-    v[5 * i + 3] = j.theta * DEG;
-    v[5 * i + 4] = (j.beta ?? 0) * DEG;
+    v[jointParam(i, 'a')] = j.a;
+    v[jointParam(i, 'alpha')] = j.alpha * DEG;
+    v[jointParam(i, 'd')] = j.d;
+    v[jointParam(i, 'theta')] = j.theta * DEG;
+    v[jointParam(i, 'beta')] = (j.beta ?? 0) * DEG;
   });
-  writeFrame(v, 5 * n, base ?? ZERO_FRAME);
-  writeFrame(v, 5 * n + 6, geometry.tool ?? ZERO_FRAME);
+  writeFrame(v, baseOffset(n), base ?? ZERO_FRAME);
+  writeFrame(v, toolOffset(n), geometry.tool ?? ZERO_FRAME);
   return v;
 }
 
+/** A frame (mm, deg) into the six entries starting at o (mm, rad). */
 function writeFrame(v: Float64Array, o: number, f: FrameSpec): void {
   v[o] = f.x;
   v[o + 1] = f.y;
@@ -156,6 +150,7 @@ function writeFrame(v: Float64Array, o: number, f: FrameSpec): void {
   v[o + 5] = f.rz * DEG;
 }
 
+/** The frame (mm, deg) in the six entries starting at o (mm, rad). */
 export function readFrame(v: ArrayLike<number>, o: number): FrameSpec {
   return { x: v[o], y: v[o + 1], z: v[o + 2], rx: v[o + 3] / DEG, ry: v[o + 4] / DEG, rz: v[o + 5] / DEG };
 }
@@ -169,13 +164,15 @@ export function vectorToGeometry(nominal: ArmGeometry, v: ArrayLike<number>): Ar
   return {
     ...nominal,
     joints: nominal.joints.map((j, i) => {
-      const out = { ...j, a: v[5 * i], alpha: v[5 * i + 1] / DEG, d: v[5 * i + 2], theta: v[5 * i + 3] / DEG };
-      if (j.beta !== undefined) out.beta = v[5 * i + 4] / DEG;
+      const out = {
+        ...j, a: v[jointParam(i, 'a')], alpha: v[jointParam(i, 'alpha')] / DEG, d: v[jointParam(i, 'd')], theta: v[jointParam(i, 'theta')] / DEG,
+      };
+      if (j.beta !== undefined) out.beta = v[jointParam(i, 'beta')] / DEG;
       else delete out.beta;
       return out;
     }),
-    base: readFrame(v, 5 * n),
-    tool: readFrame(v, 5 * n + 6),
+    base: readFrame(v, baseOffset(n)),
+    tool: readFrame(v, toolOffset(n)),
   };
 }
 

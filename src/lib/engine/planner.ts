@@ -13,8 +13,10 @@ import { EngineInputError, PARAMETER_GROUPS } from './types';
 import { compileArm, createArmData, forwardKinematics, jointsToInternal, type ArmData, type ArmModel } from './kinematics';
 import { pointJacobian } from './jacobian';
 import { candidateParameters, characteristicLength, type ParameterInfo } from './parameters';
-import { observability, selectIdentifiable, subMatrix } from './identifiability';
-import { jointRanges, seededRandom } from './workspace';
+import { observability, selectIdentifiable } from './identifiability';
+import { choleskyInto, subMatrix } from './linalg';
+import { seededRandom } from './random';
+import { jointRanges } from './workspace';
 
 export interface PlanOptions {
   /** Number of poses K. */
@@ -56,7 +58,7 @@ function jacobianRows(model: ArmModel, data: ArmData, qs: number[][], params: Pa
   const J = new Float64Array(3 * p);
   qs.forEach((cfg, c) => {
     jointsToInternal(model, cfg, q);
-    forwardKinematics(model, data, q, 0, true);
+    forwardKinematics(model, data, q, { withDerivatives: true });
     pointJacobian(model, data, cols, J);
     for (let k = 0; k < p; k++) for (let r = 0; r < 3; r++) out[(3 * c + r) * p + k] = J[3 * k + r] * scale[k];
   });
@@ -73,30 +75,12 @@ function addRows(A: Float64Array, rows: Float64Array, c: number, p: number, sign
   }
 }
 
-/**
- * Cholesky A = LLᵀ (lower triangle into `L`); false when A is not positive definite. A flat version
- * (not ml-matrix's) because it runs once per greedy step and per exchange trial on small p×p matrices.
- */
-function cholesky(A: Float64Array, p: number, L: Float64Array): boolean {
-  for (let i = 0; i < p; i++) {
-    for (let j = 0; j <= i; j++) {
-      let s = A[i * p + j];
-      for (let k = 0; k < j; k++) s -= L[i * p + k] * L[j * p + k];
-      if (i === j) {
-        if (!(s > 0)) return false;
-        L[i * p + i] = Math.sqrt(s);
-      } else L[i * p + j] = s / L[j * p + j];
-    }
-  }
-  return true;
-}
-
 function indexValue(A: Float64Array, params: ParameterInfo[], m: number, index: 'O1' | 'O3' | 'O4'): number {
   if (index === 'O1') {
     // log det via Cholesky: monotone in O1 for a fixed number of poses.
     const p = params.length;
     const L = new Float64Array(p * p);
-    if (!cholesky(A, p, L)) return -Infinity;
+    if (!choleskyInto(A, p, L)) return -Infinity;
     let s = 0;
     for (let i = 0; i < p; i++) s += Math.log(L[i * p + i]);
     return s;
@@ -141,7 +125,7 @@ export function planPoses(geometry: ArmGeometry, options: PlanOptions): { q: num
   const Lf = new Float64Array(p * p);
   const w = new Float64Array(3 * p);
   for (let step = 0; step < count; step++) {
-    cholesky(A, p, Lf);
+    choleskyInto(A, p, Lf);
     let best = -1, bestGain = -Infinity;
     for (let c = 0; c < nCand; c++) {
       if (used[c]) continue;

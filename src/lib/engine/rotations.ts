@@ -5,8 +5,10 @@
  * print them. The increment is regular at every orientation (the angles' rate matrix is singular at
  * ry = ±90°, a robot on a wall). Exp is Rodrigues' formula; log its inverse (e.g. Murray, Li & Sastry,
  * "A Mathematical Introduction to Robotic Manipulation", 1994, §2.2).
- * All matrices are 3×3 row-major arrays; angles in rad.
+ * All matrices are 3×3 row-major arrays; angles in rad, except the degree helpers for the IK and program
+ * files (rotationFromAngles, anglesFromRotation) and rotationVector (rad) at the end.
  */
+import { DEG } from './parameters';
 
 export type Mat3 = Float64Array;
 
@@ -118,4 +120,51 @@ export function invert3(m: ArrayLike<number>, tol = 1e-9): Mat3 | null {
     B / det, (a * i - c * g) / det, -(a * f - c * d) / det,
     C / det, -(a * h - b * g) / det, (a * e - b * d) / det,
   );
+}
+
+/** Rotation matrix (row-major) of R = Rz(rz)·Ry(ry)·Rx(rx), angles in degrees. */
+export function rotationFromAngles(rx: number, ry: number, rz: number, out = new Float64Array(9)): Float64Array {
+  const cx = Math.cos(rx * DEG), sx = Math.sin(rx * DEG);
+  const cy = Math.cos(ry * DEG), sy = Math.sin(ry * DEG);
+  const cz = Math.cos(rz * DEG), sz = Math.sin(rz * DEG);
+  out[0] = cz * cy; out[1] = cz * sy * sx - sz * cx; out[2] = cz * sy * cx + sz * sx;
+  out[3] = sz * cy; out[4] = sz * sy * sx + cz * cx; out[5] = sz * sy * cx - cz * sx;
+  out[6] = -sy;     out[7] = cy * sx;                out[8] = cy * cx;
+  return out;
+}
+
+/** Angles (deg) of R = Rz(rz)·Ry(ry)·Rx(rx) for a row-major rotation; ry in [−90°, 90°]. */
+export function anglesFromRotation(R: ArrayLike<number>): { rx: number; ry: number; rz: number } {
+  const cy = Math.hypot(R[0], R[3]);
+  if (cy > 1e-12) {
+    return { rx: Math.atan2(R[7], R[8]) / DEG, ry: Math.atan2(-R[6], cy) / DEG, rz: Math.atan2(R[3], R[0]) / DEG };
+  }
+  // Gimbal lock (ry = ±90°): only rz − rx (or rz + rx) is defined; put it all in rx.
+  return { rx: Math.atan2(-R[5], R[4]) / DEG, ry: Math.atan2(-R[6], cy) / DEG, rz: 0 };
+}
+
+/**
+ * Rotation vector ω (rad) of a row-major rotation M (axis·angle, angle in [0, π]), into out[o..o+2].
+ * Near π the axis comes from the diagonal (the skew part vanishes there).
+ */
+export function rotationVector(M: ArrayLike<number>, out: Float64Array, o = 0): void {
+  const vx = M[7] - M[5], vy = M[2] - M[6], vz = M[3] - M[1];
+  const s = 0.5 * Math.hypot(vx, vy, vz);
+  const c = 0.5 * (M[0] + M[4] + M[8] - 1);
+  const angle = Math.atan2(s, c);
+  if (s > 1e-7 || c > 0) {
+    // angle / sin(angle) → 1 as angle → 0.
+    const f = s > 1e-12 ? angle / (2 * s) : 0.5;
+    out[o] = f * vx; out[o + 1] = f * vy; out[o + 2] = f * vz;
+    return;
+  }
+  // angle ≈ π: M ≈ 2uuᵀ − I.
+  let ux = Math.sqrt(Math.max(0, (M[0] + 1) / 2));
+  let uy = Math.sqrt(Math.max(0, (M[4] + 1) / 2));
+  let uz = Math.sqrt(Math.max(0, (M[8] + 1) / 2));
+  if (ux >= uy && ux >= uz) { uy = Math.sign(M[1] + M[3] || 1) * uy; uz = Math.sign(M[2] + M[6] || 1) * uz; }
+  else if (uy >= uz) { ux = Math.sign(M[1] + M[3] || 1) * ux; uz = Math.sign(M[5] + M[7] || 1) * uz; }
+  else { ux = Math.sign(M[2] + M[6] || 1) * ux; uy = Math.sign(M[5] + M[7] || 1) * uy; }
+  const k = angle / (Math.hypot(ux, uy, uz) || 1);
+  out[o] = k * ux; out[o + 1] = k * uy; out[o + 2] = k * uz;
 }

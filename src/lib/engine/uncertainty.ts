@@ -6,9 +6,10 @@
  * (JᵀWJ)⁻¹ is formed column by column from its Cholesky factor, the one place where the inverse itself
  * is the wanted result.
  */
-import { choleskyInPlace, choleskySolveInPlace } from './lm';
+import { multiplySquare, scaledCholesky, scaledInverse } from './linalg';
+import { HIGH_CORRELATION } from './thresholds';
 
-export const HIGH_CORRELATION = 0.95;
+export { HIGH_CORRELATION };
 
 export interface Uncertainty {
   sigma: number;
@@ -24,21 +25,11 @@ export function uncertainty(A: Float64Array, p: number, ssr: number, residualCou
   const sigma = dof > 0 ? Math.sqrt(ssr / dof) : NaN;
   if (p === 0) return { sigma, covariance: null, standardErrors: [], correlation: [], high: [] };
   // Factor the unit-diagonal scaled matrix for accuracy, then undo the scaling.
-  const d = new Float64Array(p);
-  for (let j = 0; j < p; j++) d[j] = Math.sqrt(A[j * p + j]) || 1;
-  const L = new Float64Array(p * p);
-  for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = A[a * p + b] / (d[a] * d[b]);
-  if (!choleskyInPlace(L, p) || !(dof > 0)) {
+  const f = scaledCholesky(A, p);
+  if (!f || !(dof > 0)) {
     return { sigma, covariance: null, standardErrors: new Array(p).fill(null), correlation: identity(p), high: [] };
   }
-  const cov = new Float64Array(p * p);
-  const col = new Float64Array(p);
-  for (let b = 0; b < p; b++) {
-    col.fill(0);
-    col[b] = 1;
-    choleskySolveInPlace(L, p, col);
-    for (let a = 0; a < p; a++) cov[a * p + b] = (sigma * sigma * col[a]) / (d[a] * d[b]);
-  }
+  const cov = scaledInverse(f, p, sigma * sigma);
   return { sigma, covariance: cov, ...summariseCovariance(cov, p) };
 }
 
@@ -72,33 +63,13 @@ export function summariseCovariance(cov: Float64Array, p: number): Pick<Uncertai
  * Returns null when H is singular.
  */
 export function sandwichCovariance(H: Float64Array, B: Float64Array, p: number, m: number): Float64Array | null {
-  const d = new Float64Array(p);
-  for (let j = 0; j < p; j++) d[j] = Math.sqrt(Math.abs(H[j * p + j])) || 1;
-  const L = new Float64Array(p * p);
-  for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = H[a * p + b] / (d[a] * d[b]);
-  if (!choleskyInPlace(L, p) || !(m > p)) return null;
+  const f = scaledCholesky(H, p);
+  if (!f || !(m > p)) return null;
   // Hinv = D⁻¹ (scaled H)⁻¹ D⁻¹, column by column.
-  const Hi = new Float64Array(p * p);
-  const col = new Float64Array(p);
-  for (let b = 0; b < p; b++) {
-    col.fill(0);
-    col[b] = 1;
-    choleskySolveInPlace(L, p, col);
-    for (let a = 0; a < p; a++) Hi[a * p + b] = col[a] / (d[a] * d[b]);
-  }
-  const T = new Float64Array(p * p);
-  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) {
-    let s = 0;
-    for (let k = 0; k < p; k++) s += Hi[a * p + k] * B[k * p + b];
-    T[a * p + b] = s;
-  }
-  const cov = new Float64Array(p * p);
-  const f = m / (m - p);
-  for (let a = 0; a < p; a++) for (let b = 0; b < p; b++) {
-    let s = 0;
-    for (let k = 0; k < p; k++) s += T[a * p + k] * Hi[k * p + b];
-    cov[a * p + b] = f * s;
-  }
+  const Hi = scaledInverse(f, p);
+  const cov = multiplySquare(multiplySquare(Hi, B, p), Hi, p);
+  const k = m / (m - p);
+  for (let j = 0; j < p * p; j++) cov[j] *= k;
   // Symmetrise rounding.
   for (let a = 0; a < p; a++) for (let b = a + 1; b < p; b++) cov[a * p + b] = cov[b * p + a] = 0.5 * (cov[a * p + b] + cov[b * p + a]);
   return cov;

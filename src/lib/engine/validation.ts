@@ -14,10 +14,9 @@
  */
 import type { SessionPose } from './types';
 import { EngineInputError } from './types';
-import { choleskyInPlace } from './lm';
-import { seededRandom } from './workspace';
+import { scaledCholesky } from './linalg';
+import { seededRandom } from './random';
 
-export { seededRandom };
 
 export type PoseRole = 'fit' | 'holdout' | 'excluded';
 
@@ -87,11 +86,9 @@ export function kFoldAssignment(labels: string[], k: number, seed: number): numb
  * of three dependent triangular solves. Returns null when A is singular.
  */
 export function leverageFactor(A: Float64Array, p: number): { L: Float64Array; d: Float64Array; G: Float64Array } | null {
-  const d = new Float64Array(p);
-  for (let j = 0; j < p; j++) d[j] = Math.sqrt(A[j * p + j]) || 1;
-  const L = new Float64Array(p * p);
-  for (let a = 0; a < p; a++) for (let b = 0; b <= a; b++) L[a * p + b] = A[b * p + a] / (d[a] * d[b]);
-  if (!choleskyInPlace(L, p)) return null;
+  const f = scaledCholesky(A, p);
+  if (!f) return null;
+  const { L, d } = f;
   // Column c of L⁻¹ by forward substitution (zero above the diagonal), then scaled by 1/d_c.
   const G = new Float64Array(p * p);
   for (let c = 0; c < p; c++) {

@@ -12,6 +12,7 @@
  */
 import type { ArmGeometry } from './types';
 import { DEG } from './parameters';
+import { jointKey } from './layout';
 
 export type WarningSeverity = 'info' | 'warning' | 'serious';
 
@@ -62,7 +63,7 @@ export function parallelAxes(g: ArmGeometry): ParallelAxes[] {
     if (angleDeg >= NEAR_PARALLEL_DEG) continue;
     const rel = angleDeg < 1e-9 ? '∥' : `nearly ∥ (${angleDeg.toFixed(2)}° apart)`;
     out.push({
-      jointIndex: carrier, key: `J${carrier + 1}.beta`, first: a.name, second: b.name, angleDeg,
+      jointIndex: carrier, key: jointKey(carrier, 'beta'), first: a.name, second: b.name, angleDeg,
       reason: `added β to ${j.name} because ${a.name} ${rel} ${b.name}`,
     });
   }

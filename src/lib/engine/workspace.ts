@@ -8,19 +8,8 @@
  * mostly measure where the tracker was. `includeBase` compares in the measurement frame instead.
  */
 import { compileArm, createArmData, forwardKinematics, jointsToInternal } from './kinematics';
+import { seededRandom } from './random';
 import type { ArmGeometry } from './types';
-
-/** Seeded uniform generator in [0, 1) (mulberry32, public domain), so sampled results are reproducible. */
-export function seededRandom(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** Joint range used for sampling: the nominal's limits, else ±180° (revolute) or 0…500 mm (prismatic). */
 export function jointRanges(nominal: ArmGeometry): [number, number][] {

@@ -245,7 +245,7 @@ export async function createArmModel(input: ArmModelInput, actorId: string, data
       if (dupe) return undefined;
       const [m] = await tx.insert(armModels).values({ name: input.name, manufacturer: input.manufacturer, description: input.description, createdBy: actorId }).returning();
       const [r] = await tx.insert(armModelRevisions).values({ modelId: m!.id, revision: 1, geometry: input.geometry, note: 'first revision', createdBy: actorId }).returning();
-      await audit(tx, { actorId, entityType: 'arm_model', entityId: m!.id, action: 'create', details: { name: input.name, revision: 1, revisionId: r!.id, joints: input.geometry.joints.length, convention: input.geometry.convention } });
+      await audit(tx, { actorId, entityType: 'arm_model', entityId: m!.id, action: 'arm_model.created', details: { name: input.name, revision: 1, revisionId: r!.id, joints: input.geometry.joints.length, convention: input.geometry.convention } });
       return m!.id;
     });
     if (!id) return nameTaken(input.name);
@@ -305,7 +305,7 @@ export async function updateArmModel(id: string, patch: ArmModelPatch, actorId: 
         actorId,
         entityType: 'arm_model',
         entityId: id,
-        action: newRevision ? 'new_revision' : 'update',
+        action: newRevision ? 'arm_model.revised' : 'arm_model.updated',
         comment: patch.note ?? null,
         details: { revision, newRevision, geometryChanged: changed, geometryUpdatedInPlace: inPlace, fields: Object.keys(meta) },
       });

@@ -4,14 +4,14 @@ import { startMailSender } from './mail';
 
 let started = false;
 
-/** Background loops of an app instance (mail sender; the fit worker joins here). Idempotent. */
+/** Background work of an app instance (mail queue sender; the fit worker joins here). Idempotent. */
 export function startBackground() {
   if (started) return;
   started = true;
   if (process.env.VITEST) return;
   startMailSender();
   if (config().RUN_WORKER) {
-    // Loaded on demand so instances without a worker never open the queue's connections for it.
+    // Loaded on demand: instances without a worker never load the fit code (the mail sender opens the queue).
     void import('./jobs').then(({ startWorker, stopWorker }) => {
       void startWorker({ concurrency: 1 }).catch((err) => log('error', 'fit worker did not start', { error: String(err) }));
       void import('./webhooks').then(({ startWebhookSender }) => startWebhookSender());

@@ -18,7 +18,7 @@ export const AUTH_BODY_LIMIT = 64 * 1024;
 
 /**
  * Routes whose endpoint limits its body itself, while it streams, with a message naming its own limit: the
- * session upload (declared Content-Length checked first, then every byte counted in sessions.ts, up to
+ * session upload (declared Content-Length checked first, then every byte counted in session-intake.ts, up to
  * MAX_UPLOAD_BYTES, with an answer naming that limit), so it is not counted a second time here.
  */
 export const LIMITED_BY_ENDPOINT = new Set(['/api/sessions']);

@@ -1,6 +1,6 @@
 /**
  * The calibration certificate of an approved parameter set: the data gathered here from the database (small
- * queries only), the PDF drawn in the report thread (report-runner.ts → certificate-pdf.ts).
+ * queries only), the PDF drawn on a worker thread (engine-runner.ts runReport → certificate-pdf.ts).
  *
  * Reproducible: everything the certificate states comes from the set's immutable row (geometry, standard
  * errors, approval time, facts frozen at approval, certificate number), the fit behind it (its report and
@@ -19,11 +19,9 @@ import { SAFETY_CAUTION } from '../shared/safety';
 import { config } from './config';
 import type { CertificateInput, IsoFigures } from './certificate-pdf';
 import { db as sharedDb, type Db } from './db';
-import { buildFiles, certificateNumber, loadSet, logExport, type ExportActor, type SetRow } from './exports';
-import { runReport } from './report-runner';
+import { buildFiles, CERTIFICATE_FILE, certificateNumber, loadSet, logExport, type ExportActor, type SetRow } from './parameter-set-files';
+import { runReport } from './engine-runner';
 import { MAP_OPTIONS } from './report-tasks';
-
-export const CERTIFICATE_FILE = 'certificate.pdf';
 
 const emptyStats: ErrorStats = { n: 0, rms: NaN, mean: NaN, max: NaN, p95: NaN };
 

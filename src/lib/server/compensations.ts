@@ -18,7 +18,7 @@ import { EngineInputError, formatProblem, type ArmGeometry, type FrameSpec, type
 import { audit } from './audit';
 import { db as sharedDb, type Db } from './db';
 import type { FieldProblem } from './http';
-import { jobQueue } from './jobs';
+import { ensureQueue, jobQueue, startWhenReady } from './job-queue';
 import { log } from './log';
 import { multipartBoundary, readMultipart } from './multipart';
 import { deleteObject, getObjectBytes, putObject } from './s3';
@@ -135,14 +135,7 @@ export async function storeCompensation(
 
 async function queue(): Promise<PgBoss> {
   const boss = await jobQueue();
-  const options = { name: COMPENSATE_QUEUE, policy: 'stately' as const, retryLimit: 3, retryDelay: 2, expireInSeconds: 15 * 60 };
-  if (!(await boss.getQueue(COMPENSATE_QUEUE))) {
-    try {
-      await boss.createQueue(COMPENSATE_QUEUE, options);
-    } catch (err) {
-      if (!(await boss.getQueue(COMPENSATE_QUEUE))) throw err;
-    }
-  }
+  await ensureQueue(boss, { name: COMPENSATE_QUEUE, policy: 'stately', retryLimit: 3, retryDelay: 2, expireInSeconds: 15 * 60 });
   return boss;
 }
 
@@ -248,7 +241,7 @@ export async function runCompensation(id: string, database: Db = sharedDb()): Pr
         .where(and(eq(compensations.id, id), eq(compensations.state, 'running')))
         .returning({ id: compensations.id });
       if (!rows.length) return false;
-      await audit(tx, { actorId: null, unitId: c.unitId, entityType: 'parameter_set', entityId: c.parameterSetId, action: 'compensation.done', details: { compensationId: id, counts: result.counts, outputSha256: outSha } });
+      await audit(tx, { actorId: null, unitId: c.unitId, entityType: 'parameter_set', entityId: c.parameterSetId, action: 'compensation.completed', details: { compensationId: id, counts: result.counts, outputSha256: outSha } });
       return true;
     });
     if (!ok) {
@@ -266,28 +259,20 @@ let starting: Promise<void> | undefined;
 
 /** Start the compensation worker in this process (idempotent; retried every 5 s while PostgreSQL is away). */
 export function startCompensationWorker(): Promise<void> {
-  starting ??= (async () => {
-    for (;;) {
-      try {
-        const boss = await queue();
-        localWorkers.push(
-          await boss.work<{ id: string }>(COMPENSATE_QUEUE, { batchSize: 1, pollingIntervalSeconds: 1 }, async ([job]) => {
-            const id = job?.data?.id;
-            if (!id || !z.uuid().safeParse(id).success) return;
-            const outcome = await runCompensation(id);
-            log('info', 'compensation job', { id, outcome });
-          }),
-        );
-        // Programs whose enqueue was lost (e.g. the queue was away at upload) are queued again.
-        const timer = setInterval(() => void requeueWaiting().catch(() => {}), 15_000);
-        timer.unref();
-        return;
-      } catch (err) {
-        log('warn', 'compensation worker could not start; retrying in 5 s', { error: String((err as Error)?.message ?? err) });
-        await new Promise((r) => setTimeout(r, 5000).unref());
-      }
-    }
-  })();
+  starting ??= startWhenReady('compensation worker', async () => {
+    const boss = await queue();
+    localWorkers.push(
+      await boss.work<{ id: string }>(COMPENSATE_QUEUE, { batchSize: 1, pollingIntervalSeconds: 1 }, async ([job]) => {
+        const id = job?.data?.id;
+        if (!id || !z.uuid().safeParse(id).success) return;
+        const outcome = await runCompensation(id);
+        log('info', 'compensation job', { id, outcome });
+      }),
+    );
+    // Programs whose enqueue was lost (e.g. the queue was away at upload) are queued again.
+    const timer = setInterval(() => void requeueWaiting().catch(() => {}), 15_000);
+    timer.unref();
+  });
   return starting;
 }
 

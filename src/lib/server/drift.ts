@@ -12,6 +12,7 @@ import { db as sharedDb, type Db } from './db';
 import { composeMail, enqueueMail } from './mail';
 import { parameterValues, mergedOrder, type ParameterValue } from './parameter-values';
 import { recordWebhookEvent } from './webhooks';
+import type { DriftParameter, DriftPoint } from '../shared/drift-view';
 
 export type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
 type Conn = Db | Tx;
@@ -194,7 +195,7 @@ export async function checkDriftOnApproval(tx: Conn, options: DriftCheckOptions)
     unitId: options.unitId,
     entityType: 'alert',
     entityId: alert!.id,
-    action: 'drift.alert',
+    action: 'drift_alert.raised',
     details: { version: current.version, previousVersion: previous.version, parameters: details },
   });
   const quality = await tx
@@ -270,40 +271,10 @@ export async function acknowledgeAlert(alertId: string, comment: string, actorId
       .from(driftAlerts)
       .where(and(eq(driftAlerts.unitId, a.unitId), isNull(driftAlerts.acknowledgedAt)))) as [{ open: number }];
     if (open === 0) await tx.update(units).set({ needsAttention: false }).where(eq(units.id, a.unitId));
-    await audit(tx, { actorId, unitId: a.unitId, entityType: 'alert', entityId: alertId, action: 'drift.acknowledged', comment, details: { openAlertsLeft: open } });
+    await audit(tx, { actorId, unitId: a.unitId, entityType: 'alert', entityId: alertId, action: 'drift_alert.acknowledged', comment, details: { openAlertsLeft: open } });
     const [row] = await alertQuery(tx).where(eq(driftAlerts.id, alertId));
     return { ok: true as const, alert: row!, unitNeedsAttention: open > 0 };
   });
-}
-
-export interface DriftPoint {
-  /** 'set' = an approved version; 'fit' = a fitted (not necessarily approved) fit. */
-  kind: 'set' | 'fit';
-  id: string;
-  version: number | null;
-  state: string;
-  at: string;
-  value: number;
-  standardError: number | null;
-  /** Change from the previous approved version (sets only; angles wrapped at ±180°). */
-  change: number | null;
-  exceeded: boolean;
-  /** Combined SE of the change and the change as a multiple of it; beyondSe: more than SE_MULTIPLE. */
-  combinedSe: number | null;
-  multiple: number | null;
-  beyondSe: boolean;
-}
-
-export interface DriftParameter {
-  key: string;
-  joint?: string;
-  name: string;
-  group: ParameterGroup;
-  unit: 'mm' | 'deg';
-  nominal: number | null;
-  /** null: not checked for drift. */
-  tolerance: number | null;
-  points: DriftPoint[];
 }
 
 const iso = (d: Date | string) => (d instanceof Date ? d.toISOString() : new Date(d).toISOString());

@@ -32,8 +32,3 @@ export const ENGINE_TASKS = {
 } as const;
 
 export type EngineTaskName = keyof typeof ENGINE_TASKS;
-
-export interface EngineTaskInput<N extends EngineTaskName = EngineTaskName> {
-  task: N;
-  args: Parameters<(typeof ENGINE_TASKS)[N]>;
-}

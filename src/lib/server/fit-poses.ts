@@ -7,6 +7,7 @@ import { and, asc, count, desc, eq, sql } from 'drizzle-orm';
 import { z } from 'zod';
 import { fitPoses, fits, sessionPoses } from '../../db/schema';
 import type { PoseResidual } from '../engine/fit';
+import type { FitPoseRow } from '../shared/fit-view';
 import { arrayParam, BULK_ROWS, pgArray } from './bulk';
 import { db as sharedDb, type Db } from './db';
 
@@ -45,10 +46,6 @@ export const fitPosePageSchema = z.strictObject({
 });
 export type FitPosePage = z.infer<typeof fitPosePageSchema>;
 
-/** One pose of a fit as the paged endpoint serves it (order = 1-based position in the file). */
-export interface FitPoseRow extends PoseResidual {
-  order: number;
-}
 
 const columns = {
   idx: fitPoses.idx,

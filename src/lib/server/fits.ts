@@ -6,53 +6,17 @@
  */
 import { aliasedTable, and, count, desc, eq, inArray, isNull, sql, type SQL } from 'drizzle-orm';
 import { z } from 'zod';
-import { FIT_STATES, REVIEW_STATES, fits, parameterSets, sessionPoses, sessions, units, users, type FitState, type ReviewState } from '../../db/schema';
-import type { FitOptions, FitReport } from '../engine/fit';
-import type { Verdicts } from '../engine/plausibility';
+import { FIT_STATES, REVIEW_STATES, fits, parameterSets, sessionPoses, sessions, units, users } from '../../db/schema';
+import type { FitReport } from '../engine/fit';
 import { summariseReport } from '../shared/fit-summary';
-import { PARAMETER_GROUPS } from '../engine/types';
 import { audit } from './audit';
+import { fitSettingsSchema, type FitSettings } from './fit-settings';
 import { db as sharedDb, type Db } from './db';
 import type { FieldProblem } from './http';
 import { log } from './log';
+import type { FitDetail, FitSummary } from '../shared/fit-view';
 
-/** Fit settings as the API and the pages take them; stored unchanged on the fit. */
-export const fitSettingsSchema = z.strictObject({
-  groups: z
-    .array(z.enum(PARAMETER_GROUPS, { error: `groups: each entry must be one of ${PARAMETER_GROUPS.join(', ')}` }))
-    .min(1, 'choose at least one parameter group')
-    .refine((g) => new Set(g).size === g.length, 'each parameter group once')
-    .default([...PARAMETER_GROUPS]),
-  holdout: z.number({ error: 'holdout must be a number from 0 to 0.5' }).min(0, 'holdout is at least 0').max(0.5, 'holdout is at most 0.5 (half the poses)').default(0),
-  useSplitColumn: z.boolean({ error: 'useSplitColumn must be true or false' }).default(true),
-  robust: z.boolean({ error: 'robust must be true or false' }).default(false),
-  outlierThreshold: z.number({ error: 'outlierThreshold must be a number from 2 to 10' }).min(2, 'outlierThreshold is at least 2').max(10, 'outlierThreshold is at most 10').default(3),
-  exclude: z
-    .array(z.string({ error: 'exclude lists pose labels (text)' }).trim().min(1, 'an excluded pose label must not be empty').max(100))
-    .max(10_000, 'exclude lists at most 10 000 poses')
-    .default([]),
-  kFold: z
-    .number({ error: 'kFold must be 0 (off) or a whole number from 3 to 10' })
-    .int('kFold must be a whole number')
-    .refine((k) => k === 0 || (k >= 3 && k <= 10), 'kFold must be 0 (off) or from 3 to 10')
-    .default(0),
-  seed: z.number({ error: 'seed must be a whole number' }).int('seed must be a whole number').min(1).max(2 ** 31 - 1).default(1),
-});
-export type FitSettings = z.infer<typeof fitSettingsSchema>;
-
-/** The engine's options for stored settings (robust on = Huber loss at the engine's default scale). */
-export function toFitOptions(s: FitSettings): Omit<FitOptions, 'onIteration'> {
-  return {
-    groups: s.groups,
-    holdout: s.holdout,
-    useSplitColumn: s.useSplitColumn,
-    robust: s.robust ? 'huber' : 'none',
-    outlierThreshold: s.outlierThreshold,
-    exclude: s.exclude,
-    kFold: s.kFold,
-    seed: s.seed,
-  };
-}
+export { FIT_STATES } from '../../db/schema';
 
 /**
  * Refit body: poses to exclude (added to the parent's), any setting to change, and a note saying why.
@@ -221,56 +185,6 @@ function joinedDetail(database: Db) {
     .leftJoin(submitter, eq(submitter.id, fits.submittedBy))
     .leftJoin(decider, eq(decider.id, fits.decidedBy))
     .leftJoin(overrider, eq(overrider.id, fits.overrideBy));
-}
-
-export interface FitSummary {
-  id: string;
-  sessionId: string;
-  unitId: string;
-  unitSerial: string;
-  sessionMeasuredOn: string;
-  sessionFileName: string;
-  parentFitId: string | null;
-  state: FitState;
-  reviewState: ReviewState | null;
-  settings: Record<string, unknown>;
-  progress: { iteration: number; rmsMm: number; cost: number } | null;
-  error: string | null;
-  engineVersion: string | null;
-  attempts: number;
-  durationMs: number | null;
-  createdAt: Date;
-  startedAt: Date | null;
-  finishedAt: Date | null;
-  createdBy: string | null;
-  createdByName: string | null;
-  submittedBy: string | null;
-  submittedByName: string | null;
-  submittedAt: Date | null;
-  decidedBy: string | null;
-  decidedByName: string | null;
-  decidedAt: Date | null;
-  decisionComment: string | null;
-  /** Worst plausibility verdict once fitted: pass, caution or implausible. */
-  plausibility?: string | null;
-  /** Before/after RMS of the fit poses (mm), once fitted. */
-  rmsBeforeMm?: number | null;
-  rmsAfterMm?: number | null;
-}
-
-export interface FitDetail extends FitSummary {
-  inputChecksums: { sessionFile: string; nominalGeometry: string } | null;
-  /** The report's summary (FitReportSummary): the per-pose part is served by /api/fits/{id}/poses. */
-  report: Record<string, unknown> | null;
-  calibrated: unknown;
-  verdicts: Verdicts | null;
-  submitNote: string | null;
-  overrideNote: string | null;
-  overrideByName: string | null;
-  overrideAt: Date | null;
-  exclusionNote: string | null;
-  /** The parameter set this fit's approval created, if any. */
-  parameterSet: { id: string; version: number; state: string } | null;
 }
 
 /** One fit with everything: status and progress while it runs, then the full engine report. */

@@ -9,66 +9,13 @@
 import { and, asc, eq, inArray } from 'drizzle-orm';
 import { armModelRevisions, armModels, fits, parameterSets, sessions, units, users } from '../../db/schema';
 import { FLEET_ALPHA } from '../engine/fleet-judgement';
-import type { ParameterGroup } from '../engine/types';
 import { db as sharedDb, type Db } from './db';
 import { runFleetTask } from './engine-runner';
 import { POSITION_SAMPLES, POSITION_SEED } from './fleet-compute';
 import { modelJudgement } from './judgement';
+import type { FleetOutside, FleetParameter, FleetUnit } from '../shared/fleet-view';
 
 export { positionError, POSITION_SAMPLES, POSITION_SEED } from './fleet-compute';
-
-export interface FleetParameter {
-  key: string;
-  joint?: string;
-  name: string;
-  group: ParameterGroup;
-  unit: 'mm' | 'deg';
-  n: number;
-  mean: number | null;
-  /** Sample standard deviation (n − 1) of all units; null for fewer than two. */
-  sd: number | null;
-  median: number | null;
-  robustSd: number | null;
-  /** Judged at all (base frame never; tool point only for a fixed fixture; not without spread). */
-  judged: boolean;
-  reason?: string;
-  /** Serial numbers flagged on this parameter. */
-  outside: string[];
-}
-
-export interface FleetUnit {
-  unitId: string;
-  serial: string;
-  needsAttention: boolean;
-  setId: string;
-  version: number;
-  approvedAt: string;
-  approvedBy: string;
-  revision: number;
-  /** calibrated − nominal per key, file units. */
-  deviations: Record<string, number>;
-  /** Normal-equivalent score against the other units per judged key (the lines are ± criticalScore). */
-  scores: Record<string, number>;
-  /** This unit's prediction limits per judged key (file units): centre, lower, upper, p. */
-  limits: Record<string, { centre: number; lower: number; upper: number; p: number }>;
-  criticalScore: number;
-  flagged: boolean;
-  /** Keys on which this unit is out of line with the others. */
-  outside: string[];
-  positionError: { maxMm: number; rmsMm: number };
-}
-
-export interface FleetOutside {
-  serial: string;
-  key: string;
-  unit: 'mm' | 'deg';
-  deviation: number;
-  /** This unit's prediction limits from the other units (the flagging basis). */
-  lower: number;
-  upper: number;
-  score: number;
-  p: number;
-}
 
 /** The fleet statistics of an arm model; undefined when the model does not exist. */
 export async function fleetStatistics(modelId: string, database: Db = sharedDb()) {

@@ -11,7 +11,7 @@
  */
 import { and, eq, inArray, lt, sql } from 'drizzle-orm';
 import { hostname } from 'node:os';
-import PgBoss from 'pg-boss';
+import type PgBoss from 'pg-boss';
 import { z } from 'zod';
 import { armModelRevisions, fits, sessionPoses, sessions } from '../../db/schema';
 import type { FitReport } from '../engine/fit';
@@ -20,81 +20,21 @@ import { fitVerdicts } from '../engine/plausibility';
 import { summarisePoses } from '../shared/fit-summary';
 import { EngineInputError, formatProblem, type ArmGeometry, type SessionPose } from '../engine/types';
 import { audit } from './audit';
-import { config } from './config';
 import { db as sharedDb, type Db } from './db';
 import { engineMode, runEngine } from './engine-runner';
 import { insertFitPoses } from './fit-poses';
-import { fitSettingsSchema, toFitOptions } from './fits';
+import { FIT_QUEUE, FIT_RETRY_LIMIT, jobQueue, stopJobQueue, timing } from './job-queue';
+import { fitSettingsSchema, toFitOptions } from './fit-settings';
 import { unitJudgement } from './judgement';
 import { log } from './log';
 import { sha256 } from './tokens';
 import { recordWebhookEvent } from './webhooks';
 
-export const FIT_QUEUE = 'fit';
 /** Which process ran a fit (fit.fitted audit details, job log lines): WORKER_NAME, else host and pid. */
 export const WORKER_ID = process.env.WORKER_NAME || `${hostname()}:${process.pid}`;
-export const FIT_RETRY_LIMIT = 3;
-
-/**
- * Timing of the queue. Defaults suit production; tests of crashed workers shorten them through the
- * environment (FIT_JOB_EXPIRE_SECONDS, FIT_JOB_MAINTENANCE_SECONDS, FIT_JOB_POLL_SECONDS).
- */
-const timingSchema = z.object({
-  FIT_JOB_EXPIRE_SECONDS: z.coerce.number().int().min(5).max(24 * 3600).default(15 * 60),
-  FIT_JOB_MAINTENANCE_SECONDS: z.coerce.number().int().min(1).max(3600).default(30),
-  FIT_JOB_POLL_SECONDS: z.coerce.number().min(0.5).max(60).default(1),
-  FIT_JOB_RETRY_DELAY_SECONDS: z.coerce.number().int().min(0).max(600).default(2),
-});
-function timing() {
-  const env = Object.fromEntries(Object.entries(process.env).filter(([k, v]) => k.startsWith('FIT_JOB_') && v !== ''));
-  const parsed = timingSchema.safeParse(env);
-  if (!parsed.success) {
-    throw new Error(`Fit job settings are invalid:\n  ${parsed.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('\n  ')}`);
-  }
-  return parsed.data;
-}
 
 interface FitJob {
   fitId: string;
-}
-
-let bossStart: Promise<PgBoss> | undefined;
-
-/** The process's pg-boss instance (started once; a failed start is retried on the next call). */
-export function jobQueue(): Promise<PgBoss> {
-  bossStart ??= (async () => {
-    const t = timing();
-    const boss = new PgBoss({
-      connectionString: config().DATABASE_URL,
-      max: 4,
-      application_name: 'offsetry-jobs',
-      schedule: false,
-      supervise: true,
-      maintenanceIntervalSeconds: t.FIT_JOB_MAINTENANCE_SECONDS,
-    });
-    boss.on('error', (err) => log('warn', 'job queue error', { error: String(err?.message ?? err) }));
-    await boss.start();
-    const queue = {
-      name: FIT_QUEUE,
-      // One created / retry / active job per fit id (singletonKey = fit id): a fit is queued once.
-      policy: 'stately' as const,
-      retryLimit: FIT_RETRY_LIMIT,
-      retryDelay: t.FIT_JOB_RETRY_DELAY_SECONDS,
-      expireInSeconds: t.FIT_JOB_EXPIRE_SECONDS,
-    };
-    if (!(await boss.getQueue(FIT_QUEUE))) {
-      try {
-        await boss.createQueue(FIT_QUEUE, queue);
-      } catch (err) {
-        // Another process created it at the same moment.
-        if (!(await boss.getQueue(FIT_QUEUE))) throw err;
-      }
-    }
-    await boss.updateQueue(FIT_QUEUE, queue);
-    return boss;
-  })();
-  bossStart.catch(() => (bossStart = undefined));
-  return bossStart;
 }
 
 const localWorkers: string[] = [];
@@ -340,12 +280,7 @@ export async function stopWorker(timeoutMs = 20_000): Promise<void> {
   stopped = true;
   if (sweepTimer) clearInterval(sweepTimer);
   sweepTimer = undefined;
-  const pending = bossStart;
   starting = undefined;
   localWorkers.length = 0;
-  bossStart = undefined;
-  if (!pending) return;
-  const boss = await pending.catch(() => undefined);
-  if (!boss) return;
-  await boss.stop({ graceful: true, wait: true, timeout: timeoutMs, close: true }).catch(() => {});
+  await stopJobQueue(timeoutMs);
 }

@@ -1,5 +1,13 @@
+/**
+ * Outgoing mail. Every message is a mail_outbox row written in the transaction of the change that causes it;
+ * each app instance's dispatcher hands due rows to the job queue (pg-boss queue "mail", one job per row, the
+ * row's id as the job's id) and the job sends it over SMTP, retrying with backoff while the server is away.
+ * The row stays the record: status, attempts, last error and the earliest next attempt.
+ */
 import { and, asc, eq, lte, sql } from 'drizzle-orm';
 import nodemailer, { type Transporter } from 'nodemailer';
+import type PgBoss from 'pg-boss';
+import { z } from 'zod';
 import { mailOutbox } from '../../db/schema';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
@@ -15,7 +23,7 @@ type Tx = Pick<Db, 'insert'>;
 
 /**
  * Queue a message. Pass the transaction of the change that causes it, so the mail exists exactly when the
- * change does; the sender loop delivers it (and retries while the mail server is away).
+ * change does; the mail queue delivers it (and retries while the mail server is away).
  */
 export async function enqueueMail(tx: Tx, mail: OutgoingMail | OutgoingMail[]) {
   const list = Array.isArray(mail) ? mail : [mail];
@@ -38,68 +46,109 @@ function transport(): Transporter {
   return transporter;
 }
 
-const MAX_ATTEMPTS = 20;
+export const MAIL_QUEUE = 'mail';
 
 /**
- * Deliver pending messages. Rows are claimed with FOR UPDATE SKIP LOCKED so several app instances can run
- * the loop at once without sending a message twice. Returns the number sent.
+ * Retries of one message (pg-boss): after the first attempt, up to 11 more; with retryBackoff the n-th retry
+ * waits retryDelay·2^(n−1) to twice that (pg-boss adds the jitter), so 2–4 s, 4–8 s, … and the last comes
+ * about 1–2 hours after the first attempt. Expiry covers a batch of ten slow attempts (5 s connect, 5 s greeting).
  */
-export async function deliverPendingMail(database: Db = sharedDb(), limit = 20): Promise<number> {
-  let sent = 0;
-  for (let i = 0; i < limit; i++) {
-    const done = await database.transaction(async (tx) => {
-      const [row] = await tx
-        .select()
-        .from(mailOutbox)
-        .where(and(eq(mailOutbox.status, 'pending'), lte(mailOutbox.nextAttemptAt, sql`now()`)))
-        .orderBy(asc(mailOutbox.createdAt))
-        .limit(1)
-        .for('update', { skipLocked: true });
-      if (!row) return 'empty' as const;
-      try {
-        await transport().sendMail({ from: config().MAIL_FROM, to: row.to, subject: row.subject, text: row.text, html: row.html ?? undefined });
-        await tx.update(mailOutbox).set({ status: 'sent', sentAt: sql`now()`, attempts: row.attempts + 1, lastError: null }).where(eq(mailOutbox.id, row.id));
-        return 'sent' as const;
-      } catch (err) {
-        const attempts = row.attempts + 1;
-        // Back off: 2 s, 4 s, 8 s … capped at 5 minutes.
-        const delayS = Math.min(300, 2 ** attempts);
-        await tx
-          .update(mailOutbox)
-          .set({
-            attempts,
-            lastError: String((err as Error).message ?? err).slice(0, 500),
-            status: attempts >= MAX_ATTEMPTS ? 'failed' : 'pending',
-            nextAttemptAt: sql`now() + make_interval(secs => ${delayS})`,
-          })
-          .where(eq(mailOutbox.id, row.id));
-        return 'failed' as const;
-      }
-    });
-    if (done === 'empty' || done === 'failed') break;
-    sent++;
-  }
-  return sent;
+const MAIL_RETRY = { retryLimit: 11, retryDelay: 2, retryBackoff: true } as const;
+const MAIL_EXPIRE_SECONDS = 300;
+
+interface MailJob {
+  outboxId: string;
 }
 
-let timer: NodeJS.Timeout | undefined;
-let running = false;
+async function mailQueue(): Promise<PgBoss> {
+  const { ensureQueue, jobQueue } = await import('./job-queue');
+  const boss = await jobQueue();
+  await ensureQueue(boss, { name: MAIL_QUEUE, policy: 'standard', ...MAIL_RETRY, expireInSeconds: MAIL_EXPIRE_SECONDS });
+  return boss;
+}
 
-/** Start the background sender (idempotent). */
-export function startMailSender(intervalMs = 1000) {
-  if (timer) return;
-  timer = setInterval(async () => {
-    if (running) return;
-    running = true;
+/**
+ * One attempt at one outbox row (the row is the record; its job carries only the id). The row is locked while
+ * the message goes out, so it is never sent twice at once. Returns the error of a failed attempt, else null
+ * (sent, or nothing to do). `retryCount` is the job's retries so far; on the last one a failure is final.
+ */
+export async function attemptMail(outboxId: string, retryCount: number, last: boolean, database: Db = sharedDb()): Promise<string | null> {
+  return database.transaction(async (tx) => {
+    const [row] = await tx
+      .select()
+      .from(mailOutbox)
+      .where(and(eq(mailOutbox.id, outboxId), eq(mailOutbox.status, 'pending')))
+      .for('update', { skipLocked: true });
+    if (!row) return null;
     try {
-      await deliverPendingMail();
-    } catch {
-      // Database away: the next tick tries again.
-    } finally {
-      running = false;
+      await transport().sendMail({ from: config().MAIL_FROM, to: row.to, subject: row.subject, text: row.text, html: row.html ?? undefined });
+    } catch (err) {
+      const error = String((err as Error).message ?? err).slice(0, 500);
+      // The earliest moment pg-boss retries it (see MAIL_RETRY), for the admin's outbox page.
+      const delayS = MAIL_RETRY.retryDelay * 2 ** Math.min(16, retryCount);
+      await tx
+        .update(mailOutbox)
+        .set({ attempts: row.attempts + 1, lastError: error, status: last ? 'failed' : 'pending', nextAttemptAt: sql`now() + make_interval(secs => ${delayS})` })
+        .where(eq(mailOutbox.id, row.id));
+      return error;
     }
-  }, intervalMs);
-  timer.unref();
+    await tx.update(mailOutbox).set({ status: 'sent', sentAt: sql`now()`, attempts: row.attempts + 1, lastError: null }).where(eq(mailOutbox.id, row.id));
+    return null;
+  });
+}
+
+const localWorkers: string[] = [];
+
+/**
+ * Hand due outbox rows to the queue. The job's id is the row's id, so a row that already has a job (waiting,
+ * running or waiting for its retry) is not queued again: pg-boss skips the duplicate id. Rows written by any
+ * process (in the transaction of their change) are picked up here. Returns the number queued.
+ */
+export async function dispatchMail(database: Db = sharedDb()): Promise<number> {
+  const boss = await mailQueue();
+  const due = await database
+    .select({ id: mailOutbox.id })
+    .from(mailOutbox)
+    .where(and(eq(mailOutbox.status, 'pending'), lte(mailOutbox.nextAttemptAt, sql`now()`)))
+    .orderBy(asc(mailOutbox.createdAt))
+    .limit(100);
+  let queued = 0;
+  for (const r of due) if (await boss.send(MAIL_QUEUE, { outboxId: r.id } satisfies MailJob, { id: r.id })) queued++;
+  if (queued) for (const w of localWorkers) boss.notifyWorker(w);
+  return queued;
+}
+
+let started = false;
+
+/** Start the dispatcher and a sender in this process (idempotent); keeps trying while PostgreSQL is away. */
+export function startMailSender(intervalMs = 1000) {
+  if (started) return;
+  started = true;
+  void import('./job-queue').then(({ startWhenReady }) =>
+    startWhenReady('mail sender', async () => {
+      const boss = await mailQueue();
+      localWorkers.push(
+        await boss.work<MailJob>(MAIL_QUEUE, { batchSize: 10, includeMetadata: true, pollingIntervalSeconds: 1 }, async (jobs) => {
+          for (const job of jobs) {
+            if (!job.data?.outboxId || !z.uuid().safeParse(job.data.outboxId).success) continue;
+            const error = await attemptMail(job.data.outboxId, job.retryCount, job.retryCount >= job.retryLimit);
+            // A failed attempt fails its own job (pg-boss schedules the retry); the rest of the batch completes.
+            if (error) await boss.fail(MAIL_QUEUE, job.id, { message: error });
+          }
+        }),
+      );
+      let dispatching = false;
+      const timer = setInterval(() => {
+        if (dispatching) return;
+        dispatching = true;
+        // Database away: the next tick tries again.
+        void dispatchMail()
+          .catch(() => {})
+          .finally(() => (dispatching = false));
+      }, intervalMs);
+      timer.unref();
+    }),
+  );
 }
 
 export function escapeHtml(s: string) {

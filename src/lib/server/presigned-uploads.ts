@@ -7,7 +7,7 @@
  *      uploads/{unit}/{id}/{name}.
  *   2. POST /api/sessions/uploads { uploadId, complete: true, …metadata }       → 201 like POST /api/sessions
  *      The server checks the staging object's size and SHA-256 against what step 1 declared, streams it
- *      through the same parser and checks as the direct upload (sessions.ts checkAndStore), copies it to the
+ *      through the same parser and checks as the direct upload (session-intake.ts checkAndStore), copies it to the
  *      session's key inside the store and writes the rows in one transaction. The staging object is deleted
  *      whatever the outcome, so a refusal leaves nothing behind.
  *
@@ -21,26 +21,24 @@ import { GetObjectCommand, HeadObjectCommand } from '@aws-sdk/client-s3';
 import { createHash, createHmac, randomUUID, timingSafeEqual } from 'node:crypto';
 import type { Readable } from 'node:stream';
 import { z } from 'zod';
-import { and, eq } from 'drizzle-orm';
-import { sessions } from '../../db/schema';
 import { config } from './config';
 import { db as sharedDb, type Db } from './db';
 import { log } from './log';
 import { bucket, deleteObject, presignPut, s3 } from './s3';
 import {
-  checkAndStore,
   FIELD_EXPECTED,
   fileNameProblem,
-  formatBytes,
+  metaProblems,
+  refusal,
   sanitiseFileName,
   sessionMetaSchema,
-  sessionUrl,
-  unitForUpload,
   type CreateSessionResult,
-  type UploadProblem,
-  type UploadRefusal,
   type Uploader,
-} from './sessions';
+} from './session-form';
+import { checkAndStore } from './session-intake';
+import { duplicateRefusal, duplicateSession, unitForUpload } from './session-store';
+import { formatBytes, sessionUrl } from '../shared/display';
+import type { UploadProblem, UploadRefusal } from '../shared/upload';
 
 /** How long the presigned PUT URL is valid. */
 export const PRESIGNED_URL_SECONDS = 15 * 60;
@@ -147,15 +145,6 @@ export interface StartedUpload {
 
 type StartResult = { ok: true; status: 201; body: StartedUpload } | { ok: false; status: 400 | 409 | 413 | 501 | 503; body: UploadRefusal & { presigned?: false } };
 
-const refusal = <S extends 400 | 409 | 413 | 501 | 503>(status: S, error: string, errors: UploadProblem[] = [], extra: Partial<UploadRefusal> & { presigned?: false } = {}) =>
-  ({ ok: false as const, status, body: { error, errors, ...extra } });
-
-const metaProblems = (issues: z.core.$ZodIssue[]): UploadProblem[] =>
-  issues.map((i) => {
-    const field = i.path.map(String).join('.') || undefined;
-    return { field, message: i.message, expected: field ? FIELD_EXPECTED[field] : undefined };
-  });
-
 /** Text fields for the session form's schema (undefined left out, so defaults apply). */
 const textFields = (input: Record<string, string | undefined>) => Object.fromEntries(Object.entries(input).filter((e): e is [string, string] => e[1] !== undefined));
 
@@ -185,15 +174,8 @@ export async function startPresignedUpload(input: z.output<typeof startUploadSch
   if (problems.length || !target) {
     return refusal(400, `The upload was refused: ${problems.length} problem${problems.length === 1 ? '' : 's'} with the form; nothing was stored.`, problems);
   }
-  const [dup] = await database
-    .select({ id: sessions.id, measuredOn: sessions.measuredOn })
-    .from(sessions)
-    .where(and(eq(sessions.unitId, target.id), eq(sessions.fileSha256, sha256)));
-  if (dup) {
-    return refusal(409, `This file was already uploaded for unit ${target.serial} (the session measured on ${dup.measuredOn}); nothing new was stored.`, [], {
-      existing: { id: dup.id, url: sessionUrl(dup.id) },
-    });
-  }
+  const dup = await duplicateSession(target.id, sha256, database);
+  if (dup) return duplicateRefusal(target.serial, dup);
 
   const ticket: Ticket = { v: 1, id: randomUUID(), unit: target.serial, name: fileName, bytes, sha256, by: user.id, exp: Math.floor(Date.now() / 1000) + UPLOAD_TICKET_SECONDS };
   const key = stagingKey(ticket);

@@ -1,6 +1,6 @@
 /**
- * The report tasks the report thread runs: pure functions of plain data (no database, no S3), so they run
- * the same in a worker thread and in-process.
+ * The report tasks the worker threads run (engine-runner.ts runReport): pure functions of plain data (no
+ * database, no S3), so they run the same in a worker thread and in-process.
  */
 import { accuracyMap, type AccuracyMap } from '../engine/accuracy-map';
 import type { ArmGeometry } from '../engine/types';
@@ -9,12 +9,6 @@ import { renderCertificate, type CertificateInput } from './certificate-pdf';
 export type ReportTask =
   | { kind: 'certificate'; input: CertificateInput }
   | { kind: 'accuracy-map'; nominal: ArmGeometry; calibrated: ArmGeometry };
-
-export type ReportThreadMessage =
-  | { type: 'ready' }
-  | { type: 'done'; result: unknown }
-  | { type: 'error'; message: string }
-  | { type: 'no-start'; message: string };
 
 /** The settings of every accuracy map Offsetry shows (certificate and unit page alike). */
 export const MAP_OPTIONS = { samples: 40_000, cellsPerSide: 20, seed: 1 } as const;

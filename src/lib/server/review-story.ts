@@ -12,7 +12,8 @@ import { jointRanges } from '../engine/workspace';
 import { db as sharedDb, type Db } from './db';
 import { runWorkspaceDifference } from './engine-runner';
 import { allFitPoses } from './fit-poses';
-import { getFit, type FitDetail } from './fits';
+import { getFit } from './fits';
+import type { FitDetail } from '../shared/fit-view';
 import { parameterValues } from './parameter-values';
 
 export const STORY_SAMPLES = 1000;

@@ -254,7 +254,7 @@ export async function approveFit(
       .where(eq(fits.id, fitId));
     await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'fit.approved', comment: comment || null, details: { version } });
     if (exception.length) {
-      await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'fit.four_eyes_exception', details: { involvement: exception, lineage: lineage.map((l) => l.fitId) } });
+      await audit(tx, { actorId: user.id, unitId: fit.unitId, entityType: 'fit', entityId: fitId, action: 'four_eyes.waived', details: { involvement: exception, lineage: lineage.map((l) => l.fitId) } });
     }
     if (olderThanCurrent) {
       await audit(tx, {
@@ -262,7 +262,7 @@ export async function approveFit(
         unitId: fit.unitId,
         entityType: 'fit',
         entityId: fitId,
-        action: 'fit.approved_older_session',
+        action: 'older_session.approved',
         comment: comment || null,
         details: { measuredOn: mine!.measuredOn, currentMeasuredOn: current!.measuredOn, currentVersion: current!.version, currentSessionId: current!.sessionId },
       });

@@ -15,6 +15,7 @@ import { runEngineTask } from './engine-runner';
 import type { FieldProblem } from './http';
 import { db as sharedDb, type Db } from './db';
 import { pageTotal, windowTotal } from './paging';
+import type { UnitRow } from '../shared/unit-list';
 
 /**
  * zod issues as field problems, naming unknown keys one by one (zod reports them as one issue at the
@@ -76,18 +77,6 @@ export const unitListQuerySchema = z.strictObject({
   model: z.uuid({ error: 'model must be the id of an arm model' }).optional(),
 });
 export type UnitListQuery = z.infer<typeof unitListQuerySchema>;
-
-export interface UnitRow {
-  serial: string;
-  modelId: string;
-  model: string;
-  revision: number;
-  site: string;
-  cell: string;
-  commissionedOn: string | null;
-  needsAttention: boolean;
-  createdAt: string;
-}
 
 /** `%` and `_` are literal in a search box. */
 const likeEscape = (s: string) => s.replace(/[\\%_]/g, (c) => '\\' + c);
@@ -159,7 +148,7 @@ const duplicate = (serial: string): RegisterResult => ({
 export async function registerUnit(input: UnitRegisterInput, actorId: string, database: Db = sharedDb()): Promise<RegisterResult> {
   try {
     const result = await database.transaction(async (tx): Promise<RegisterResult | { ok: true; id: string }> => {
-      // Serials are compared without case: "vx-0001" and "VX-0001" are one plate read twice.
+      // Serials are compared without case: "lcs-r6-0101" and "LCS-R6-0101" are one plate read twice.
       const [dupe] = await tx.select({ serial: units.serial }).from(units).where(sql`lower(${units.serial}) = lower(${input.serial})`);
       if (dupe) return duplicate(dupe.serial);
       const [model] = await tx.select({ id: armModels.id }).from(armModels).where(eq(armModels.id, input.modelId));
@@ -179,7 +168,7 @@ export async function registerUnit(input: UnitRegisterInput, actorId: string, da
           createdBy: actorId,
         })
         .returning();
-      await audit(tx, { actorId, unitId: u!.id, entityType: 'unit', entityId: u!.id, action: 'register', details: { serial: input.serial, modelId: input.modelId, revision: rev.revision } });
+      await audit(tx, { actorId, unitId: u!.id, entityType: 'unit', entityId: u!.id, action: 'unit.registered', details: { serial: input.serial, modelId: input.modelId, revision: rev.revision } });
       return { ok: true, id: u!.id };
     });
     if (!result.ok) return result;

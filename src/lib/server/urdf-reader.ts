@@ -1,7 +1,7 @@
 /**
- * Our own URDF reader, independent of the writer (src/lib/server/urdf.ts shares no code with it): a small
- * XML reader for the subset URDF uses, then the kinematic tree of links and joints as the URDF XML
- * specification defines it (wiki.ros.org/urdf/XML/joint):
+ * Our own URDF reader, independent of the writer (src/lib/server/urdf.ts shares no code with it): the XML
+ * through fast-xml-parser, then the kinematic tree of links and joints as the URDF XML specification defines
+ * it (wiki.ros.org/urdf/XML/joint):
  *   - <origin xyz rpy>: child-of-joint frame relative to the parent link; xyz in metres (default 0 0 0),
  *     rpy = fixed-axis roll, pitch, yaw in radians, R = Rz(yaw)·Ry(pitch)·Rx(roll) (default 0 0 0);
  *   - <axis xyz>: joint axis in the joint frame, default (1, 0, 0), normalised;
@@ -13,11 +13,13 @@
  * Used by the converter check: the exported URDF's chain must reproduce the engine's forward kinematics.
  * Pure code; bad input throws EngineInputError naming file, line and element/attribute.
  */
+import { XMLParser, XMLValidator, type ValidationError } from 'fast-xml-parser';
 import { EngineInputError, type InputProblem } from '../engine/types';
 
 // ---------------------------------------------------------------------------------------------
-// XML subset: declaration, comments, DOCTYPE (skipped), elements, attributes, text (ignored), CDATA (ignored),
-// the five predefined entities and numeric character references.
+// XML: fast-xml-parser checks well-formedness (its validator reports the line of the first fault) and reads
+// the elements in document order with their attributes and start offsets. Text, comments, CDATA, the
+// declaration and processing instructions are not part of the URDF model and are dropped.
 
 export interface XmlElement {
   name: string;
@@ -26,96 +28,61 @@ export interface XmlElement {
   line: number;
 }
 
-function decodeEntities(s: string, fail: (m: string) => never): string {
-  return s.replace(/&(#x[0-9a-fA-F]+|#[0-9]+|[a-zA-Z]+);?/g, (m, body: string) => {
-    if (!m.endsWith(';')) fail(`"&" must start an entity such as &amp;`);
-    if (body[0] === '#') return String.fromCodePoint(body[1] === 'x' ? parseInt(body.slice(2), 16) : parseInt(body.slice(1), 10));
-    const known: Record<string, string> = { amp: '&', lt: '<', gt: '>', quot: '"', apos: "'" };
-    if (!(body in known)) fail(`unknown entity &${body};`);
-    return known[body]!;
-  });
+const parser = new XMLParser({
+  preserveOrder: true,
+  ignoreAttributes: false,
+  attributeNamePrefix: '',
+  parseAttributeValue: false,
+  parseTagValue: false,
+  ignoreDeclaration: true,
+  ignorePiTags: true,
+  captureMetaData: true,
+  // Numeric character references (and HTML's named entities, harmless in names) besides XML's five.
+  htmlEntities: true,
+});
+// Typed as the Symbol wrapper object by the library; the value is a symbol.
+const META = XMLParser.getMetaDataSymbol() as unknown as symbol;
+
+/** One node of the parser's ordered output: { [tag]: children, ':@'?: attributes } (text nodes: { '#text': … }). */
+type OrderedNode = Record<string, unknown> & { ':@'?: Record<string, string>; [META]?: { startIndex: number } };
+
+/** The validator's message in the reader's words where we know it; its own message otherwise. */
+function xmlProblem(err: ValidationError['err'], text: string, fileName: string): InputProblem {
+  const mismatch = /^Expected closing tag '([^']+)' \(opened in line (\d+)[^)]*\) instead of closing tag '([^']+)'/.exec(err.msg);
+  if (mismatch) return { file: fileName, line: err.line, message: `closing tag </${mismatch[3]}> does not match <${mismatch[1]}> opened on line ${mismatch[2]}` };
+  const unclosed = /^Invalid '(\[.*\])' found/s.exec(err.msg);
+  if (unclosed) {
+    const open = JSON.parse(unclosed[1]!) as string[];
+    return { file: fileName, line: text.split('\n').length, message: `element <${open.at(-1)}> is never closed (the file ends inside ${open.map((n) => `<${n}>`).join(' ')})` };
+  }
+  if (!text.replace(/^\ufeff/, '').trim()) return { file: fileName, line: 1, message: 'no root element: the file is empty' };
+  return { file: fileName, line: err.line, message: err.msg.replace(/\.$/, '') };
 }
 
 export function parseXml(text: string, fileName: string): XmlElement {
-  let i = text.charCodeAt(0) === 0xfeff ? 1 : 0;
-  const lineAt = (k: number) => {
-    let l = 1;
-    for (let p = 0; p < k && p < text.length; p++) if (text.charCodeAt(p) === 10) l++;
-    return l;
+  const valid = XMLValidator.validate(text);
+  if (valid !== true) throw new EngineInputError([xmlProblem(valid.err, text, fileName)]);
+  const lineStarts = [0];
+  for (let p = text.indexOf('\n'); p >= 0; p = text.indexOf('\n', p + 1)) lineStarts.push(p + 1);
+  const lineAt = (offset: number) => {
+    let lo = 0, hi = lineStarts.length - 1;
+    while (lo < hi) {
+      const mid = (lo + hi + 1) >> 1;
+      if (lineStarts[mid]! <= offset) lo = mid;
+      else hi = mid - 1;
+    }
+    return lo + 1;
   };
-  const fail = (message: string, at = i): never => {
-    throw new EngineInputError([{ file: fileName, line: lineAt(at), message }]);
-  };
-  const stack: XmlElement[] = [];
-  let root: XmlElement | undefined;
-  while (i < text.length) {
-    const lt = text.indexOf('<', i);
-    if (lt < 0) {
-      if (text.slice(i).trim()) fail('text after the last element');
-      break;
-    }
-    if (stack.length === 0 && text.slice(i, lt).trim()) fail('text outside the root element', i);
-    i = lt;
-    if (text.startsWith('<!--', i)) {
-      const end = text.indexOf('-->', i + 4);
-      if (end < 0) fail('unterminated comment');
-      i = end + 3;
-      continue;
-    }
-    if (text.startsWith('<?', i)) {
-      const end = text.indexOf('?>', i + 2);
-      if (end < 0) fail('unterminated processing instruction');
-      i = end + 2;
-      continue;
-    }
-    if (text.startsWith('<![CDATA[', i)) {
-      const end = text.indexOf(']]>', i);
-      if (end < 0) fail('unterminated CDATA section');
-      i = end + 3;
-      continue;
-    }
-    if (text.startsWith('<!DOCTYPE', i)) {
-      const end = text.indexOf('>', i);
-      if (end < 0 || text.slice(i, end).includes('[')) fail('DOCTYPE with an internal subset is not supported');
-      i = end + 1;
-      continue;
-    }
-    if (text[i + 1] === '/') {
-      const m = /^<\/([A-Za-z_][\w.:-]*)\s*>/.exec(text.slice(i, i + 300));
-      if (!m) fail('malformed closing tag');
-      const open = stack.pop();
-      if (!open) fail(`closing tag </${m![1]}> without an opening tag`);
-      if (open!.name !== m![1]) fail(`closing tag </${m![1]}> does not match <${open!.name}> opened on line ${open!.line}`);
-      i += m![0].length;
-      continue;
-    }
-    const start = i;
-    const nameMatch = /^<([A-Za-z_][\w.:-]*)/.exec(text.slice(i, i + 300));
-    if (!nameMatch) fail('malformed tag: expected an element name after "<"');
-    i += nameMatch![0].length;
-    const el: XmlElement = { name: nameMatch![1]!, attrs: {}, children: [], line: lineAt(start) };
-    let selfClosing = false;
-    for (;;) {
-      while (/\s/.test(text[i] ?? '')) i++;
-      if (text.startsWith('/>', i)) { selfClosing = true; i += 2; break; }
-      if (text[i] === '>') { i++; break; }
-      if (i >= text.length) fail(`unterminated tag <${el.name}>`, start);
-      const am = /^([A-Za-z_][\w.:-]*)\s*=\s*("([^"<]*)"|'([^'<]*)')/.exec(text.slice(i));
-      if (!am) fail(`malformed attribute in <${el.name}> (expected name="value")`);
-      const key = am![1]!;
-      if (key in el.attrs) fail(`attribute "${key}" appears twice in <${el.name}>`);
-      el.attrs[key] = decodeEntities(am![3] ?? am![4] ?? '', (m) => fail(m));
-      i += am![0].length;
-    }
-    const parent = stack[stack.length - 1];
-    if (parent) parent.children.push(el);
-    else if (root) fail('more than one root element', start);
-    else root = el;
-    if (!selfClosing) stack.push(el);
-  }
-  if (stack.length) fail(`element <${stack[stack.length - 1]!.name}> opened on line ${stack[stack.length - 1]!.line} is never closed`);
-  if (!root) fail('no root element: the file is empty', 0);
-  return root!;
+  const toElements = (nodes: OrderedNode[]): XmlElement[] =>
+    nodes.flatMap((node) => {
+      const name = Object.keys(node).find((k) => k !== ':@');
+      if (!name || name.startsWith('#')) return [];
+      return [{ name, attrs: { ...node[':@'] }, children: toElements(node[name] as OrderedNode[]), line: lineAt(node[META]?.startIndex ?? 0) }];
+    });
+  const roots = toElements(parser.parse(text) as OrderedNode[]);
+  if (roots.length > 1) throw new EngineInputError([{ file: fileName, line: roots[1]!.line, message: 'more than one root element' }]);
+  if (!roots[0]) throw new EngineInputError([{ file: fileName, line: 1, message: 'no root element: the file is empty' }]);
+  return roots[0];
 }
 
 // ---------------------------------------------------------------------------------------------

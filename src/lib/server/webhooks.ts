@@ -225,17 +225,10 @@ let started = false;
 let dispatchTimer: NodeJS.Timeout | undefined;
 
 async function queue(): Promise<PgBoss> {
-  const { jobQueue } = await import('./jobs');
+  const { ensureQueue, jobQueue } = await import('./job-queue');
   const boss = await jobQueue();
   const t = timing();
-  const options = { name: WEBHOOK_QUEUE, policy: 'stately' as const, retryLimit: t.WEBHOOK_RETRY_LIMIT, retryDelay: t.WEBHOOK_RETRY_DELAY_SECONDS, retryBackoff: true, expireInSeconds: t.WEBHOOK_TIMEOUT_SECONDS * 3 + 30 };
-  if (!(await boss.getQueue(WEBHOOK_QUEUE))) {
-    try {
-      await boss.createQueue(WEBHOOK_QUEUE, options);
-    } catch (err) {
-      if (!(await boss.getQueue(WEBHOOK_QUEUE))) throw err;
-    }
-  }
+  await ensureQueue(boss, { name: WEBHOOK_QUEUE, policy: 'stately', retryLimit: t.WEBHOOK_RETRY_LIMIT, retryDelay: t.WEBHOOK_RETRY_DELAY_SECONDS, retryBackoff: true, expireInSeconds: t.WEBHOOK_TIMEOUT_SECONDS * 3 + 30 });
   return boss;
 }
 
@@ -273,28 +266,22 @@ export async function dispatchWebhooks(database: Db = sharedDb()) {
 export function startWebhookSender() {
   if (started) return;
   started = true;
-  void (async () => {
-    for (;;) {
-      try {
-        const boss = await queue();
-        await boss.work<WebhookJob>(WEBHOOK_QUEUE, { batchSize: 1, includeMetadata: true, pollingIntervalSeconds: 1 }, async ([job]) => {
-          if (!job?.data?.deliveryId || !z.uuid().safeParse(job.data.deliveryId).success) return;
-          try {
-            await attempt(job.data.deliveryId, job.retryCount, job.retryLimit, sharedDb());
-          } catch (err) {
-            log('info', 'webhook attempt failed', { deliveryId: job.data.deliveryId, attempt: job.retryCount + 1, error: String((err as Error).message) });
-            throw err;
-          }
-        });
-        const t = timing();
-        dispatchTimer = setInterval(() => void dispatchWebhooks().catch((err) => log('warn', 'webhook dispatch failed', { error: String(err) })), t.WEBHOOK_DISPATCH_SECONDS * 1000);
-        dispatchTimer.unref();
-        log('info', 'webhook sender started', {});
-        return;
-      } catch (err) {
-        log('warn', 'webhook sender could not start; retrying in 5 s', { error: String((err as Error)?.message ?? err) });
-        await new Promise((r) => setTimeout(r, 5000).unref());
-      }
-    }
-  })();
+  void import('./job-queue').then(({ startWhenReady }) =>
+    startWhenReady('webhook sender', async () => {
+      const boss = await queue();
+      await boss.work<WebhookJob>(WEBHOOK_QUEUE, { batchSize: 1, includeMetadata: true, pollingIntervalSeconds: 1 }, async ([job]) => {
+        if (!job?.data?.deliveryId || !z.uuid().safeParse(job.data.deliveryId).success) return;
+        try {
+          await attempt(job.data.deliveryId, job.retryCount, job.retryLimit, sharedDb());
+        } catch (err) {
+          log('info', 'webhook attempt failed', { deliveryId: job.data.deliveryId, attempt: job.retryCount + 1, error: String((err as Error).message) });
+          throw err;
+        }
+      });
+      const t = timing();
+      dispatchTimer = setInterval(() => void dispatchWebhooks().catch((err) => log('warn', 'webhook dispatch failed', { error: String(err) })), t.WEBHOOK_DISPATCH_SECONDS * 1000);
+      dispatchTimer.unref();
+      log('info', 'webhook sender started', {});
+    }),
+  );
 }

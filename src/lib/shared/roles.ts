@@ -10,6 +10,35 @@ export const ROLE_LABELS: Record<Role, string> = {
   admin: 'Administrator',
 };
 
+/**
+ * Named role groups: who may do what, in words. The access table (routes.ts), the navigation below and
+ * the pages' "may this user …" checks all use these, so a group changes in one place.
+ */
+/** Everyone with an account. */
+export const EVERYONE: readonly Role[] = ROLES;
+/** Readers of measurement data: sessions, fits, arm models and unit comparisons. */
+export const ENGINEERING: readonly Role[] = ['technician', 'engineer', 'quality', 'admin'];
+/** Who measures: registers units, uploads sessions, plans poses, and runs, submits and refits fits. */
+export const MEASURERS: readonly Role[] = ['technician', 'engineer', 'admin'];
+/** Who approves or returns a submitted fit. */
+export const REVIEWERS: readonly Role[] = ['engineer', 'admin'];
+/** Who creates and edits arm models, their tolerances and judgement rules. */
+export const MODEL_EDITORS: readonly Role[] = ['engineer', 'admin'];
+/** Who exports parameter files for the controller. */
+export const EXPORTERS: readonly Role[] = ['service', 'admin'];
+/** Who reads the export log. */
+export const EXPORT_LOG_READERS: readonly Role[] = ['service', 'quality', 'admin'];
+/** Readers of fleet data: fleet overview, drift and alerts. */
+export const FLEET_READERS: readonly Role[] = ['quality', 'engineer', 'admin'];
+/** Who downloads calibration certificates and accuracy maps. */
+export const CERTIFICATE_READERS: readonly Role[] = ['quality', 'service', 'engineer', 'admin'];
+/** Who makes compensated programs and downloads them. */
+export const COMPENSATORS: readonly Role[] = ['engineer', 'service', 'admin'];
+/** Readers of compensated programs' records. */
+export const COMPENSATION_READERS: readonly Role[] = ['engineer', 'service', 'quality', 'admin'];
+/** Administrators only. */
+export const ADMINS: readonly Role[] = ['admin'];
+
 export interface NavItem {
   href: string;
   label: string;
@@ -18,14 +47,14 @@ export interface NavItem {
 
 /** The application's navigation in DESIGN.md's order; each entry lists the roles that may open it. */
 export const NAVIGATION: readonly NavItem[] = [
-  { href: '/units', label: 'Units', roles: ROLES },
-  { href: '/sessions', label: 'Sessions', roles: ['technician', 'engineer', 'quality', 'admin'] },
-  { href: '/fits', label: 'Fits', roles: ['technician', 'engineer', 'quality', 'admin'] },
-  { href: '/reviews', label: 'Reviews', roles: ['engineer', 'admin'] },
-  { href: '/fleet', label: 'Fleet', roles: ['quality', 'engineer', 'admin'] },
-  { href: '/exports', label: 'Exports', roles: ['service', 'quality', 'admin'] },
-  { href: '/arm-models', label: 'Arm models', roles: ['technician', 'engineer', 'quality', 'admin'] },
-  { href: '/admin/people', label: 'People', roles: ['admin'] },
+  { href: '/units', label: 'Units', roles: EVERYONE },
+  { href: '/sessions', label: 'Sessions', roles: ENGINEERING },
+  { href: '/fits', label: 'Fits', roles: ENGINEERING },
+  { href: '/reviews', label: 'Reviews', roles: REVIEWERS },
+  { href: '/fleet', label: 'Fleet', roles: FLEET_READERS },
+  { href: '/exports', label: 'Exports', roles: EXPORT_LOG_READERS },
+  { href: '/arm-models', label: 'Arm models', roles: ENGINEERING },
+  { href: '/admin/people', label: 'People', roles: ADMINS },
 ];
 
 export const hasAnyRole = (held: readonly string[], allowed: readonly Role[]) => held.some((r) => (allowed as readonly string[]).includes(r));

@@ -1,4 +1,18 @@
-import { ROLES, type Role } from './roles';
+import {
+  ADMINS,
+  CERTIFICATE_READERS,
+  COMPENSATION_READERS,
+  COMPENSATORS,
+  ENGINEERING,
+  EVERYONE,
+  EXPORT_LOG_READERS,
+  EXPORTERS,
+  FLEET_READERS,
+  MEASURERS,
+  MODEL_EDITORS,
+  REVIEWERS,
+  type Role,
+} from './roles';
 
 /**
  * The access table: every API route and page prefix with the roles allowed per method. src/middleware.ts
@@ -15,17 +29,6 @@ export interface RouteRule {
   methods: Partial<Record<Method, Access>>;
 }
 
-const ALL = ROLES;
-const ENGINEERING: readonly Role[] = ['technician', 'engineer', 'quality', 'admin'];
-const FIT_RUNNERS: readonly Role[] = ['technician', 'engineer', 'admin'];
-const REVIEWERS: readonly Role[] = ['engineer', 'admin'];
-const MODEL_EDITORS: readonly Role[] = ['engineer', 'admin'];
-const EXPORTERS: readonly Role[] = ['service', 'admin'];
-const FLEET_VIEWERS: readonly Role[] = ['quality', 'engineer', 'admin'];
-const CERTIFICATE_READERS: readonly Role[] = ['quality', 'service', 'engineer', 'admin'];
-const COMPENSATORS: readonly Role[] = ['engineer', 'service', 'admin'];
-const COMPENSATION_VIEWERS: readonly Role[] = ['engineer', 'service', 'quality', 'admin'];
-
 export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/health', methods: { GET: 'public' } },
   { pattern: '/api/me', methods: { GET: 'signed-in' } },
@@ -33,57 +36,57 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/invitations/[token]', methods: { GET: 'public', POST: 'public' } },
   { pattern: '/api/tokens', methods: { GET: 'signed-in', POST: 'signed-in' } },
   { pattern: '/api/tokens/[id]', methods: { DELETE: 'signed-in' } },
-  { pattern: '/api/admin/users', methods: { GET: ['admin'], POST: ['admin'] } },
-  { pattern: '/api/admin/users/[id]', methods: { PATCH: ['admin'] } },
-  { pattern: '/api/admin/mail', methods: { GET: ['admin'] } },
+  { pattern: '/api/admin/users', methods: { GET: ADMINS, POST: ADMINS } },
+  { pattern: '/api/admin/users/[id]', methods: { PATCH: ADMINS } },
+  { pattern: '/api/admin/mail', methods: { GET: ADMINS } },
   // Described API and signed webhooks
   { pattern: '/api/openapi.json', methods: { GET: 'public' } },
-  { pattern: '/api/admin/webhooks', methods: { GET: ['admin'], POST: ['admin'] } },
-  { pattern: '/api/admin/webhooks/[id]', methods: { DELETE: ['admin'] } },
-  { pattern: '/api/admin/webhooks/deliveries', methods: { GET: ['admin'] } },
+  { pattern: '/api/admin/webhooks', methods: { GET: ADMINS, POST: ADMINS } },
+  { pattern: '/api/admin/webhooks/[id]', methods: { DELETE: ADMINS } },
+  { pattern: '/api/admin/webhooks/deliveries', methods: { GET: ADMINS } },
   // Arm models, units, sessions
   { pattern: '/api/arm-models', methods: { GET: ENGINEERING, POST: MODEL_EDITORS } },
   // Geometry is read by the same roles on the page (/arm-models/…), in the model API and as a file.
   { pattern: '/api/arm-models/[id]', methods: { GET: ENGINEERING, PUT: MODEL_EDITORS } },
   { pattern: '/api/arm-models/[id]/geometry', methods: { GET: ENGINEERING } },
-  { pattern: '/api/units', methods: { GET: ALL, POST: ['technician', 'engineer', 'admin'] } },
-  { pattern: '/api/units/[serial]', methods: { GET: ALL } },
-  { pattern: '/api/units/[serial]/pose-plan', methods: { GET: FIT_RUNNERS, POST: FIT_RUNNERS } },
-  { pattern: '/api/sessions', methods: { GET: ENGINEERING, POST: ['technician', 'engineer', 'admin'] } },
-  { pattern: '/api/sessions/uploads', methods: { POST: ['technician', 'engineer', 'admin'] } },
+  { pattern: '/api/units', methods: { GET: EVERYONE, POST: MEASURERS } },
+  { pattern: '/api/units/[serial]', methods: { GET: EVERYONE } },
+  { pattern: '/api/units/[serial]/pose-plan', methods: { GET: MEASURERS, POST: MEASURERS } },
+  { pattern: '/api/sessions', methods: { GET: ENGINEERING, POST: MEASURERS } },
+  { pattern: '/api/sessions/uploads', methods: { POST: MEASURERS } },
   { pattern: '/api/sessions/[id]', methods: { GET: ENGINEERING } },
   { pattern: '/api/sessions/[id]/file', methods: { GET: ENGINEERING } },
   { pattern: '/api/sessions/[id]/poses', methods: { GET: ENGINEERING } },
   { pattern: '/api/sessions/[id]/check', methods: { GET: ENGINEERING } },
   // Fits and reviews
-  { pattern: '/api/sessions/[id]/fits', methods: { GET: ENGINEERING, POST: FIT_RUNNERS } },
+  { pattern: '/api/sessions/[id]/fits', methods: { GET: ENGINEERING, POST: MEASURERS } },
   { pattern: '/api/fits', methods: { GET: ENGINEERING } },
   { pattern: '/api/fits/[id]', methods: { GET: ENGINEERING } },
   // The fit report's per-pose part, paged (JSON) or streamed (CSV): same readers as the fit.
   { pattern: '/api/fits/[id]/poses', methods: { GET: ENGINEERING } },
-  { pattern: '/api/fits/[id]/submit', methods: { POST: FIT_RUNNERS } },
+  { pattern: '/api/fits/[id]/submit', methods: { POST: MEASURERS } },
   { pattern: '/api/fits/[id]/approve', methods: { POST: REVIEWERS } },
   { pattern: '/api/fits/[id]/reject', methods: { POST: REVIEWERS } },
-  { pattern: '/api/fits/[id]/refit', methods: { POST: FIT_RUNNERS } },
-  { pattern: '/api/units/[serial]/parameter-sets', methods: { GET: ALL } },
+  { pattern: '/api/fits/[id]/refit', methods: { POST: MEASURERS } },
+  { pattern: '/api/units/[serial]/parameter-sets', methods: { GET: EVERYONE } },
   { pattern: '/api/units/[serial]/compare', methods: { GET: ENGINEERING } },
-  { pattern: '/api/units/[serial]/history', methods: { GET: ALL } },
+  { pattern: '/api/units/[serial]/history', methods: { GET: EVERYONE } },
   // Fleet, drift and exports
-  { pattern: '/api/arm-models/[id]/fleet', methods: { GET: FLEET_VIEWERS } },
-  { pattern: '/api/arm-models/[id]/tolerances', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
-  { pattern: '/api/arm-models/[id]/judgement', methods: { GET: FLEET_VIEWERS, PUT: MODEL_EDITORS } },
-  { pattern: '/api/units/[serial]/drift', methods: { GET: FLEET_VIEWERS } },
-  { pattern: '/api/alerts', methods: { GET: FLEET_VIEWERS } },
-  { pattern: '/api/alerts/[id]/acknowledge', methods: { POST: FLEET_VIEWERS } },
+  { pattern: '/api/arm-models/[id]/fleet', methods: { GET: FLEET_READERS } },
+  { pattern: '/api/arm-models/[id]/tolerances', methods: { GET: FLEET_READERS, PUT: MODEL_EDITORS } },
+  { pattern: '/api/arm-models/[id]/judgement', methods: { GET: FLEET_READERS, PUT: MODEL_EDITORS } },
+  { pattern: '/api/units/[serial]/drift', methods: { GET: FLEET_READERS } },
+  { pattern: '/api/alerts', methods: { GET: FLEET_READERS } },
+  { pattern: '/api/alerts/[id]/acknowledge', methods: { POST: FLEET_READERS } },
   { pattern: '/api/parameter-sets/[id]/export', methods: { GET: EXPORTERS } },
   // Calibration certificate (PDF) and the before/after accuracy map of an approved set
   { pattern: '/api/parameter-sets/[id]/certificate', methods: { GET: CERTIFICATE_READERS } },
   { pattern: '/api/parameter-sets/[id]/accuracy-map', methods: { GET: CERTIFICATE_READERS } },
-  { pattern: '/api/exports', methods: { GET: ['service', 'quality', 'admin'], POST: EXPORTERS } },
+  { pattern: '/api/exports', methods: { GET: EXPORT_LOG_READERS, POST: EXPORTERS } },
   // Compensated programs: engineers and service managers make and download them; quality reads them.
-  { pattern: '/api/units/[serial]/compensations', methods: { GET: COMPENSATION_VIEWERS, POST: COMPENSATORS } },
-  { pattern: '/api/compensations', methods: { GET: COMPENSATION_VIEWERS } },
-  { pattern: '/api/compensations/[id]', methods: { GET: COMPENSATION_VIEWERS } },
+  { pattern: '/api/units/[serial]/compensations', methods: { GET: COMPENSATION_READERS, POST: COMPENSATORS } },
+  { pattern: '/api/compensations', methods: { GET: COMPENSATION_READERS } },
+  { pattern: '/api/compensations/[id]', methods: { GET: COMPENSATION_READERS } },
   { pattern: '/api/compensations/[id]/file', methods: { GET: COMPENSATORS } },
 ];
 
@@ -91,19 +94,19 @@ export const API_ROUTES: readonly RouteRule[] = [
 export const PAGE_RULES: readonly { prefix: string; roles: Access }[] = [
   { prefix: '/signin', roles: 'public' },
   { prefix: '/invite/', roles: 'public' },
-  { prefix: '/admin', roles: ['admin'] },
+  { prefix: '/admin', roles: ADMINS },
   { prefix: '/sessions', roles: ENGINEERING },
   { prefix: '/fits', roles: ENGINEERING },
   { prefix: '/reviews', roles: REVIEWERS },
-  { prefix: '/fleet', roles: FLEET_VIEWERS },
-  { prefix: '/exports', roles: ['service', 'quality', 'admin'] },
+  { prefix: '/fleet', roles: FLEET_READERS },
+  { prefix: '/exports', roles: EXPORT_LOG_READERS },
   { prefix: '/arm-models', roles: ENGINEERING },
-  { prefix: '/units', roles: ALL },
+  { prefix: '/units', roles: EVERYONE },
   // Unit sub-pages show what their API routes show, to the same roles.
   { prefix: '/units/[serial]/compare', roles: ENGINEERING },
-  { prefix: '/units/[serial]/drift', roles: FLEET_VIEWERS },
+  { prefix: '/units/[serial]/drift', roles: FLEET_READERS },
   { prefix: '/units/[serial]/compensate', roles: COMPENSATORS },
-  { prefix: '/compensations', roles: COMPENSATION_VIEWERS },
+  { prefix: '/compensations', roles: COMPENSATION_READERS },
   { prefix: '/account', roles: 'signed-in' },
 ];
 

@@ -25,12 +25,14 @@ import { armModelMetaSchema, armModelUpdateMetaSchema } from '../../shared/arm-m
 import { frameSchema as compensationFrameSchema } from '../compensations';
 import { acknowledgeSchema, tolerancesSchema } from '../drift';
 import { batchSchema, logQuerySchema } from '../exports';
-import { fitListQuerySchema, fitSettingsSchema, refitSchema } from '../fits';
+import { fitSettingsSchema } from '../fit-settings';
+import { fitListQuerySchema, refitSchema } from '../fits';
 import { fitPosePageSchema } from '../fit-poses';
 import { completeUploadSchema, startUploadSchema } from '../presigned-uploads';
 import { judgementSchema } from '../judgement';
 import { decisionSchema, rejectSchema, submitSchema } from '../reviews';
-import { posePageSchema, sessionListQuerySchema, sessionMetaSchema } from '../sessions';
+import { sessionMetaSchema } from '../session-form';
+import { posePageSchema, sessionListQuerySchema } from '../sessions';
 import { posePlanSchema, unitListQuerySchema, unitRegisterSchema } from '../units';
 import { inviteSchema, tokenCreateSchema, userPatchSchema } from '../users';
 import { webhookCreateSchema, webhookDeliveryQuerySchema } from '../webhooks';

@@ -1,6 +1,7 @@
 import type { APIRoute } from 'astro';
 import { json, problems, zodProblems } from '../../../lib/server/http';
-import { createSession, listSessions, sessionListQuerySchema } from '../../../lib/server/sessions';
+import { createSession } from '../../../lib/server/session-intake';
+import { listSessions, sessionListQuerySchema } from '../../../lib/server/sessions';
 
 /** Sessions, newest measurement first; ?unit=SERIAL&page=&pageSize= */
 export const GET: APIRoute = async ({ url }) => {

@@ -1,6 +1,7 @@
 import type { APIRoute } from 'astro';
 import { z } from 'zod';
-import { EXPORT_FORMATS, exportSingle } from '../../../../lib/server/exports';
+import { exportSingle } from '../../../../lib/server/exports';
+import { EXPORT_FORMATS } from '../../../../lib/server/parameter-set-files';
 import { isUuid, problems, zodProblems } from '../../../../lib/server/http';
 import { URDF_ROOTS } from '../../../../lib/server/urdf';
 

@@ -1,6 +1,6 @@
 import type { APIRoute } from 'astro';
 import { isUuid, json, problems } from '../../../../lib/server/http';
-import { sessionCheck, sessionQuality } from '../../../../lib/server/sessions';
+import { sessionCheck, sessionQuality } from '../../../../lib/server/session-checks';
 
 /** The nominal model's error per pose and the pose-set quality of the measured configurations. */
 export const GET: APIRoute = async ({ params }) => {

@@ -1,5 +1,6 @@
 import type { APIRoute } from 'astro';
-import { createFit, fitSettingsSchema, listFits } from '../../../../lib/server/fits';
+import { fitSettingsSchema } from '../../../../lib/server/fit-settings';
+import { createFit, listFits } from '../../../../lib/server/fits';
 import { isUuid, json, problems, readJson, zodProblems } from '../../../../lib/server/http';
 
 /** The fits of one session, newest first. */
