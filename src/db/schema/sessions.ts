@@ -1,4 +1,4 @@
-import { boolean, date, doublePrecision, index, integer, jsonb, pgTable, primaryKey, real, text, unique, uuid } from 'drizzle-orm/pg-core';
+import { boolean, date, doublePrecision, index, integer, jsonb, pgTable, primaryKey, real, text, timestamp, unique, uuid } from 'drizzle-orm/pg-core';
 import type { InputProblem } from '../../lib/engine/types';
 import { armModelRevisions } from './arm-models';
 import { createdAt, id } from './columns';
@@ -54,3 +54,19 @@ export const sessionPoses = pgTable(
   },
   (t) => [primaryKey({ columns: [t.sessionId, t.idx] })],
 );
+
+/**
+ * What the session page shows of the engine's checks (nominal error statistics, the plausibility verdicts,
+ * pose-set quality and a decimated sample of poses for the charts and the 3-D view), computed once on an
+ * engine thread and kept, so the page never redoes the whole-session work. `key` names the inputs beyond the
+ * session's own (immutable) poses and revision: the judgement settings, the engine version and the sample
+ * size; a row with another key is stale and is recomputed on the next read.
+ */
+export const sessionDigests = pgTable('session_digests', {
+  sessionId: uuid()
+    .primaryKey()
+    .references(() => sessions.id, { onDelete: 'cascade' }),
+  key: text().notNull(),
+  body: jsonb().notNull(),
+  computedAt: timestamp({ withTimezone: true }).notNull().defaultNow(),
+});

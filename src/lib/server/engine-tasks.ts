@@ -3,10 +3,11 @@
  * request thread stays free: each entry takes and returns plain, structured-cloneable data.
  */
 import { checkGeometry } from '../engine/fit';
-import { planPoses } from '../engine/planner';
+import { planPoses, poseSetQuality } from '../engine/planner';
 import type { ArmGeometry } from '../engine/types';
 import { jointRanges, workspaceDifference } from '../engine/workspace';
 import { computeFleet } from './fleet-compute';
+import { sessionDigest } from './session-digest-task';
 
 /** Predicted position error of each nominal against its calibrated geometry (the fleet page's column). */
 function positionErrors(pairs: { nominal: ArmGeometry; calibrated: ArmGeometry }[], samples: number, seed: number) {
@@ -23,12 +24,15 @@ function compareWorkspace(a: ArmGeometry, b: ArmGeometry, nominal: ArmGeometry, 
 
 export const ENGINE_TASKS = {
   planPoses,
+  poseSetQuality,
   checkGeometry,
   positionErrors,
   compareWorkspace,
   /** Fleet statistics: every unit's judgement and position error (src/lib/server/fleet-compute.ts). */
   computeFleet,
   workspaceDifference,
+  /** The session page's checks and chart sample (src/lib/server/session-digest-task.ts). */
+  sessionDigest,
 } as const;
 
 export type EngineTaskName = keyof typeof ENGINE_TASKS;

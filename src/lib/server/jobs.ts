@@ -26,6 +26,7 @@ import { insertFitPoses } from './fit-poses';
 import { FIT_QUEUE, FIT_RETRY_LIMIT, jobQueue, stopJobQueue, timing } from './job-queue';
 import { fitSettingsSchema, toFitOptions } from './fit-settings';
 import { unitJudgement } from './judgement';
+import { jsonSafe } from './json-safe';
 import { log } from './log';
 import { sha256 } from './tokens';
 import { recordWebhookEvent } from './webhooks';
@@ -45,13 +46,6 @@ export async function enqueueFit(fitId: string): Promise<void> {
   await boss.send(FIT_QUEUE, { fitId } satisfies FitJob, { singletonKey: fitId });
   // A worker in this process starts at once instead of at its next poll.
   for (const id of localWorkers) boss.notifyWorker(id);
-}
-
-/** JSON-safe copy of a report: typed arrays → arrays, non-finite numbers → null. */
-function jsonSafe<T>(value: T): T {
-  return JSON.parse(
-    JSON.stringify(value, (_k, v) => (ArrayBuffer.isView(v) ? Array.from(v as unknown as ArrayLike<number>) : typeof v === 'number' && !Number.isFinite(v) ? null : v)),
-  ) as T;
 }
 
 /** The problems of bad input, in plain words, for the fit's error field. */

@@ -2,14 +2,19 @@
  * Engine checks of a stored session: the nominal model against the measured points (registration,
  * residuals, the plausibility rules that need no fit) and how well the poses determine the parameters.
  */
-import { asc, eq } from 'drizzle-orm';
-import { armModelRevisions, sessionPoses as poseRows, sessions } from '../../db/schema';
+import { createHash } from 'node:crypto';
+import { and, asc, eq } from 'drizzle-orm';
+import { armModelRevisions, sessionDigests, sessionPoses as poseRows, sessions } from '../../db/schema';
+import { ENGINE_VERSION } from '../engine/fit';
 import { sessionVerdicts, type Verdicts } from '../engine/plausibility';
-import { poseSetQuality, type PoseSetQuality } from '../engine/planner';
-import { EngineInputError, type ArmGeometry, type FrameSpec } from '../engine/types';
+import type { PoseSetQuality } from '../engine/planner';
+import { EngineInputError, type ArmGeometry } from '../engine/types';
 import { db as sharedDb, type Db } from './db';
 import { runEngineTask } from './engine-runner';
 import { unitJudgement } from './judgement';
+import { jsonSafe } from './json-safe';
+import { log } from './log';
+import type { SessionDigest } from './session-digest-task';
 import { allSessionPoses } from './sessions';
 
 async function sessionGeometry(id: string, database: Db): Promise<ArmGeometry | undefined> {
@@ -31,19 +36,11 @@ export interface SessionCheck {
   verdicts?: Verdicts;
 }
 
-/** The nominal model of the unit's revision against the measured points (engine checkGeometry). */
-export async function sessionCheck(id: string, database: Db = sharedDb()): Promise<SessionCheck | undefined> {
-  return (await sessionCheckDetail(id, database))?.check;
-}
-
 /**
- * The check with what the session page's 3-D view also needs: the nominal geometry, the base frame the check
- * used (registered when the geometry has none) and each pose's error vector (measured − predicted, mm).
+ * The nominal model of the unit's revision against the measured points (engine checkGeometry), every pose's
+ * error: for the API. The session page reads the kept digest instead (sessionPageDigest below).
  */
-export async function sessionCheckDetail(id: string, database: Db = sharedDb()): Promise<
-  | { check: SessionCheck; geometry: ArmGeometry; base: FrameSpec | undefined; residuals: { line: number; residual: [number, number, number] }[] }
-  | undefined
-> {
+export async function sessionCheck(id: string, database: Db = sharedDb()): Promise<SessionCheck | undefined> {
   const geometry = await sessionGeometry(id, database);
   if (!geometry) return undefined;
   const poses = await allSessionPoses(id, database);
@@ -52,15 +49,10 @@ export async function sessionCheckDetail(id: string, database: Db = sharedDb()):
     const report = await runEngineTask('checkGeometry', geometry, poses);
     const [unit] = await database.select({ unitId: sessions.unitId }).from(sessions).where(eq(sessions.id, id));
     const verdicts = sessionVerdicts(geometry, poses, unit ? await unitJudgement(unit.unitId, database) : undefined, report.stats.rms);
-    return {
-      check: { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })), verdicts },
-      geometry,
-      base: report.base,
-      residuals: report.poses.map((p) => ({ line: p.line, residual: p.residual })),
-    };
+    return { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })), verdicts };
   } catch (e) {
     if (!(e instanceof EngineInputError)) throw e;
-    return { check: { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], problem: e.message }, geometry, base: undefined, residuals: [] };
+    return { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], problem: e.message };
   }
 }
 
@@ -76,6 +68,59 @@ export async function sessionQuality(id: string, database: Db = sharedDb()): Pro
   if (!geometry) return undefined;
   const rows = await database.select({ q: poseRows.q }).from(poseRows).where(eq(poseRows.sessionId, id)).orderBy(asc(poseRows.idx));
   const q = rows.map((r) => r.q);
-  const quality = poseSetQuality(geometry, q);
+  const quality = await runEngineTask('poseSetQuality', geometry, q);
   return { ...quality, poseCount: q.length, poor: quality.warnings.length > 0 };
+}
+
+/** Poses the session page's charts and 3-D view draw at most. */
+export const SESSION_SAMPLE_LIMIT = 1500;
+
+/**
+ * The session page's checks, computed once on an engine thread and kept in session_digests (the poses and the
+ * revision of a session never change; the key covers the judgement settings, the engine version and the sample
+ * size, so a change of any of them recomputes on the next read). Undefined when the session does not exist.
+ */
+export async function sessionPageDigest(id: string, database: Db = sharedDb()): Promise<(SessionDigest & { geometry: ArmGeometry }) | undefined> {
+  // One computation per session at a time in this process (the upload's warm-up and a first view meet here).
+  const running = inFlight.get(id);
+  if (running && database === sharedDb()) return running;
+  const work = readOrCompute(id, database);
+  if (database === sharedDb()) {
+    inFlight.set(id, work);
+    void work.finally(() => inFlight.delete(id)).catch(() => {});
+  }
+  return work;
+}
+
+const inFlight = new Map<string, Promise<(SessionDigest & { geometry: ArmGeometry }) | undefined>>();
+
+async function readOrCompute(id: string, database: Db): Promise<(SessionDigest & { geometry: ArmGeometry }) | undefined> {
+  const [row] = await database
+    .select({ unitId: sessions.unitId, geometry: armModelRevisions.geometry })
+    .from(sessions)
+    .innerJoin(armModelRevisions, eq(armModelRevisions.id, sessions.modelRevisionId))
+    .where(eq(sessions.id, id));
+  if (!row) return undefined;
+  const settings = await unitJudgement(row.unitId, database);
+  const key = createHash('sha256').update(JSON.stringify({ settings, engine: ENGINE_VERSION, limit: SESSION_SAMPLE_LIMIT })).digest('hex');
+  const [kept] = await database
+    .select({ body: sessionDigests.body })
+    .from(sessionDigests)
+    .where(and(eq(sessionDigests.sessionId, id), eq(sessionDigests.key, key)));
+  if (kept) return { ...(kept.body as SessionDigest), geometry: row.geometry };
+  const poses = await allSessionPoses(id, database);
+  const digest = jsonSafe(await runEngineTask('sessionDigest', row.geometry, poses, settings, SESSION_SAMPLE_LIMIT));
+  await database
+    .insert(sessionDigests)
+    .values({ sessionId: id, key, body: digest })
+    .onConflictDoUpdate({ target: sessionDigests.sessionId, set: { key, body: digest, computedAt: new Date() } })
+    // A session deleted meanwhile: nothing to keep.
+    .catch((err) => log('warn', 'session digest not stored', { sessionId: id, error: String(err?.message ?? err) }));
+  return { ...digest, geometry: row.geometry };
+}
+
+/** Compute and keep a new session's digest in the background, so its first view is quick. */
+export function warmSessionDigest(id: string): void {
+  if (process.env.VITEST) return;
+  void sessionPageDigest(id).catch((err) => log('warn', 'session digest not computed', { sessionId: id, error: String(err?.message ?? err) }));
 }

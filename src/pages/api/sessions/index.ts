@@ -1,4 +1,5 @@
 import type { APIRoute } from 'astro';
+import { warmSessionDigest } from '../../../lib/server/session-checks';
 import { json, problems, zodProblems } from '../../../lib/server/http';
 import { createSession } from '../../../lib/server/session-intake';
 import { listSessions, sessionListQuerySchema } from '../../../lib/server/sessions';
@@ -17,5 +18,7 @@ export const GET: APIRoute = async ({ url }) => {
  */
 export const POST: APIRoute = async ({ locals, request }) => {
   const result = await createSession(request, { id: locals.user!.id, name: locals.user!.name });
+  // The session page's checks are computed now, off the request, so its first view is quick.
+  if (result.ok) warmSessionDigest(result.body.id);
   return json(result.body, result.status, result.ok ? { location: result.body.url } : {});
 };

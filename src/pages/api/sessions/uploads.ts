@@ -1,4 +1,5 @@
 import type { APIRoute } from 'astro';
+import { warmSessionDigest } from '../../../lib/server/session-checks';
 import { json, problems, readJson, zodProblems } from '../../../lib/server/http';
 import { completePresignedUpload, completeUploadSchema, isCompletion, startPresignedUpload, startUploadSchema } from '../../../lib/server/presigned-uploads';
 
@@ -16,6 +17,8 @@ export const POST: APIRoute = async ({ locals, request }) => {
     const parsed = completeUploadSchema.safeParse(read.value);
     if (!parsed.success) return problems(400, 'The upload cannot be completed: the request is invalid; nothing was stored.', zodProblems(parsed.error));
     const result = await completePresignedUpload(parsed.data, user);
+    // The session page's checks are computed now, off the request, so its first view is quick.
+    if (result.ok) warmSessionDigest(result.body.id);
     return json(result.body, result.status, result.ok ? { location: result.body.url } : {});
   }
   const parsed = startUploadSchema.safeParse(read.value);
