@@ -1,5 +1,5 @@
 /**
- * The per-pose part of fit reports: written in one statement per BULK_ROWS poses when a fit is stored,
+ * The per-pose part of fit reports: streamed with COPY when a fit is stored,
  * read page by page (file order or largest residual first) and as a CSV stream. Reports stored before the
  * split keep their poses inside fits.report; they are read from there.
  */
@@ -8,36 +8,23 @@ import { z } from 'zod';
 import { fitPoses, fits, sessionPoses } from '../../db/schema';
 import type { PoseResidual } from '../engine/fit';
 import type { FitPoseRow } from '../shared/fit-view';
-import { arrayParam, BULK_ROWS, pgArray } from './bulk';
+import { arrayParam, copyField, copyInto, pgArray } from './bulk';
 import { db as sharedDb, type Db } from './db';
 
 type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
 
-/** Store a fit's poses (in the transaction that stores its summary). */
+/**
+ * Store a fit's poses (in the transaction that stores its summary), streamed with COPY … FROM STDIN: one
+ * statement for any number of poses.
+ */
 export async function insertFitPoses(tx: Tx | Db, fitId: string, poses: readonly PoseResidual[]): Promise<void> {
-  for (let k = 0; k < poses.length; k += BULK_ROWS) {
-    const part = poses.slice(k, k + BULK_ROWS);
-    const col = <T,>(f: (p: PoseResidual) => T) => part.map(f);
-    await tx.execute(sql`
-      insert into fit_poses (fit_id, idx, label, line, role, before_x, before_y, before_z, after_x, after_y, after_z, error_before, error_after, standardised, outlier)
-      select ${fitId}::uuid, u.* from unnest(
-        ${arrayParam(pgArray.int(part.map((_, j) => k + j)), 'int[]')},
-        ${arrayParam(pgArray.text(col((p) => p.label)), 'text[]')},
-        ${arrayParam(pgArray.int(col((p) => p.line)), 'int[]')},
-        ${arrayParam(pgArray.text(col((p) => p.role)), 'text[]')},
-        ${arrayParam(pgArray.float(col((p) => p.before[0])), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.before[1])), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.before[2])), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.after[0])), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.after[1])), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.after[2])), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.errorBefore)), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.errorAfter)), 'float8[]')},
-        ${arrayParam(pgArray.float(col((p) => p.standardised)), 'float8[]')},
-        ${arrayParam(pgArray.bool(col((p) => p.outlier)), 'bool[]')}
-      ) as u`);
-  }
+  const { text, num, bool } = copyField;
+  await copyInto(tx, 'fit_poses', FIT_POSE_COLUMNS, poses.length, (j) => {
+    const p = poses[j]!;
+    return [fitId, j, text(p.label), p.line, p.role, num(p.before[0]), num(p.before[1]), num(p.before[2]), num(p.after[0]), num(p.after[1]), num(p.after[2]), num(p.errorBefore), num(p.errorAfter), num(p.standardised), bool(p.outlier)].join('\t');
+  });
 }
+const FIT_POSE_COLUMNS = ['fit_id', 'idx', 'label', 'line', 'role', 'before_x', 'before_y', 'before_z', 'after_x', 'after_y', 'after_z', 'error_before', 'error_after', 'standardised', 'outlier'];
 
 export const fitPosePageSchema = z.strictObject({
   page: z.coerce.number({ error: 'page must be a whole number' }).int('page must be a whole number').min(1, 'page starts at 1').max(1_000_000).default(1),

@@ -8,7 +8,7 @@
  * transaction fails the object is deleted again; if S3 fails no row is written.
  */
 import { CopyObjectCommand, PutObjectCommand } from '@aws-sdk/client-s3';
-import { and, eq, sql } from 'drizzle-orm';
+import { and, eq } from 'drizzle-orm';
 import { randomUUID } from 'node:crypto';
 import type { Readable } from 'node:stream';
 import { armModelRevisions, sessions, units } from '../../db/schema';
@@ -16,7 +16,7 @@ import type { ParsedSession } from '../engine/session-csv';
 import type { ArmGeometry, InputProblem } from '../engine/types';
 import { cleanText } from '../shared/input';
 import { audit } from './audit';
-import { arrayParam, BULK_ROWS, pgArray } from './bulk';
+import { copyField, copyInto } from './bulk';
 import { db as sharedDb, type Db } from './db';
 import { isServiceUnavailable } from './http';
 import { log } from './log';
@@ -76,28 +76,13 @@ export interface StoreSessionInput {
 
 type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
 
-/**
- * A session's poses in one `unnest` statement per BULK_ROWS rows (one array parameter per column instead of
- * one parameter per cell): 100 000 rows in four round trips, inside the caller's transaction.
- */
+/** A session's poses streamed with COPY … FROM STDIN (one statement), inside the caller's transaction. */
 async function insertSessionPoses(tx: Tx, sessionId: string, poses: ParsedSession['poses'], outside: Set<number | undefined>): Promise<void> {
-  for (let k = 0; k < poses.length; k += BULK_ROWS) {
-    const part = poses.slice(k, k + BULK_ROWS);
-    await tx.execute(sql`
-      insert into session_poses (session_id, idx, line, label, q, x, y, z, split, outside_limits)
-      select ${sessionId}::uuid, u.idx, u.line, u.label, u.q::float8[], u.x, u.y, u.z, u.split, u.outside
-      from unnest(
-        ${arrayParam(pgArray.int(part.map((_, j) => k + j)), 'int[]')},
-        ${arrayParam(pgArray.int(part.map((p) => p.line)), 'int[]')},
-        ${arrayParam(pgArray.text(part.map((p) => p.label)), 'text[]')},
-        ${arrayParam(pgArray.floatRows(part.map((p) => p.q)), 'text[]')},
-        ${arrayParam(pgArray.float(part.map((p) => p.x)), 'float8[]')},
-        ${arrayParam(pgArray.float(part.map((p) => p.y)), 'float8[]')},
-        ${arrayParam(pgArray.float(part.map((p) => p.z)), 'float8[]')},
-        ${arrayParam(pgArray.text(part.map((p) => p.split ?? null)), 'text[]')},
-        ${arrayParam(pgArray.bool(part.map((p) => outside.has(p.line))), 'bool[]')}
-      ) as u(idx, line, label, q, x, y, z, split, outside)`);
-  }
+  const { text, num, bool, floats } = copyField;
+  await copyInto(tx, 'session_poses', ['session_id', 'idx', 'line', 'label', 'q', 'x', 'y', 'z', 'split', 'outside_limits'], poses.length, (i) => {
+    const p = poses[i]!;
+    return [sessionId, i, p.line, text(p.label), floats(p.q), num(p.x), num(p.y), num(p.z), text(p.split ?? null), bool(outside.has(p.line))].join('\t');
+  });
 }
 
 /**
