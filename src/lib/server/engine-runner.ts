@@ -23,6 +23,7 @@ import type { ENGINE_TASKS, EngineTaskName } from './engine-tasks';
 import type { FleetComputeInput, FleetComputeResult } from './fleet-compute';
 import { log } from './log';
 import { runPoolTask, type PoolTask, type Progress, type ThreadAnswer } from './pool-tasks';
+import { packable, packPoses, unpackResiduals, type PackedResiduals } from './pose-transfer';
 import type { ReportTask } from './report-tasks';
 
 const THREAD_FILE = path.join('src', 'lib', 'server', 'pool-thread.mjs');
@@ -112,8 +113,14 @@ export interface EngineRun {
 
 /** Fit in a worker thread (or in-process as a fallback). Rejects with EngineInputError on bad input. */
 export async function runEngine(r: EngineRun): Promise<FitReport> {
-  const task: PoolTask = { kind: 'fit', nominal: r.nominal, poses: r.poses, options: r.options };
-  return (await run('fit', task, 'the fit', r.timeoutMs ?? 10 * 60_000, r.onIteration)) as FitReport;
+  // Packed in columns for the hop to the thread and back (pose-transfer.ts); a list the layout cannot hold
+  // (joint counts that differ, which the engine refuses with its own message) travels as it is.
+  const packed = packable(r.poses);
+  const task: PoolTask = { kind: 'fit', nominal: r.nominal, poses: packed ? packPoses(r.poses) : r.poses, options: r.options };
+  const answer = await run('fit', task, 'the fit', r.timeoutMs ?? 10 * 60_000, r.onIteration);
+  if (!packed) return answer as FitReport;
+  const report = answer as Omit<FitReport, 'poses'> & { poses: PackedResiduals };
+  return { ...report, poses: unpackResiduals(report.poses) };
 }
 
 /**

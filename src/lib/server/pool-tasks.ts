@@ -7,17 +7,23 @@ import type { MessagePort } from 'node:worker_threads';
 import { fitSession, type FitOptions, type IterationInfo } from '../engine/fit';
 import { EngineInputError, type ArmGeometry, type InputProblem, type SessionPose } from '../engine/types';
 import { ENGINE_TASKS, type EngineTaskName } from './engine-tasks';
+import { packResiduals, unpackPoses, type PackedPoses } from './pose-transfer';
 import { runReportTask, type ReportTask } from './report-tasks';
 
 export type Progress = Pick<IterationInfo, 'iteration' | 'cost' | 'rmsMm'>;
 
 export type PoolTask =
-  | { kind: 'fit'; nominal: ArmGeometry; poses: SessionPose[]; options: Omit<FitOptions, 'onIteration'> }
+  /** Poses packed in columns (pose-transfer.ts) come back with the report's poses packed too. */
+  | { kind: 'fit'; nominal: ArmGeometry; poses: SessionPose[] | PackedPoses; options: Omit<FitOptions, 'onIteration'> }
   | { kind: 'engine'; task: EngineTaskName; args: unknown[] }
   | { kind: 'report'; report: ReportTask };
 
 export async function runPoolTask(task: PoolTask, onIteration?: (it: Progress) => void): Promise<unknown> {
-  if (task.kind === 'fit') return fitSession(task.nominal, task.poses, { ...task.options, onIteration });
+  if (task.kind === 'fit') {
+    if (Array.isArray(task.poses)) return fitSession(task.nominal, task.poses, { ...task.options, onIteration });
+    const report = fitSession(task.nominal, unpackPoses(task.poses), { ...task.options, onIteration });
+    return { ...report, poses: packResiduals(report.poses) };
+  }
   if (task.kind === 'engine') return (ENGINE_TASKS[task.task] as (...args: unknown[]) => unknown)(...task.args);
   return runReportTask(task.report);
 }
