@@ -10,15 +10,10 @@ import { poseSetQuality, type PoseSetQuality } from '../engine/planner';
 import { EngineInputError, type ArmGeometry, type FrameSpec, type SessionPose } from '../engine/types';
 import { decimateIndices } from '../shared/decimate';
 
-export interface SessionDigestPose {
+/** A pose of the chart sample: the measured pose (without its split) with its nominal-model error. */
+export interface SessionDigestPose extends Omit<SessionPose, 'split'> {
   /** Position in the file's pose order (0-based). */
   k: number;
-  label: string;
-  line: number;
-  q: number[];
-  x: number;
-  y: number;
-  z: number;
   /** Nominal-model error (mm) and its vector (measured − predicted), when the check ran. */
   error: number | null;
   residual: [number, number, number] | null;
