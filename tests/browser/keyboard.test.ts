@@ -88,6 +88,8 @@ describe('keyboard only', () => {
 
     await page.goto(`${BASE_URL}/sessions/new?unit=${encodeURIComponent(serial)}`);
     await islandsHydrated(page, 60_000);
+    // React attaches the drop zone's key handler when it hydrates (the island's ssr mark goes earlier).
+    await page.locator('[data-upload-form][data-hydrated="true"]').waitFor({ timeout: 60_000 });
     const dropZone = page.getByRole('button', { name: /Session file/ });
     await tabTo(page, dropZone);
     const [chooser] = await Promise.all([page.waitForEvent('filechooser', { timeout: 10_000 }), page.keyboard.press('Enter')]);

@@ -64,6 +64,9 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
   const [state, setState] = useState<State>({ kind: 'idle' });
   const [override, setOverride] = useState(false);
   const formRef = useRef<HTMLFormElement>(null);
+  // Set once React has attached its handlers (tests and scripts wait for it before pressing keys).
+  const [hydrated, setHydrated] = useState(false);
+  useEffect(() => setHydrated(true), []);
 
   const { getRootProps, getInputProps, isDragActive, inputRef } = useDropzone({
     multiple: false,
@@ -185,7 +188,7 @@ export default function UploadForm({ units, initialUnit, today, technician, maxB
   };
 
   return (
-    <form ref={formRef} onSubmit={submit} className="flex flex-col gap-5" noValidate>
+    <form ref={formRef} onSubmit={submit} className="flex flex-col gap-5" noValidate data-upload-form data-hydrated={hydrated ? 'true' : undefined}>
       {/* What was refused comes first: the summary at the top of the form, with links to the fields it names. */}
       {refusal && (
         <div className="flex flex-col gap-3" data-refusal data-status={state.kind === 'refused' ? state.status : undefined}>
