@@ -83,7 +83,8 @@ export interface FleetSnapshotSummary {
   unitCount: number;
   flaggedUnits: string[];
   parameters: FleetParameter[];
-  outside: FleetOutside[];
+  /** How many (unit, parameter) pairs are out of line in the whole fleet. */
+  outsideCount: number;
   positionError: FleetPositionErrorSummary;
 }
 
@@ -99,6 +100,8 @@ export interface FleetSnapshotState {
 /** GET /api/arm-models/{id}/fleet: the summary, one page of units (flagged first, then by serial) and the snapshot's state. */
 export interface FleetPage extends FleetSnapshotSummary {
   units: FleetUnit[];
+  /** The out-of-line entries of this page's units (flagged units come first, so page 1 starts with them). */
+  outside: FleetOutside[];
   unitsPage: { page: number; pageSize: number; total: number };
   snapshot: FleetSnapshotState;
 }

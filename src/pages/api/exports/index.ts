@@ -9,7 +9,7 @@ export const GET: APIRoute = async ({ url }) => {
   return json(await exportLogPage(q.data.page, q.data.pageSize));
 };
 
-/** `{ serials: [...] }` → a zip of each unit's current set with manifests; logged. */
+/** `{ serials: [...] }` (up to 10 000) → a zip of each unit's current set with manifests, streamed while it is written; logged. */
 export const POST: APIRoute = async ({ request, locals }) => {
   const read = await readJson(request);
   if (!read.ok) return read.response;
@@ -23,7 +23,7 @@ export const POST: APIRoute = async ({ request, locals }) => {
       ...result.withoutSet.map((s) => ({ field: `serials.${index(s)}`, message: `unit ${s} has no approved parameter set` })),
     ]);
   }
-  return new Response(result.zip as Uint8Array<ArrayBuffer>, {
+  return new Response(result.stream, {
     status: 200,
     headers: {
       'content-type': 'application/zip',
