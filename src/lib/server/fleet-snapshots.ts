@@ -12,7 +12,7 @@
  * and until it is stored the previous snapshot is served, marked as such. A model without any snapshot
  * queues its first computation and the request waits for it a bounded time.
  */
-import { and, asc, desc, eq, gt, lte, ne, sql } from 'drizzle-orm';
+import { and, asc, desc, eq, gt, inArray, lte, ne, sql } from 'drizzle-orm';
 import type PgBoss from 'pg-boss';
 import { z } from 'zod';
 import { armModelRevisions, armModels, fits, fleetSnapshots, fleetSnapshotUnits, units } from '../../db/schema';
@@ -141,7 +141,7 @@ export function startFleetSnapshotWorker(): Promise<void> {
 
 async function latestSnapshot(modelId: string, database: Db) {
   const [snap] = await database
-    .select({ id: fleetSnapshots.id, fingerprint: fleetSnapshots.fingerprint, computedAt: fleetSnapshots.computedAt, durationMs: fleetSnapshots.durationMs, unitCount: fleetSnapshots.unitCount, summary: fleetSnapshots.summary })
+    .select({ id: fleetSnapshots.id, fingerprint: fleetSnapshots.fingerprint, computedAt: fleetSnapshots.computedAt, durationMs: fleetSnapshots.durationMs, unitCount: fleetSnapshots.unitCount })
     .from(fleetSnapshots)
     .where(eq(fleetSnapshots.modelId, modelId))
     .orderBy(desc(fleetSnapshots.computedAt))
@@ -149,52 +149,109 @@ async function latestSnapshot(modelId: string, database: Db) {
   return snap;
 }
 
-export type FleetPageResult = { state: 'missing' } | { state: 'computing'; model: { id: string; name: string } } | ({ state: 'ready' } & FleetPage);
+/**
+ * A snapshot never changes once stored, so its pages are kept in memory once read (by snapshot id, page and
+ * page size), parsed and serialised. Only the attention flags (read live) and the pending state vary.
+ */
+interface CachedPage {
+  summary: FleetSnapshotSummary;
+  units: FleetUnitResult[];
+  outside: FleetOutside[];
+  json: { summary: string; units: string[]; outside: string };
+}
+const pageCache = new Map<string, CachedPage>();
+const PAGE_CACHE_SIZE = 200;
+
+async function cachedPage(snapshotId: string, query: FleetQuery, database: Db): Promise<CachedPage> {
+  const key = `${snapshotId}:${query.page}:${query.pageSize}`;
+  const hit = pageCache.get(key);
+  if (hit) {
+    pageCache.delete(key);
+    pageCache.set(key, hit);
+    return hit;
+  }
+  const offset = (query.page - 1) * query.pageSize;
+  const [[row], rows] = await Promise.all([
+    database.select({ summary: fleetSnapshots.summary }).from(fleetSnapshots).where(eq(fleetSnapshots.id, snapshotId)),
+    database
+      .select({ data: fleetSnapshotUnits.data })
+      .from(fleetSnapshotUnits)
+      .where(and(eq(fleetSnapshotUnits.snapshotId, snapshotId), gt(fleetSnapshotUnits.rank, offset), lte(fleetSnapshotUnits.rank, offset + query.pageSize)))
+      .orderBy(asc(fleetSnapshotUnits.rank)),
+  ]);
+  const summary = row!.summary;
+  const unitOf = new Map(summary.parameters.map((p) => [p.key, p.unit]));
+  const units = rows.map((r) => r.data);
+  const outside: FleetOutside[] = units.flatMap((u) =>
+    u.outside.map((key) => {
+      const l = u.limits[key]!;
+      return { serial: u.serial, key, unit: unitOf.get(key) ?? 'mm', deviation: u.deviations[key]!, lower: l.lower, upper: l.upper, score: u.scores[key]!, p: l.p };
+    }),
+  );
+  const { model: _model, ...withoutModel } = summary;
+  const summaryJson = JSON.stringify(withoutModel);
+  const entry: CachedPage = { summary, units, outside, json: { summary: summaryJson.slice(1, -1), units: units.map((u) => JSON.stringify(u).slice(1)), outside: JSON.stringify(outside) } };
+  pageCache.set(key, entry);
+  if (pageCache.size > PAGE_CACHE_SIZE) pageCache.delete(pageCache.keys().next().value!);
+  return entry;
+}
+
+/** The inputs' fingerprint is read again at most every FINGERPRINT_TTL_MS per model and app instance. */
+const FINGERPRINT_TTL_MS = 2000;
+const fingerprints = new Map<string, { at: number; value: Promise<string> }>();
+function currentFingerprint(modelId: string, database: Db): Promise<string> {
+  const now = Date.now();
+  const hit = fingerprints.get(modelId);
+  if (hit && now - hit.at < FINGERPRINT_TTL_MS) return hit.value;
+  const value = fleetFingerprint(modelId, database);
+  fingerprints.set(modelId, { at: now, value });
+  value.catch(() => fingerprints.delete(modelId));
+  return value;
+}
+
+export type FleetPageResult =
+  | { state: 'missing' }
+  | { state: 'computing'; model: { id: string; name: string } }
+  | ({ state: 'ready'; json: () => string } & FleetPage);
 
 /**
  * One page of an arm model's fleet statistics from its latest snapshot: the summary, the page's units
  * (flagged first, then by serial) with their attention flag as it is now, the out-of-line entries of
- * those units, and the snapshot's state.
+ * those units, and the snapshot's state. `json()` gives the same as the API's body, from cached pieces.
  */
 export async function fleetPage(modelId: string, query: FleetQuery, database: Db = sharedDb(), wait: { ms: number } = { ms: FIRST_SNAPSHOT_WAIT_MS }): Promise<FleetPageResult> {
   const [model] = await database.select({ id: armModels.id, name: armModels.name }).from(armModels).where(eq(armModels.id, modelId));
   if (!model) return { state: 'missing' };
   let snap = await latestSnapshot(modelId, database);
   if (!snap) {
-    await queueFleetSnapshot(modelId);
+    // Queued again (at most every 3 s) while waiting, so a queue that was briefly away does not leave it undone.
     const until = Date.now() + wait.ms;
     while (!snap && Date.now() < until) {
+      await queueFleetSnapshot(modelId).catch((err) => log('warn', 'fleet snapshot not queued', { modelId, error: String((err as Error)?.message ?? err) }));
       await new Promise((r) => setTimeout(r, 150));
       snap = await latestSnapshot(modelId, database);
     }
     if (!snap) return { state: 'computing', model };
   }
-  const fingerprint = await fleetFingerprint(modelId, database);
+  const [fingerprint, page] = await Promise.all([currentFingerprint(modelId, database), cachedPage(snap.id, query, database)]);
   const pending = fingerprint !== snap.fingerprint;
   if (pending) await queueFleetSnapshot(modelId).catch((err) => log('warn', 'fleet snapshot not queued', { modelId, error: String((err as Error)?.message ?? err) }));
-  const offset = (query.page - 1) * query.pageSize;
-  const rows = await database
-    .select({ data: fleetSnapshotUnits.data, needsAttention: units.needsAttention })
-    .from(fleetSnapshotUnits)
-    .innerJoin(units, eq(units.id, fleetSnapshotUnits.unitId))
-    .where(and(eq(fleetSnapshotUnits.snapshotId, snap.id), gt(fleetSnapshotUnits.rank, offset), lte(fleetSnapshotUnits.rank, offset + query.pageSize)))
-    .orderBy(asc(fleetSnapshotUnits.rank));
-  const summary = snap.summary;
-  const unitOf = new Map(summary.parameters.map((p) => [p.key, p.unit]));
-  const pageUnits = rows.map((r) => ({ ...(r.data as FleetUnitResult), needsAttention: r.needsAttention }));
-  const outside: FleetOutside[] = pageUnits.flatMap((u) =>
-    u.outside.map((key) => {
-      const l = u.limits[key]!;
-      return { serial: u.serial, key, unit: unitOf.get(key) ?? 'mm', deviation: u.deviations[key]!, lower: l.lower, upper: l.upper, score: u.scores[key]!, p: l.p };
-    }),
-  );
+  const attention = page.units.length
+    ? new Map((await database.select({ id: units.id, needsAttention: units.needsAttention }).from(units).where(inArray(units.id, page.units.map((u) => u.unitId)))).map((u) => [u.id, u.needsAttention]))
+    : new Map<string, boolean>();
+  const unitsPage = { page: query.page, pageSize: query.pageSize, total: snap.unitCount };
+  const snapshot = { computedAt: snap.computedAt.toISOString(), durationMs: snap.durationMs, pending, rule: SNAPSHOT_RULE };
+  const flags = page.units.map((u) => attention.get(u.unitId) ?? false);
   return {
     state: 'ready',
-    ...summary,
+    ...page.summary,
     model,
-    units: pageUnits,
-    outside,
-    unitsPage: { page: query.page, pageSize: query.pageSize, total: snap.unitCount },
-    snapshot: { computedAt: snap.computedAt.toISOString(), durationMs: snap.durationMs, pending, rule: SNAPSHOT_RULE },
+    units: page.units.map((u, i) => ({ ...u, needsAttention: flags[i]! })),
+    outside: page.outside,
+    unitsPage,
+    snapshot,
+    json: () =>
+      `{${page.json.summary},"model":${JSON.stringify(model)},"units":[${page.json.units.map((u, i) => `{"needsAttention":${flags[i]},${u}`).join(',')}],` +
+      `"outside":${page.json.outside},"unitsPage":${JSON.stringify(unitsPage)},"snapshot":${JSON.stringify(snapshot)}}`,
   };
 }

@@ -15,6 +15,6 @@ export const GET: APIRoute = async ({ params, url }) => {
   if (result.state === 'computing') {
     return json({ model: result.model, computing: true, message: 'The fleet statistics of this model are being computed for the first time; ask again in a minute.' }, 202);
   }
-  const { state: _state, ...page } = result;
-  return json(page);
+  // The body is assembled from the snapshot's cached, serialised pieces (the same as JSON.stringify of the page).
+  return new Response(result.json(), { status: 200, headers: { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store' } });
 };
