@@ -8,7 +8,7 @@
  * API token each, then per size:
  *   - first snapshot: GET /api/arm-models/{id}/fleet until it answers 200 (the request queues the
  *     computation), with the job's own computing time;
- *   - 20 clients (autocannon), D seconds per endpoint: fleet statistics (a random page of 50 units), drift of
+ *   - 20 clients (autocannon), D seconds per endpoint: fleet statistics (a random page of 25 units), drift of
  *     a random unit, the unit list filtered by model with a search text and by site, the export log (a random
  *     page);
  *   - at 1 000 units and more: POST /api/exports of 1 000 units, time to the last byte and the app's resident
@@ -191,10 +191,10 @@ async function main() {
     const jobS = (body.snapshot?.durationMs ?? NaN) / 1000;
     say(`${f.n} units: first snapshot after ${snapshotS.toFixed(1)} s (job ${jobS.toFixed(1)} s)`);
     const pick = <T,>(xs: T[]) => xs[Math.floor(Math.random() * xs.length)]!;
-    const fleetPages = Math.max(1, Math.ceil(f.n / 50));
+    const fleetPages = Math.max(1, Math.ceil(f.n / 25));
     const logPages = Math.max(1, Math.ceil(f.counts.exportLog / 25));
     const endpoints = [
-      { name: 'fleet statistics (page of 50)', path: () => `/api/arm-models/${f.modelId}/fleet?page=${1 + Math.floor(Math.random() * Math.min(fleetPages, 20))}` },
+      { name: 'fleet statistics (page of 25)', path: () => `/api/arm-models/${f.modelId}/fleet?page=${1 + Math.floor(Math.random() * Math.min(fleetPages, 20))}` },
       { name: 'drift of a unit', path: () => `/api/units/${pick(f.serials)}/drift` },
       { name: 'units: model + search', path: () => `/api/units?model=${f.modelId}&q=${pick(f.serials).slice(-4)}` },
       { name: 'units: site filter, page', path: () => `/api/units?site=${encodeURIComponent(`Plant ${'ABCDEFGHIJKL'[Math.floor(Math.random() * 12)]} hall ${1 + Math.floor(Math.random() * 7)}`)}&page=${1 + Math.floor(Math.random() * 3)}` },

@@ -72,7 +72,7 @@ export async function seedFleet(sql: Sql, options: { units?: number; seed?: numb
     insert into users (email, name, roles) values (${`fleet-approver-${seed}-${options.prefix ?? 'TFB'}@offsetry.test`}, 'Fleet Bench Engineer', '{engineer}'::text[])
     returning id`;
   const [model] = await sql`insert into arm_models (name, manufacturer, description) values (${`${FLEET_MODEL_NAME} ${options.prefix ?? ''}`.trim()}, 'Invented Arms Ltd.', 'fleet benchmark fixture') returning id`;
-  const [rev] = await sql`insert into arm_model_revisions (model_id, revision, geometry) values (${model!.id}, 1, ${sql.json(nominal as never)}) returning id`;
+  const [rev] = await sql`insert into arm_model_revisions (model_id, revision, geometry) values (${model!.id}, 1, ${JSON.stringify(nominal)}::jsonb) returning id`;
 
   const serials = Array.from({ length: n }, (_, i) => fleetSerial(i + 1, options.prefix));
   const sites = serials.map((_, i) => `Plant ${String.fromCharCode(65 + (i % 12))} hall ${1 + (i % 7)}`);
@@ -147,8 +147,9 @@ export async function seedFleet(sql: Sql, options: { units?: number; seed?: numb
       insert into export_log (user_id, kind, format, items, at)
       select ${approver!.id}, k, f, i::jsonb, a::timestamptz from unnest(${kinds}::text[], ${formats}::text[], ${items}::text[], ${ats}::text[]) as t(k, f, i, a)`;
   }
-  // Fresh statistics: without them the planner misjudges the new tables' sizes.
-  await sql`analyze`;
+  // Fresh statistics (without them the planner misjudges the new tables' sizes), and the trigram indexes'
+  // pending entries moved into the index, as autovacuum would.
+  await sql`vacuum analyze units, sessions, fits, parameter_sets, export_log`;
   const seconds = (performance.now() - started) / 1000;
   say(`export log: ${logRows} entries; done in ${seconds.toFixed(1)} s`);
   return { modelId: model!.id, revisionId: rev!.id, serials, approverId: approver!.id, seconds, counts: { units: n, parameterSets: n * VERSIONS, exportLog: logRows } };

@@ -40,8 +40,9 @@ export const exportLog = pgTable(
     items: jsonb().$type<{ serial: string; version: number; parameterSetId: string }[]>().notNull(),
     at: timestamp({ withTimezone: true }).notNull().defaultNow(),
   },
-  // The log is read newest first, page by page.
-  (t) => [index('export_log_at_idx').on(t.at.desc(), t.id.desc())],
+  // The log is read newest first, page by page: a backward scan of (at, id) gives ORDER BY at DESC, id DESC
+  // exactly (an index declared DESC NULLS LAST would not match DESC, which puts nulls first).
+  (t) => [index('export_log_at_id_idx').on(t.at, t.id)],
 );
 
 /**
@@ -62,7 +63,7 @@ export const fleetSnapshots = pgTable(
     /** Everything of the statistics but the per-unit rows (those are in fleet_snapshot_units). */
     summary: jsonb().$type<FleetSnapshotSummary>().notNull(),
   },
-  (t) => [index().on(t.modelId, t.computedAt.desc())],
+  (t) => [index('fleet_snapshots_model_computed_idx').on(t.modelId, t.computedAt)],
 );
 
 /** One unit's row of a fleet snapshot, numbered in the order pages list them: flagged units first, then by serial. */

@@ -6,13 +6,13 @@
  * row per unit in page order (flagged first, then by serial). Requests read one page of it.
  *
  * The rule the page states: a snapshot is computed from the model's current approved sets and its judgement
- * settings as they were when the job started. Its fingerprint (how many current sets, which ones, whether
- * the tool is judged) is compared on every read with the same fingerprint of the database now; when they
+ * settings as they were when the job started. Its fingerprint (the model's fleet inputs version, raised by
+ * database triggers on every such change) is compared on every read with the version now; when they
  * differ a newer computation is pending and queued (approvals and settings changes also queue it at once),
  * and until it is stored the previous snapshot is served, marked as such. A model without any snapshot
  * queues its first computation and the request waits for it a bounded time.
  */
-import { and, asc, desc, eq, gt, inArray, lte, ne, sql } from 'drizzle-orm';
+import { and, asc, desc, eq, gt, inArray, lte, ne } from 'drizzle-orm';
 import type PgBoss from 'pg-boss';
 import { z } from 'zod';
 import { armModelRevisions, armModels, fits, fleetSnapshots, fleetSnapshotUnits, units } from '../../db/schema';
@@ -20,7 +20,6 @@ import type { FleetOutside, FleetPage, FleetSnapshotSummary, FleetUnitResult } f
 import { db as sharedDb, type Db } from './db';
 import { fleetStatistics } from './fleet';
 import { ensureQueue, jobQueue, startWhenReady } from './job-queue';
-import { modelJudgement } from './judgement';
 import { log } from './log';
 
 export const FLEET_SNAPSHOT_QUEUE = 'fleet-snapshot';
@@ -34,22 +33,20 @@ export const SNAPSHOT_RULE =
 
 export const fleetQuerySchema = z.strictObject({
   page: z.coerce.number({ error: 'page must be a whole number from 1' }).int('page must be a whole number from 1').min(1, 'page must be a whole number from 1').max(100000, 'page is at most 100000').default(1),
-  pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1, 'pageSize must be 1 to 200').max(200, 'pageSize must be 1 to 200').default(50),
+  pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1, 'pageSize must be 1 to 200').max(200, 'pageSize must be 1 to 200').default(25),
 });
 export type FleetQuery = z.infer<typeof fleetQuerySchema>;
 
 /**
- * What a snapshot depends on, cheaply: count and identity of the model's current sets (a superseded set
- * changes the sum of the ids, a new one both) and whether the tool point is judged.
+ * What a snapshot depends on: the model's fleet inputs version, which database triggers raise whenever a set
+ * of one of its units is approved or changes state, or its judgement settings change (migration 0015), so
+ * also for changes made outside this code. One primary-key read.
  */
 export async function fleetFingerprint(modelId: string, database: Db = sharedDb()): Promise<string> {
-  const [row] = await database.execute<{ n: number; ids: string }>(sql`
-    select count(ps.id)::int as n, coalesce(sum(hashtextextended(ps.id::text, 0)::numeric), 0)::text as ids
-    from ${units} u join parameter_sets ps on ps.unit_id = u.id and ps.state = 'current'
-    where u.model_revision_id in (select r.id from ${armModelRevisions} r where r.model_id = ${modelId})`);
-  const settings = (await modelJudgement(modelId, database))?.settings;
-  return `sets=${row?.n ?? 0};ids=${row?.ids ?? '0'};tool=${settings?.toolFixture ? 1 : 0}`;
+  const [row] = await database.select({ version: armModels.fleetInputsVersion }).from(armModels).where(eq(armModels.id, modelId));
+  return fingerprintOf(row?.version ?? 0);
 }
+const fingerprintOf = (version: number) => `inputs=${version}`;
 
 /** Compute the model's fleet statistics now and store them as its snapshot (the job's work). */
 export async function computeFleetSnapshot(modelId: string, database: Db = sharedDb()) {
@@ -162,6 +159,15 @@ interface CachedPage {
 const pageCache = new Map<string, CachedPage>();
 const PAGE_CACHE_SIZE = 200;
 
+/** One page of a snapshot's unit rows, by rank (the primary key): tests EXPLAIN it. */
+export function snapshotUnitsQuery(snapshotId: string, offset: number, pageSize: number, database: Db = sharedDb()) {
+  return database
+    .select({ data: fleetSnapshotUnits.data })
+    .from(fleetSnapshotUnits)
+    .where(and(eq(fleetSnapshotUnits.snapshotId, snapshotId), gt(fleetSnapshotUnits.rank, offset), lte(fleetSnapshotUnits.rank, offset + pageSize)))
+    .orderBy(asc(fleetSnapshotUnits.rank));
+}
+
 async function cachedPage(snapshotId: string, query: FleetQuery, database: Db): Promise<CachedPage> {
   const key = `${snapshotId}:${query.page}:${query.pageSize}`;
   const hit = pageCache.get(key);
@@ -173,11 +179,7 @@ async function cachedPage(snapshotId: string, query: FleetQuery, database: Db): 
   const offset = (query.page - 1) * query.pageSize;
   const [[row], rows] = await Promise.all([
     database.select({ summary: fleetSnapshots.summary }).from(fleetSnapshots).where(eq(fleetSnapshots.id, snapshotId)),
-    database
-      .select({ data: fleetSnapshotUnits.data })
-      .from(fleetSnapshotUnits)
-      .where(and(eq(fleetSnapshotUnits.snapshotId, snapshotId), gt(fleetSnapshotUnits.rank, offset), lte(fleetSnapshotUnits.rank, offset + query.pageSize)))
-      .orderBy(asc(fleetSnapshotUnits.rank)),
+    snapshotUnitsQuery(snapshotId, offset, query.pageSize, database),
   ]);
   const summary = row!.summary;
   const unitOf = new Map(summary.parameters.map((p) => [p.key, p.unit]));
@@ -196,19 +198,6 @@ async function cachedPage(snapshotId: string, query: FleetQuery, database: Db): 
   return entry;
 }
 
-/** The inputs' fingerprint is read again at most every FINGERPRINT_TTL_MS per model and app instance. */
-const FINGERPRINT_TTL_MS = 2000;
-const fingerprints = new Map<string, { at: number; value: Promise<string> }>();
-function currentFingerprint(modelId: string, database: Db): Promise<string> {
-  const now = Date.now();
-  const hit = fingerprints.get(modelId);
-  if (hit && now - hit.at < FINGERPRINT_TTL_MS) return hit.value;
-  const value = fleetFingerprint(modelId, database);
-  fingerprints.set(modelId, { at: now, value });
-  value.catch(() => fingerprints.delete(modelId));
-  return value;
-}
-
 export type FleetPageResult =
   | { state: 'missing' }
   | { state: 'computing'; model: { id: string; name: string } }
@@ -220,8 +209,9 @@ export type FleetPageResult =
  * those units, and the snapshot's state. `json()` gives the same as the API's body, from cached pieces.
  */
 export async function fleetPage(modelId: string, query: FleetQuery, database: Db = sharedDb(), wait: { ms: number } = { ms: FIRST_SNAPSHOT_WAIT_MS }): Promise<FleetPageResult> {
-  const [model] = await database.select({ id: armModels.id, name: armModels.name }).from(armModels).where(eq(armModels.id, modelId));
-  if (!model) return { state: 'missing' };
+  const [row] = await database.select({ id: armModels.id, name: armModels.name, version: armModels.fleetInputsVersion }).from(armModels).where(eq(armModels.id, modelId));
+  if (!row) return { state: 'missing' };
+  const model = { id: row.id, name: row.name };
   let snap = await latestSnapshot(modelId, database);
   if (!snap) {
     // Queued again (at most every 3 s) while waiting, so a queue that was briefly away does not leave it undone.
@@ -233,8 +223,8 @@ export async function fleetPage(modelId: string, query: FleetQuery, database: Db
     }
     if (!snap) return { state: 'computing', model };
   }
-  const [fingerprint, page] = await Promise.all([currentFingerprint(modelId, database), cachedPage(snap.id, query, database)]);
-  const pending = fingerprint !== snap.fingerprint;
+  const page = await cachedPage(snap.id, query, database);
+  const pending = fingerprintOf(row.version) !== snap.fingerprint;
   if (pending) await queueFleetSnapshot(modelId).catch((err) => log('warn', 'fleet snapshot not queued', { modelId, error: String((err as Error)?.message ?? err) }));
   const attention = page.units.length
     ? new Map((await database.select({ id: units.id, needsAttention: units.needsAttention }).from(units).where(inArray(units.id, page.units.map((u) => u.unitId)))).map((u) => [u.id, u.needsAttention]))

@@ -86,7 +86,8 @@ const likeEscape = (s: string) => s.replace(/[\\%_]/g, (c) => '\\' + c);
  * matching arm models to their revisions first; the model filter is the same revision list. The total is a
  * count over units alone (no joins), not a window over the whole filtered list.
  */
-export async function listUnits(query: UnitListQuery, database: Db = sharedDb()) {
+/** The list's two queries (the page, the count), built but not run: listUnits runs them, tests EXPLAIN them. */
+export async function unitListQueries(query: UnitListQuery, database: Db = sharedDb()) {
   const where: SQL[] = [];
   const revisionsWhere = async (cond: SQL) =>
     (await database.select({ id: armModelRevisions.id }).from(armModelRevisions).innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId)).where(cond)).map((r) => r.id);
@@ -113,8 +114,8 @@ export async function listUnits(query: UnitListQuery, database: Db = sharedDb())
     createdAt: units.createdAt,
   }[query.sort];
   const order = query.dir === 'asc' ? asc(column) : desc(column);
-  const [rows, [counted]] = await Promise.all([
-    database
+  return {
+    page: database
       .select({
         serial: units.serial,
         modelId: armModels.id,
@@ -134,8 +135,13 @@ export async function listUnits(query: UnitListQuery, database: Db = sharedDb())
       .orderBy(order, asc(units.serial))
       .limit(query.pageSize)
       .offset((query.page - 1) * query.pageSize),
-    database.select({ n: count() }).from(units).where(cond),
-  ]);
+    count: database.select({ n: count() }).from(units).where(cond),
+  };
+}
+
+export async function listUnits(query: UnitListQuery, database: Db = sharedDb()) {
+  const q = await unitListQueries(query, database);
+  const [rows, [counted]] = await Promise.all([q.page, q.count]);
   const items: UnitRow[] = rows.map((r) => ({ ...r, createdAt: r.createdAt.toISOString() }));
   return { items, total: counted?.n ?? 0, page: query.page, pageSize: query.pageSize };
 }

@@ -15,7 +15,7 @@ export const POST: APIRoute = async ({ request, locals }) => {
   if (!read.ok) return read.response;
   const parsed = batchSchema.safeParse(read.value);
   if (!parsed.success) return problems(400, 'Invalid export request.', zodProblems(parsed.error));
-  const result = await exportBatch(parsed.data.serials, locals.user!);
+  const result = await exportBatch(parsed.data.serials, locals.user!, undefined, { certificates: parsed.data.certificates });
   if (!result.ok) {
     const index = (s: string) => parsed.data.serials.indexOf(s);
     return problems(400, 'Some units cannot be exported.', [

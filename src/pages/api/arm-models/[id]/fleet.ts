@@ -1,6 +1,7 @@
 import type { APIRoute } from 'astro';
 import { fleetPage, fleetQuerySchema } from '../../../../lib/server/fleet-snapshots';
-import { isUuid, json, problems, zodProblems } from '../../../../lib/server/http';
+import { isUuid, json, problems } from '../../../../lib/server/http';
+import { queryProblems } from '../../../../lib/server/units';
 
 /**
  * Fleet statistics of an arm model over its units' current approved sets, from the latest snapshot: the
@@ -9,7 +10,7 @@ import { isUuid, json, problems, zodProblems } from '../../../../lib/server/http
 export const GET: APIRoute = async ({ params, url }) => {
   if (!isUuid(params.id)) return problems(404, 'No such arm model.');
   const q = fleetQuerySchema.safeParse(Object.fromEntries(url.searchParams));
-  if (!q.success) return problems(400, 'Invalid query.', zodProblems(q.error));
+  if (!q.success) return problems(400, 'Invalid query.', queryProblems(q.error));
   const result = await fleetPage(params.id, q.data);
   if (result.state === 'missing') return problems(404, 'No such arm model.');
   if (result.state === 'computing') {
