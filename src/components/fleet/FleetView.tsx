@@ -265,7 +265,7 @@ export default function FleetView({ modelName, parameters, units, outside, stati
           configurations within the joint limits, in the robot base frame.
         </p>
         {positionError.fleet && (
-          <p className="num text-left" data-fleet-position-error>
+          <p className="num text-left whitespace-normal" data-fleet-position-error>
             Fleet: largest {fmt(positionError.fleet.maxMm, 'mm')} mm · mean of unit maxima {fmt(positionError.fleet.meanMaxMm, 'mm')} mm · RMS {fmt(positionError.fleet.rmsMm, 'mm')} mm
           </p>
         )}
