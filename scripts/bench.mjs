@@ -5,6 +5,8 @@
 //   load   — HTTP load against a seeded app (scripts/bench-load.mjs), when present
 //   certificate — time to draw a calibration certificate and its accuracy map
 //   scale  — upload, fit, pages and APIs at 1 000 / 10 000 / 100 000 poses (scripts/bench-scale.ts)
+//   fleet  — fleet statistics, drift, unit list and export log under 20 clients at 100 / 1 000 / 10 000 units,
+//            the first statistics computation and a 1 000-unit batch export (scripts/bench-fleet.ts)
 // Pass a name to run one: npm run bench -- engine
 import { spawnSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
@@ -16,6 +18,7 @@ const parts = [
   { name: 'load', cmd: ['node', 'scripts/bench-load.mjs'], file: 'scripts/bench-load.mjs' },
   { name: 'certificate', cmd: ['npx', 'tsx', 'scripts/bench-certificate.ts'] },
   { name: 'scale', cmd: ['npx', 'tsx', 'scripts/bench-scale.ts'], file: 'scripts/bench-scale.ts' },
+  { name: 'fleet', cmd: ['npx', 'tsx', 'scripts/bench-fleet.ts', ...process.argv.slice(3)], file: 'scripts/bench-fleet.ts' },
 ];
 let status = 0;
 for (const p of parts) {

@@ -37,4 +37,6 @@ await startWorker({ concurrency });
 // The worker also sends signed webhooks (the queue is shared, so any process may send any delivery).
 (await import('../src/lib/server/webhooks')).startWebhookSender();
 await (await import('../src/lib/server/compensations')).startCompensationWorker();
+// And computes the fleet statistics' snapshots.
+await (await import('../src/lib/server/fleet-snapshots')).startFleetSnapshotWorker();
 log('info', 'fit worker ready', { pid: process.pid, concurrency, engine: engineMode() });

@@ -18,6 +18,8 @@ export interface LogEntry {
   kind: 'single' | 'batch' | 'compensation';
   format: string;
   items: { serial: string; version: number; parameterSetId: string }[];
+  /** All items of the entry (items lists the first ones). */
+  itemCount?: number;
   userName: string;
   userEmail: string;
 }
@@ -60,7 +62,7 @@ function ExportLog({ initial, refresh }: { initial: LogPage; refresh: number }) 
                 <td>{e.userName}<br /><span className="text-xs text-ink-soft">{e.userEmail}</span></td>
                 <td>{e.kind === 'batch' ? 'batch (zip)' : e.kind === 'compensation' ? 'compensated program' : 'single file'}</td>
                 <td>{e.format}</td>
-                <td>{e.items.map((i) => `${i.serial} v${i.version}`).join(', ')}</td>
+                <td>{e.items.map((i) => `${i.serial} v${i.version}`).join(', ')}{(e.itemCount ?? 0) > e.items.length ? ` … and ${e.itemCount! - e.items.length} more (${e.itemCount} units)` : ''}</td>
               </tr>
             ))}
           </tbody>

@@ -18,6 +18,10 @@ export interface FleetViewProps {
   outside: FleetOutside[];
   statistics: { rule: string; alpha: number; criticalScore: number | null; judgedParameters: number };
   positionError: { samples: number; fleet: { maxMm: number; meanMaxMm: number; rmsMm: number } | null };
+  /** Out-of-line entries in the whole fleet (`outside` holds those of this page's units). */
+  outsideCount?: number;
+  /** The page of units shown (units are served page by page, out of line first). */
+  unitsPage?: { page: number; pageSize: number; total: number };
 }
 
 const GROUP_LABEL: Record<string, string> = { lengths: 'Lengths', twists: 'Twists', offsets: 'Zero offsets', beta: 'Beta', base: 'Base frame', tool: 'Tool point' };
@@ -164,7 +168,9 @@ function Matrix({ parameters, units }: { parameters: FleetParameter[]; units: Fl
   );
 }
 
-export default function FleetView({ modelName, parameters, units, outside, statistics, positionError }: FleetViewProps) {
+export default function FleetView({ modelName, parameters, units, outside, statistics, positionError, outsideCount, unitsPage }: FleetViewProps) {
+  const paged = !!unitsPage && unitsPage.total > units.length;
+  const onPage = paged ? ` (units ${(unitsPage!.page - 1) * unitsPage!.pageSize + 1}–${(unitsPage!.page - 1) * unitsPage!.pageSize + units.length} of ${unitsPage!.total}, out of line first)` : '';
   const judged = parameters.filter((p) => p.judged);
   const firstOutside = outside[0]?.key;
   const [selected, setSelected] = useState(firstOutside ?? judged[0]?.key ?? parameters[0]?.key ?? '');
@@ -181,8 +187,13 @@ export default function FleetView({ modelName, parameters, units, outside, stati
           {statistics.judgedParameters} parameter{statistics.judgedParameters === 1 ? '' : 's'} judged per unit; the line is ±{statistics.criticalScore?.toFixed(2) ?? '—'} on the score scale in every chart below.
           Measured by seeded simulation of fleets of identical units (8, 20 and 200 units, 24 parameters): about 4 % of units flagged by chance; a unit with one parameter 6 fleet σ off is flagged in over 95 % of fleets of 8 or more.
         </p>
+        {paged && (
+          <p className="text-sm" data-fleet-outside-count>
+            {outsideCount ?? outside.length} out-of-line value{(outsideCount ?? outside.length) === 1 ? '' : 's'} in the whole fleet; listed here: those of the units on this page{onPage}.
+          </p>
+        )}
         {outside.length === 0 ? (
-          <p className="notice">● No unit is out of line with the rest of the fleet by this rule.</p>
+          <p className="notice">● {paged && (outsideCount ?? 0) > 0 ? 'No unit on this page is out of line (they come first: see page 1).' : 'No unit is out of line with the rest of the fleet by this rule.'}</p>
         ) : (
           <div className="overflow-x-auto">
             <table className="data-table" data-outside-list>
@@ -218,6 +229,7 @@ export default function FleetView({ modelName, parameters, units, outside, stati
             ))}
           </select>
         </label>
+        {paged && <p className="text-sm text-ink-soft">The chart shows the units on this page{onPage}; the table of all parameters below covers the whole fleet.</p>}
         {p && <Distribution p={p} units={units} critical={statistics.criticalScore} />}
         <details>
           <summary className="min-h-11 cursor-pointer font-semibold">All parameters: spread and what is judged</summary>
@@ -242,6 +254,7 @@ export default function FleetView({ modelName, parameters, units, outside, stati
 
       <section className="flex flex-col gap-2" aria-label="Units × parameters">
         <h2>Units × judged parameters (score against the other units)</h2>
+        {paged && <p className="text-sm text-ink-soft">Units on this page{onPage}.</p>}
         <Matrix parameters={parameters} units={units} />
       </section>
 
@@ -252,10 +265,11 @@ export default function FleetView({ modelName, parameters, units, outside, stati
           configurations within the joint limits, in the robot base frame.
         </p>
         {positionError.fleet && (
-          <p className="num text-left" data-fleet-position-error>
+          <p className="num text-left whitespace-normal" data-fleet-position-error>
             Fleet: largest {fmt(positionError.fleet.maxMm, 'mm')} mm · mean of unit maxima {fmt(positionError.fleet.meanMaxMm, 'mm')} mm · RMS {fmt(positionError.fleet.rmsMm, 'mm')} mm
           </p>
         )}
+        <div className="overflow-x-auto">
         <table className="data-table">
           <thead><tr><th>Unit</th><th className="num">Version</th><th className="num">Max (mm)</th><th className="num">RMS (mm)</th><th>Attention</th></tr></thead>
           <tbody>
@@ -268,6 +282,7 @@ export default function FleetView({ modelName, parameters, units, outside, stati
             ))}
           </tbody>
         </table>
+        </div>
       </section>
     </div>
   );

@@ -1,5 +1,5 @@
 import { sql } from 'drizzle-orm';
-import { integer, jsonb, pgTable, text, unique, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
+import { bigint, integer, jsonb, pgTable, text, unique, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
 import type { ArmGeometry } from '../../lib/engine/types';
 import { createdAt, id } from './columns';
 import { users } from './users';
@@ -40,6 +40,11 @@ export const armModels = pgTable(
     description: text().notNull().default(''),
     tolerances: jsonb().$type<GroupTolerances>(),
     judgement: jsonb().$type<JudgementSettings>(),
+    /**
+     * Counts changes of what the fleet statistics are computed from: a trigger (migrations) adds one whenever a
+     * parameter set of one of the model's units is inserted or changes state, or the judgement settings change.
+     */
+    fleetInputsVersion: bigint({ mode: 'number' }).notNull().default(0),
     createdBy: uuid().references(() => users.id),
     createdAt: createdAt(),
   },

@@ -1,5 +1,5 @@
 import { sql } from 'drizzle-orm';
-import { boolean, date, pgTable, text, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
+import { boolean, date, index, pgTable, text, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
 import { armModelRevisions } from './arm-models';
 import { createdAt, id } from './columns';
 import { users } from './users';
@@ -23,5 +23,11 @@ export const units = pgTable(
   (t) => [
     // Serial numbers are unique whatever the letter case, also under concurrent registrations.
     uniqueIndex('units_serial_lower_unique').on(sql`lower(${t.serial})`),
+    // A model's units (fleet, the list's model filter) without reading every unit.
+    index('units_model_revision_idx').on(t.modelRevisionId, t.serial),
+    // The list's search box (contains, any case) and site filter: trigram indexes (pg_trgm, migration 0012).
+    index('units_serial_trgm').using('gin', t.serial.op('gin_trgm_ops')),
+    index('units_site_trgm').using('gin', t.site.op('gin_trgm_ops')),
+    index('units_cell_trgm').using('gin', t.cell.op('gin_trgm_ops')),
   ],
 );

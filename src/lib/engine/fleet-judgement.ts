@@ -114,6 +114,102 @@ export function screened(values: number[], limit = SCREEN): { kept: number[]; me
   return { kept, median: med, robustSd };
 }
 
+/**
+ * The screened reference of one parameter for every unit in turn — `screened(values without unit i's value)`
+ * and the mean and sample variance of what is kept — without sorting the others again for each unit: with
+ * the values sorted once, the others' median is an index, their MAD the k-th smallest absolute deviation of
+ * a sorted list with one element left out (the k nearest values form a window; its position is found by
+ * bisection), the kept values a contiguous range, and their sums come from prefix sums (shifted by the
+ * fleet's median so the variance does not cancel). Median, MAD and the screening are exactly those of
+ * `screened`; mean and variance agree with summing the kept values to rounding (relative 1e-15).
+ */
+export class LeaveOneOut {
+  private readonly sorted: Float64Array;
+  private readonly p1: Float64Array;
+  private readonly p2: Float64Array;
+  private readonly shift: number;
+  constructor(values: readonly number[], private readonly limit = SCREEN) {
+    this.sorted = Float64Array.from(values).sort();
+    const n = this.sorted.length;
+    this.shift = n ? this.sorted[n >> 1]! : 0;
+    this.p1 = new Float64Array(n + 1);
+    this.p2 = new Float64Array(n + 1);
+    for (let j = 0; j < n; j++) {
+      const d = this.sorted[j]! - this.shift;
+      this.p1[j + 1] = this.p1[j]! + d;
+      this.p2[j + 1] = this.p2[j]! + d * d;
+    }
+  }
+
+  /** Reference without one occurrence of x (x must be one of the values); null when fewer than `minKept` are kept. */
+  without(x: number, minKept: number): { m: number; mean: number; variance: number } | null {
+    const S = this.sorted;
+    const n = S.length;
+    // Position of one occurrence of x.
+    let lo = 0, hi = n - 1;
+    while (lo < hi) {
+      const mid = (lo + hi) >> 1;
+      if (S[mid]! < x) lo = mid + 1;
+      else hi = mid;
+    }
+    const r = lo;
+    const m = n - 1;
+    if (m < 1) return null;
+    const o = (j: number) => S[j < r ? j : j + 1]!;
+    const med = m % 2 ? o((m - 1) / 2) : 0.5 * (o(m / 2 - 1) + o(m / 2));
+    // k-th smallest |o(j) − med| (1-based): min over windows [L, L+k−1] of max(med − o(L), o(L+k−1) − med).
+    const kth = (k: number) => {
+      let a = 0, b = m - k + 1;
+      while (a < b) {
+        const L = (a + b) >> 1;
+        if (o(L + k - 1) - med >= med - o(L)) b = L;
+        else a = L + 1;
+      }
+      const right = a <= m - k ? o(a + k - 1) - med : Infinity;
+      const left = a > 0 ? med - o(a - 1) : Infinity;
+      return Math.min(right, left);
+    };
+    const mad = m % 2 ? kth((m + 1) / 2) : 0.5 * (kth(m / 2) + kth(m / 2 + 1));
+    const robustSd = 1.4826 * mad;
+    let first = 0, last = m - 1;
+    if (robustSd > 0) {
+      const lim = this.limit * robustSd;
+      let a = 0, b = m;
+      while (a < b) {
+        const j = (a + b) >> 1;
+        const v = o(j);
+        if (v >= med || Math.abs(v - med) <= lim) b = j;
+        else a = j + 1;
+      }
+      first = a;
+      a = first;
+      b = m;
+      while (a < b) {
+        const j = (a + b) >> 1;
+        const v = o(j);
+        if (v <= med || Math.abs(v - med) <= lim) a = j + 1;
+        else b = j;
+      }
+      last = a - 1;
+    }
+    const count = last - first + 1;
+    if (count < minKept) return null;
+    const low = o(first), high = o(last);
+    if (low === high) return { m: count, mean: low, variance: 0 };
+    const sFirst = first < r ? first : first + 1;
+    const sLast = last < r ? last : last + 1;
+    let s1 = this.p1[sLast + 1]! - this.p1[sFirst]!;
+    let s2 = this.p2[sLast + 1]! - this.p2[sFirst]!;
+    if (r >= sFirst && r <= sLast) {
+      const d = S[r]! - this.shift;
+      s1 -= d;
+      s2 -= d * d;
+    }
+    const variance = count > 1 ? Math.max(0, (s2 - (s1 * s1) / count) / (count - 1)) : 0;
+    return { m: count, mean: this.shift + s1 / count, variance };
+  }
+}
+
 function meanVar(v: number[]): { mean: number; variance: number } {
   const m = v.reduce((a, b) => a + b, 0) / v.length;
   const variance = v.length > 1 ? v.reduce((a, b) => a + (b - m) * (b - m), 0) / (v.length - 1) : 0;
@@ -187,23 +283,19 @@ export function judgeFleet(input: FleetJudgementInput): FleetJudgement {
   // The prior a parameter is judged with comes from the OTHER parameters of its group, so an odd value
   // cannot widen its own limits through the prior.
   const priorOf = new Map(judged.map((p) => [p.key, priorFrom(fleetRefs, p.group, p.key)]));
+  // Each unit's reference is the other units' values of the parameter, screened (see LeaveOneOut).
+  const leaveOneOut = new Map(judged.map((p) => [p.key, new LeaveOneOut(valuesOf(p.key, -1))]));
   const out: UnitJudgement[] = units.map((u, i) => {
     const mine = judged.filter((p) => u.deviations[p.key] !== undefined && Number.isFinite(u.deviations[p.key]));
     const K = mine.length;
     const level = K ? alpha / K : alpha;
     const criticalScore = normalEquivalent(level);
     const result: UnitJudgement = { id: u.id, judgedCount: K, criticalScore, flagged: false, flags: [], parameters: {} };
-    const refs = new Map<string, number[]>();
-    for (const p of judged) {
-      const ref = screened(valuesOf(p.key, i)).kept;
-      if (ref.length >= MIN_UNITS - 1) refs.set(p.key, ref);
-    }
     for (const p of mine) {
       const x = u.deviations[p.key]!;
-      const ref = refs.get(p.key);
+      const ref = leaveOneOut.get(p.key)!.without(x, MIN_UNITS - 1);
       if (!ref) continue;
-      const m = ref.length;
-      const { mean, variance } = meanVar(ref);
+      const { m, mean, variance } = ref;
       const prior = priorOf.get(p.key) ?? null;
       let s2: number, nu: number;
       if (!prior) {

@@ -16,6 +16,7 @@ export function startBackground() {
       void startWorker({ concurrency: 1 }).catch((err) => log('error', 'fit worker did not start', { error: String(err) }));
       void import('./webhooks').then(({ startWebhookSender }) => startWebhookSender());
       void import('./compensations').then(({ startCompensationWorker }) => startCompensationWorker()).catch((err) => log('error', 'compensation worker did not start', { error: String(err) }));
+      void import('./fleet-snapshots').then(({ startFleetSnapshotWorker }) => startFleetSnapshotWorker()).catch((err) => log('error', 'fleet snapshot worker did not start', { error: String(err) }));
       // A running fit finishes (or is handed back to the queue) before the process exits.
       process.once('SIGTERM', () => void stopWorker(10_000).finally(() => process.exit(0)));
     });

@@ -279,6 +279,16 @@ export async function acknowledgeAlert(alertId: string, comment: string, actorId
 
 const iso = (d: Date | string) => (d instanceof Date ? d.toISOString() : new Date(d).toISOString());
 
+/** A unit's approved sets in version order (the drift history's main query; tests EXPLAIN it). */
+export function unitSetsQuery(unitId: string, database: Conn = sharedDb()) {
+  return database
+    .select({ id: parameterSets.id, version: parameterSets.version, state: parameterSets.state, geometry: parameterSets.geometry, standardErrors: parameterSets.standardErrors, approvedAt: parameterSets.approvedAt, approvedBy: users.name })
+    .from(parameterSets)
+    .innerJoin(users, eq(users.id, parameterSets.approvedBy))
+    .where(eq(parameterSets.unitId, unitId))
+    .orderBy(asc(parameterSets.version));
+}
+
 /**
  * A unit's drift: every parameter's history over its approved versions (and, with includeFits, every
  * fitted fit), each point with its standard error, and the change from the previous version against the
@@ -293,12 +303,7 @@ export async function unitDrift(serial: string, options: { includeFits?: boolean
     .where(eq(units.serial, serial));
   if (!unit) return undefined;
   const tolerances = { ...DEFAULT_TOLERANCES, ...(unit.tolerances ?? {}) };
-  const sets = await database
-    .select({ id: parameterSets.id, version: parameterSets.version, state: parameterSets.state, geometry: parameterSets.geometry, standardErrors: parameterSets.standardErrors, approvedAt: parameterSets.approvedAt, approvedBy: users.name })
-    .from(parameterSets)
-    .innerJoin(users, eq(users.id, parameterSets.approvedBy))
-    .where(eq(parameterSets.unitId, unit.id))
-    .orderBy(asc(parameterSets.version));
+  const sets = await unitSetsQuery(unit.id, database);
   const fitRows = options.includeFits
     ? await database
         .select({ id: fits.id, calibrated: fits.calibrated, report: fits.report, reviewState: fits.reviewState, finishedAt: fits.finishedAt, createdAt: fits.createdAt })

@@ -1,18 +1,19 @@
 /**
  * Export bundles of approved parameter sets for a controller: the arm geometry JSON, a flat CSV of the
  * parameters, a URDF and a manifest with the SHA-256 of each file (structure: README, "Export files").
- * One set as a single file, or a batch as a zip with one folder per unit (plus its calibration
+ * One set as a single file, or a batch as a zip (streamed) with one folder per unit (plus its calibration
  * certificate), a top-level manifest and a SHA256SUMS file that `sha256sum -c` verifies.
  * Every export is written to export_log (who, kind, format, serial + version + set id of each item).
  */
-import { and, asc, count, desc, eq, inArray } from 'drizzle-orm';
-import JSZip from 'jszip';
+import { and, asc, count, desc, eq, inArray, sql } from 'drizzle-orm';
+import archiver, { type Archiver } from 'archiver';
 import { z } from 'zod';
 import { armModelRevisions, armModels, exportLog, parameterSets, units, users } from '../../db/schema';
 import { SAFETY_CAUTION } from '../shared/safety';
 import { renderCertificateFor } from './certificate';
 import { db as sharedDb, type Db } from './db';
 import { buildFiles, CERTIFICATE_FILE, loadSets, logExport, MEDIA_TYPES, unitManifest, type ExportActor, type ExportFormat, type SetRow } from './parameter-set-files';
+import { log } from './log';
 import { sha256 } from './tokens';
 import type { UrdfRoot } from './urdf';
 
@@ -30,70 +31,167 @@ export async function exportSingle(setId: string, format: ExportFormat, actor: E
   };
 }
 
+/** Most units in one batch export (the zip is streamed, so the size is bounded by time, not memory). */
+export const BATCH_LIMIT = 10_000;
+
 export const batchSchema = z.strictObject({
   serials: z
     .array(z.string({ error: 'each serial number must be text' }).trim().min(1, 'a serial number must not be empty'), { error: 'serials must be a list of serial numbers' })
     .min(1, 'serials must list at least one serial number')
-    .max(500, 'at most 500 units per batch'),
+    .max(BATCH_LIMIT, `at most ${BATCH_LIMIT} units per batch`),
+  /** Leave the certificates out (controller files only; drawing a certificate takes ~0.1 s of CPU per unit). */
+  certificates: z.boolean({ error: 'certificates must be true or false' }).default(true),
 });
 
 export type BatchResult =
-  | { ok: true; zip: Uint8Array; fileName: string; manifest: ReturnType<typeof batchManifest> }
+  | { ok: true; stream: ReadableStream<Uint8Array>; fileName: string; done: Promise<void> }
   | { ok: false; unknown: string[]; withoutSet: string[] };
 
-function batchManifest(actor: ExportActor, exportedAt: string, entries: { s: SetRow; files: { path: string; bytes: number; sha256: string }[] }[]) {
-  return {
-    format: 'offsetry-export-batch/1',
-    exportedAt,
-    exportedBy: { name: actor.name, email: actor.email },
-    units: entries.map(({ s, files }) => ({ serial: s.currentSerial, version: s.version, parameterSetId: s.setId, folder: `${s.currentSerial}/`, files })),
-    safety: SAFETY_CAUTION,
-  };
-}
+type ManifestEntry = { serial: string; version: number; parameterSetId: string; folder: string; files: { path: string; bytes: number; sha256: string }[] };
+
+/** Units whose sets are read from the database at a time while the zip is written. */
+const READ_BATCH = 100;
 
 /**
  * Each unit's CURRENT set as a zip: <serial>/geometry.json, parameters.csv, robot.urdf, certificate.pdf,
- * manifest.json, plus
- * the top-level manifest.json and SHA256SUMS (every other file, in the format `sha256sum -c` reads: hex
- * digest, two spaces, path relative to the zip's root).
+ * manifest.json, plus the top-level manifest.json and SHA256SUMS (every other file, in the format
+ * `sha256sum -c` reads: hex digest, two spaces, path relative to the zip's root).
+ *
+ * The zip is written while it is sent (archiver): sets are read READ_BATCH units at a time, each file is
+ * handed to the zip and the next unit waits until the zip has taken the previous one and the client has
+ * read all but HIGH_WATER bytes of the output (archiver itself does not wait for the reader). What stays in memory is the manifest's list of files and digests,
+ * not the files. The export is logged when every unit's files are written, before the zip's last entries.
  */
-export async function exportBatch(serials: string[], actor: ExportActor, database: Db = sharedDb()): Promise<BatchResult> {
+export async function exportBatch(serials: string[], actor: ExportActor, database: Db = sharedDb(), options: { certificates?: boolean } = {}): Promise<BatchResult> {
   const wanted = [...new Set(serials)];
-  const found = await database.select({ id: units.id, serial: units.serial }).from(units).where(inArray(units.serial, wanted));
-  const known = new Map(found.map((u) => [u.serial, u.id]));
+  const found = await database
+    .select({ id: units.id, serial: units.serial, setId: parameterSets.id })
+    .from(units)
+    .leftJoin(parameterSets, and(eq(parameterSets.unitId, units.id), eq(parameterSets.state, 'current')))
+    .where(inArray(units.serial, wanted));
+  const known = new Map(found.map((u) => [u.serial, u]));
   const unknown = wanted.filter((s) => !known.has(s));
-  const sets = found.length ? await loadSets({ unitIds: found.map((u) => u.id) }, database) : [];
-  const withSet = new Set(sets.map((s) => s.currentSerial));
-  const withoutSet = wanted.filter((s) => known.has(s) && !withSet.has(s));
+  const withoutSet = wanted.filter((s) => known.has(s) && !known.get(s)!.setId);
   if (unknown.length || withoutSet.length) return { ok: false, unknown, withoutSet };
   const exportedAt = new Date().toISOString();
+  const archive = archiver('zip', { zlib: { level: 6 } });
+  const unitIds = wanted.map((s) => known.get(s)!.id);
+  const done = writeBatch(archive, unitIds, actor, exportedAt, database, options.certificates ?? true).catch((err) => {
+    log('warn', 'batch export stopped', { units: unitIds.length, error: String((err as Error)?.message ?? err) });
+    archive.destroy(err as Error);
+  });
+  return { ok: true, stream: webStream(archive), fileName: `offsetry-export-${exportedAt.slice(0, 19).replace(/[:T]/g, '-')}.zip`, done };
+}
+
+/** Bytes the zip may hold between the files handed to it and the client's reads before the next unit waits. */
+const HIGH_WATER = 256 * 1024;
+const wakers = new WeakMap<Archiver, () => void>();
+
+/** The zip as a web stream that pauses the zip while the client has 256 KiB unread (counted in bytes, not chunks). */
+function webStream(archive: Archiver): ReadableStream<Uint8Array> {
+  const wake = () => wakers.get(archive)?.();
+  return new ReadableStream<Uint8Array>(
+    {
+      start(controller) {
+        archive.on('data', (chunk: Buffer) => {
+          controller.enqueue(new Uint8Array(chunk.buffer, chunk.byteOffset, chunk.byteLength));
+          if ((controller.desiredSize ?? 0) <= 0) archive.pause();
+          wake();
+        });
+        archive.once('end', () => controller.close());
+        archive.once('error', (err) => controller.error(err));
+      },
+      pull() {
+        archive.resume();
+        wake();
+      },
+      cancel() {
+        archive.destroy(new Error('the client stopped reading'));
+      },
+    },
+    { highWaterMark: HIGH_WATER, size: (chunk) => chunk.byteLength },
+  );
+}
+
+/**
+ * What the zip holds that the client has not read: archiver's zip writer pushes its output without waiting
+ * (its internal stream, `_module`), then archiver's own buffers.
+ */
+function unread(archive: Archiver): number {
+  const inner = (archive as unknown as { _module?: { readableLength?: number } })._module?.readableLength ?? 0;
+  return inner + archive.writableLength + archive.readableLength;
+}
+
+async function writeBatch(archive: Archiver, unitIds: string[], actor: ExportActor, exportedAt: string, database: Db, withCertificates: boolean) {
   const date = new Date(exportedAt);
-  const zip = new JSZip();
-  const entries: { s: SetRow; files: { path: string; bytes: number; sha256: string }[] }[] = [];
-  const ordered = wanted.map((serial) => sets.find((s) => s.currentSerial === serial)!);
   const sums: string[] = [];
+  const entries: ManifestEntry[] = [];
+  const logged: { serial: string; version: number; setId: string }[] = [];
+  let closed: Error | undefined;
+  archive.on('error', (err) => (closed = err));
+  archive.on('close', () => (closed ??= new Error('the client stopped reading')));
+  let written = 0;
+  let appended = 0;
+  const waiters: (() => void)[] = [];
+  const wakeAll = () => waiters.splice(0).forEach((w) => w());
+  wakers.set(archive, wakeAll);
+  archive.on('entry', () => {
+    written++;
+    wakeAll();
+  });
+  /** Resolves once the zip has taken every file handed to it and the client has read all but HIGH_WATER of it. */
+  const drained = async () => {
+    while (written < appended || unread(archive) > HIGH_WATER) {
+      if (closed || archive.destroyed) throw closed ?? new Error('the zip was closed');
+      await new Promise<void>((r) => {
+        waiters.push(r);
+        const t = setTimeout(r, 50);
+        t.unref();
+      });
+    }
+  };
   const add = (path: string, bytes: Uint8Array) => {
-    zip.file(path, bytes, { date });
+    if (closed || archive.destroyed) throw closed ?? new Error('the zip was closed');
+    archive.append(Buffer.from(bytes.buffer, bytes.byteOffset, bytes.byteLength), { name: path, date });
+    appended++;
     const digest = sha256(bytes);
     sums.push(`${digest}  ${path}`);
     return { path, bytes: bytes.length, sha256: digest };
   };
-  for (const s of ordered) {
-    const folder = s.currentSerial;
-    const files = buildFiles(s);
-    const listed = files.map((f) => add(`${folder}/${f.name}`, f.bytes));
-    const certificate = add(`${folder}/${CERTIFICATE_FILE}`, await renderCertificateFor(s, database));
-    listed.push(certificate);
-    const manifestBytes = new TextEncoder().encode(JSON.stringify(unitManifest(s, files, exportedAt, certificate), null, 2) + '\n');
-    listed.push(add(`${folder}/manifest.json`, manifestBytes));
-    entries.push({ s, files: listed });
+  for (let i = 0; i < unitIds.length; i += READ_BATCH) {
+    const chunk = unitIds.slice(i, i + READ_BATCH);
+    const byUnit = new Map((await loadSets({ unitIds: chunk }, database)).map((s) => [s.unitId, s]));
+    const sets = chunk.map((id) => byUnit.get(id)).filter((s): s is SetRow => !!s);
+    // Two certificates are drawn at a time (report worker threads) while the zip takes the previous unit.
+    const draw = (s: SetRow | undefined) => (s && withCertificates ? renderCertificateFor(s, database) : undefined);
+    let nextCertificate = draw(sets[0]);
+    for (let k = 0; k < sets.length; k++) {
+      const s = sets[k]!;
+      const certificateBytes = await nextCertificate;
+      nextCertificate = draw(sets[k + 1]);
+      const folder = s.currentSerial;
+      const files = buildFiles(s);
+      const listed = files.map((f) => add(`${folder}/${f.name}`, f.bytes));
+      const certificate = certificateBytes ? add(`${folder}/${CERTIFICATE_FILE}`, certificateBytes) : undefined;
+      if (certificate) listed.push(certificate);
+      const manifestBytes = new TextEncoder().encode(JSON.stringify(unitManifest(s, files, exportedAt, certificate), null, 2) + '\n');
+      listed.push(add(`${folder}/manifest.json`, manifestBytes));
+      entries.push({ serial: s.currentSerial, version: s.version, parameterSetId: s.setId, folder: `${folder}/`, files: listed });
+      logged.push({ serial: s.serial, version: s.version, setId: s.setId });
+      await drained();
+    }
   }
-  const manifest = batchManifest(actor, exportedAt, entries);
+  const manifest = {
+    format: 'offsetry-export-batch/1',
+    exportedAt,
+    exportedBy: { name: actor.name, email: actor.email },
+    units: entries,
+    safety: SAFETY_CAUTION,
+  };
   add('manifest.json', new TextEncoder().encode(JSON.stringify(manifest, null, 2) + '\n'));
-  zip.file('SHA256SUMS', sums.join('\n') + '\n', { date });
-  const bytes = await zip.generateAsync({ type: 'uint8array', compression: 'DEFLATE', compressionOptions: { level: 6 } });
-  await logExport(database, actor, 'batch', 'zip', ordered);
-  return { ok: true, zip: bytes, fileName: `offsetry-export-${exportedAt.slice(0, 19).replace(/[:T]/g, '-')}.zip`, manifest };
+  await logExport(database, actor, 'batch', 'zip', logged);
+  archive.append(sums.join('\n') + '\n', { name: 'SHA256SUMS', date });
+  await archive.finalize();
 }
 
 export const logQuerySchema = z.strictObject({
@@ -101,17 +199,29 @@ export const logQuerySchema = z.strictObject({
   pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1, 'pageSize must be 1 to 200').max(200, 'pageSize must be 1 to 200').default(25),
 });
 
+/** Items listed per log entry; a batch of thousands of units says how many and lists the first ones. */
+export const LOG_ITEMS_SHOWN = 50;
+
+/** The export log page's query, newest first through the (at, id) index (tests EXPLAIN it). */
+export function exportLogQuery(page: number, pageSize: number, database: Db = sharedDb()) {
+  return database
+      .select({
+        id: exportLog.id, at: exportLog.at, kind: exportLog.kind, format: exportLog.format,
+        items: sql<{ serial: string; version: number; parameterSetId: string }[]>`jsonb_path_query_array(${exportLog.items}, ${`$[0 to ${LOG_ITEMS_SHOWN - 1}]`}::jsonpath)`,
+        itemCount: sql<number>`jsonb_array_length(${exportLog.items})`.mapWith(Number),
+        userName: users.name, userEmail: users.email,
+      })
+      .from(exportLog)
+      .innerJoin(users, eq(users.id, exportLog.userId))
+      .orderBy(desc(exportLog.at), desc(exportLog.id))
+      .limit(pageSize)
+      .offset((page - 1) * pageSize);
+}
+
 /** The export log, newest first, paginated. */
 export async function exportLogPage(page = 1, pageSize = 25, database: Db = sharedDb()) {
-  const [{ total }] = (await database.select({ total: count() }).from(exportLog)) as [{ total: number }];
-  const rows = await database
-    .select({ id: exportLog.id, at: exportLog.at, kind: exportLog.kind, format: exportLog.format, items: exportLog.items, userName: users.name, userEmail: users.email })
-    .from(exportLog)
-    .innerJoin(users, eq(users.id, exportLog.userId))
-    .orderBy(desc(exportLog.at), desc(exportLog.id))
-    .limit(pageSize)
-    .offset((page - 1) * pageSize);
-  return { page, pageSize, total, entries: rows.map((r) => ({ ...r, at: new Date(r.at).toISOString() })) };
+  const [[counted], rows] = await Promise.all([database.select({ total: count() }).from(exportLog), exportLogQuery(page, pageSize, database)]);
+  return { page, pageSize, total: counted?.total ?? 0, entries: rows.map((r) => ({ ...r, at: new Date(r.at).toISOString() })) };
 }
 
 /** Units with a current set, for the export picker. */

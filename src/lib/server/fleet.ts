@@ -6,7 +6,7 @@
  * nominal geometry instead of each unit's calibrated one. The computation runs in the engine's worker
  * thread (engine-runner.ts); this module only reads the rows and shapes the answer.
  */
-import { and, asc, eq, inArray } from 'drizzle-orm';
+import { and, asc, eq, inArray, sql } from 'drizzle-orm';
 import { armModelRevisions, armModels, fits, parameterSets, sessions, units, users } from '../../db/schema';
 import { FLEET_ALPHA } from '../engine/fleet-judgement';
 import { db as sharedDb, type Db } from './db';
@@ -128,16 +128,23 @@ export const FLEET_FALSE_ALARM = FLEET_ALPHA;
 
 export type FleetStatistics = NonNullable<Awaited<ReturnType<typeof fleetStatistics>>>;
 
-/** Arm models with their unit and current-set counts, for the fleet index. */
+/** Arm models with their unit and current-set counts, for the fleet index (counted in the database). */
 export async function fleetModels(database: Db = sharedDb()) {
   const models = await database.select({ id: armModels.id, name: armModels.name }).from(armModels).orderBy(asc(armModels.name));
   const counts = await database
-    .select({ modelId: armModelRevisions.modelId, unitId: units.id, needsAttention: units.needsAttention, setId: parameterSets.id })
+    .select({
+      modelId: armModelRevisions.modelId,
+      units: sql<number>`count(*)`.mapWith(Number),
+      withCurrentSet: sql<number>`count(${parameterSets.id})`.mapWith(Number),
+      needsAttention: sql<number>`count(*) filter (where ${units.needsAttention})`.mapWith(Number),
+    })
     .from(units)
     .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
-    .leftJoin(parameterSets, and(eq(parameterSets.unitId, units.id), eq(parameterSets.state, 'current')));
+    .leftJoin(parameterSets, and(eq(parameterSets.unitId, units.id), eq(parameterSets.state, 'current')))
+    .groupBy(armModelRevisions.modelId);
+  const byModel = new Map(counts.map((c) => [c.modelId, c]));
   return models.map((m) => {
-    const mine = counts.filter((c) => c.modelId === m.id);
-    return { ...m, units: mine.length, withCurrentSet: mine.filter((c) => c.setId).length, needsAttention: mine.filter((c) => c.needsAttention).length };
+    const c = byModel.get(m.id);
+    return { ...m, units: c?.units ?? 0, withCurrentSet: c?.withCurrentSet ?? 0, needsAttention: c?.needsAttention ?? 0 };
   });
 }

@@ -71,6 +71,7 @@ export async function stopJobQueue(timeoutMs: number): Promise<void> {
 }
 
 const ensured = new WeakMap<PgBoss, Map<string, Promise<void>>>();
+const creating = new WeakMap<PgBoss, Promise<void>>();
 
 /**
  * Create a queue of this process's pg-boss unless it exists (another process may create it at the same
@@ -81,7 +82,10 @@ export function ensureQueue(boss: PgBoss, queue: PgBoss.Queue): Promise<void> {
   ensured.set(boss, done);
   let promise = done.get(queue.name);
   if (!promise) {
-    promise = (async () => {
+    // One queue is created at a time per pg-boss instance: concurrent createQueue calls (each makes a
+    // partition of pg-boss's job table) deadlock in PostgreSQL.
+    const previous = creating.get(boss) ?? Promise.resolve();
+    promise = previous.catch(() => {}).then(async () => {
       if (!(await boss.getQueue(queue.name))) {
         try {
           await boss.createQueue(queue.name, queue);
@@ -90,7 +94,8 @@ export function ensureQueue(boss: PgBoss, queue: PgBoss.Queue): Promise<void> {
         }
       }
       await boss.updateQueue(queue.name, queue);
-    })();
+    });
+    creating.set(boss, promise);
     done.set(queue.name, promise);
     promise.catch(() => done.delete(queue.name));
   }

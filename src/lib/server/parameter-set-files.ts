@@ -183,7 +183,7 @@ export function unitManifest(s: SetRow, files: BuiltFile[], exportedAt: string, 
   };
 }
 
-export async function logExport(database: Db, actor: ExportActor, kind: 'single' | 'batch', format: string, sets: SetRow[]) {
+export async function logExport(database: Db, actor: ExportActor, kind: 'single' | 'batch', format: string, sets: Pick<SetRow, 'serial' | 'version' | 'setId'>[]) {
   await database.insert(exportLog).values({
     userId: actor.id,
     kind,

@@ -3,7 +3,7 @@
  * sorted / filtered / paginated list, the unit record with counts, its history and the pose plan for the
  * next visit.
  */
-import { and, asc, count, desc, eq, ilike, or, sql, type SQL } from 'drizzle-orm';
+import { and, asc, count, desc, eq, ilike, inArray, or, sql, type SQL } from 'drizzle-orm';
 import { cleanText, isCalendarDate } from '../shared/input';
 import { z } from 'zod';
 import { armModelRevisions, armModels, auditLog, fits, parameterSets, sessions, units, users } from '../../db/schema';
@@ -14,7 +14,6 @@ import { audit } from './audit';
 import { runEngineTask } from './engine-runner';
 import type { FieldProblem } from './http';
 import { db as sharedDb, type Db } from './db';
-import { pageTotal, windowTotal } from './paging';
 import type { UnitRow } from '../shared/unit-list';
 
 /**
@@ -81,14 +80,29 @@ export type UnitListQuery = z.infer<typeof unitListQuerySchema>;
 /** `%` and `_` are literal in a search box. */
 const likeEscape = (s: string) => s.replace(/[\\%_]/g, (c) => '\\' + c);
 
-export async function listUnits(query: UnitListQuery, database: Db = sharedDb()) {
+/**
+ * One page of units. Every condition is on the units table itself, so each can use an index: the search box
+ * matches serial, site and cell through trigram indexes (pg_trgm) and the model's name by resolving the few
+ * matching arm models to their revisions first; the model filter is the same revision list. The total is a
+ * count over units alone (no joins), not a window over the whole filtered list.
+ */
+/** The list's two queries (the page, the count), built but not run: listUnits runs them, tests EXPLAIN them. */
+export async function unitListQueries(query: UnitListQuery, database: Db = sharedDb()) {
   const where: SQL[] = [];
+  const revisionsWhere = async (cond: SQL) =>
+    (await database.select({ id: armModelRevisions.id }).from(armModelRevisions).innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId)).where(cond)).map((r) => r.id);
   if (query.q) {
     const pattern = `%${likeEscape(query.q)}%`;
-    where.push(or(ilike(units.serial, pattern), ilike(units.site, pattern), ilike(units.cell, pattern), ilike(armModels.name, pattern))!);
+    const byModelName = await revisionsWhere(ilike(armModels.name, pattern));
+    const any = [ilike(units.serial, pattern), ilike(units.site, pattern), ilike(units.cell, pattern)];
+    if (byModelName.length) any.push(inArray(units.modelRevisionId, byModelName));
+    where.push(or(...any)!);
   }
   if (query.site) where.push(ilike(units.site, likeEscape(query.site)));
-  if (query.model) where.push(eq(armModels.id, query.model));
+  if (query.model) {
+    const revisions = await revisionsWhere(eq(armModels.id, query.model));
+    where.push(revisions.length ? inArray(units.modelRevisionId, revisions) : sql`false`);
+  }
   const cond = where.length ? and(...where) : undefined;
   const column = {
     serial: units.serial,
@@ -100,38 +114,36 @@ export async function listUnits(query: UnitListQuery, database: Db = sharedDb())
     createdAt: units.createdAt,
   }[query.sort];
   const order = query.dir === 'asc' ? asc(column) : desc(column);
-  const rows = await database
-    .select({
-      serial: units.serial,
-      modelId: armModels.id,
-      model: armModels.name,
-      revision: armModelRevisions.revision,
-      site: units.site,
-      cell: units.cell,
-      commissionedOn: units.commissionedOn,
-      needsAttention: units.needsAttention,
-      createdAt: units.createdAt,
-      total: windowTotal(),
-    })
-    .from(units)
-    .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
-    .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
-    .where(cond)
-    // Serial breaks ties so pages never overlap.
-    .orderBy(order, asc(units.serial))
-    .limit(query.pageSize)
-    .offset((query.page - 1) * query.pageSize);
-  const total = await pageTotal(rows, query.page, async () => {
-    const [c] = await database
-      .select({ n: count() })
+  return {
+    page: database
+      .select({
+        serial: units.serial,
+        modelId: armModels.id,
+        model: armModels.name,
+        revision: armModelRevisions.revision,
+        site: units.site,
+        cell: units.cell,
+        commissionedOn: units.commissionedOn,
+        needsAttention: units.needsAttention,
+        createdAt: units.createdAt,
+      })
       .from(units)
       .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
       .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
-      .where(cond);
-    return c?.n ?? 0;
-  });
-  const items: UnitRow[] = rows.map(({ total: _total, ...r }) => ({ ...r, createdAt: r.createdAt.toISOString() }));
-  return { items, total, page: query.page, pageSize: query.pageSize };
+      .where(cond)
+      // Serial breaks ties so pages never overlap.
+      .orderBy(order, asc(units.serial))
+      .limit(query.pageSize)
+      .offset((query.page - 1) * query.pageSize),
+    count: database.select({ n: count() }).from(units).where(cond),
+  };
+}
+
+export async function listUnits(query: UnitListQuery, database: Db = sharedDb()) {
+  const q = await unitListQueries(query, database);
+  const [rows, [counted]] = await Promise.all([q.page, q.count]);
+  const items: UnitRow[] = rows.map((r) => ({ ...r, createdAt: r.createdAt.toISOString() }));
+  return { items, total: counted?.n ?? 0, page: query.page, pageSize: query.pageSize };
 }
 
 export type RegisterResult =

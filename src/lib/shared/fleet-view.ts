@@ -56,3 +56,52 @@ export interface FleetOutside {
   score: number;
   p: number;
 }
+
+/** A unit's row as a snapshot stores it (the attention flag is read live from the unit when served). */
+export type FleetUnitResult = Omit<FleetUnit, 'needsAttention'>;
+
+export interface FleetStatisticsHeader {
+  alpha: number;
+  rule: string;
+  priors: { group: ParameterGroup; parameters: number; priorDf: number | null; priorSd: number | null }[];
+  judgedParameters: number;
+  criticalScore: number | null;
+  toolFixture: boolean;
+}
+
+export interface FleetPositionErrorSummary {
+  samples: number;
+  seed: number;
+  frame: string;
+  fleet: { maxMm: number; meanMaxMm: number; rmsMm: number } | null;
+}
+
+/** The fleet statistics without the per-unit rows: what a snapshot keeps in one row. */
+export interface FleetSnapshotSummary {
+  model: { id: string; name: string };
+  statistics: FleetStatisticsHeader;
+  unitCount: number;
+  flaggedUnits: string[];
+  parameters: FleetParameter[];
+  /** How many (unit, parameter) pairs are out of line in the whole fleet. */
+  outsideCount: number;
+  positionError: FleetPositionErrorSummary;
+}
+
+/** When the figures were computed and whether a newer computation is due (the rule is in `rule`). */
+export interface FleetSnapshotState {
+  computedAt: string;
+  durationMs: number;
+  /** The model's current sets or judgement settings changed since: a new computation is queued or running. */
+  pending: boolean;
+  rule: string;
+}
+
+/** GET /api/arm-models/{id}/fleet: the summary, one page of units (flagged first, then by serial) and the snapshot's state. */
+export interface FleetPage extends FleetSnapshotSummary {
+  units: FleetUnit[];
+  /** The out-of-line entries of this page's units (flagged units come first, so page 1 starts with them). */
+  outside: FleetOutside[];
+  unitsPage: { page: number; pageSize: number; total: number };
+  snapshot: FleetSnapshotState;
+}

@@ -29,6 +29,7 @@ import { fitSettingsSchema } from '../fit-settings';
 import { fitListQuerySchema, refitSchema } from '../fits';
 import { fitPosePageSchema } from '../fit-poses';
 import { completeUploadSchema, startUploadSchema } from '../presigned-uploads';
+import { fleetQuerySchema } from '../fleet-snapshots';
 import { judgementSchema } from '../judgement';
 import { decisionSchema, rejectSchema, submitSchema } from '../reviews';
 import { sessionMetaSchema } from '../session-form';
@@ -128,7 +129,14 @@ export const API_DOCS: Record<string, RouteDoc> = {
     PUT: { tag: 'Arm models', summary: 'Change metadata and/or geometry (a used revision becomes the next one)', body: { schema: armModelUpdateMetaSchema }, ok: { schema: R.armModelChanged } },
   },
   '/api/arm-models/[id]/geometry': { GET: { tag: 'Arm models', summary: 'Download a revision\'s arm geometry file', query: geometryQuery, ok: { contentType: 'application/json', schema: R.geometrySchema } } },
-  '/api/arm-models/[id]/fleet': { GET: { tag: 'Fleet and drift', summary: 'Fleet statistics over the units\' current sets', ok: { schema: R.fleet } } },
+  '/api/arm-models/[id]/fleet': {
+    GET: {
+      tag: 'Fleet and drift',
+      summary: 'Fleet statistics over the units\' current sets, from the latest computation: the summary and one page of units, out of line first (202 while the first computation runs)',
+      query: fleetQuerySchema,
+      ok: { schema: R.fleet },
+    },
+  },
   '/api/arm-models/[id]/judgement': {
     GET: { tag: 'Fleet and drift', summary: 'Judgement settings: plausible change bounds, instrument noise, tool fixture (defaults until set)', ok: { schema: R.judgement } },
     PUT: { tag: 'Fleet and drift', summary: 'Replace the judgement settings (all four fields)', body: { schema: judgementSchema }, ok: { schema: R.judgement } },

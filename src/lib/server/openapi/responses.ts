@@ -207,7 +207,15 @@ export const fleet = z.looseObject({
     }),
   ),
   parameters: z.array(z.looseObject({ key: z.string(), unit: z.enum(['mm', 'deg']), n: z.number().int(), judged: z.boolean(), outside: z.array(z.string()) })),
-  outside: z.array(z.looseObject({ serial: z.string(), key: z.string(), deviation: z.number(), lower: z.number(), upper: z.number() })),
+  outside: z.array(z.looseObject({ serial: z.string(), key: z.string(), deviation: z.number(), lower: z.number(), upper: z.number() })).describe('Out-of-line values of the units on this page.'),
+  outsideCount: z.number().int().describe('Out-of-line values in the whole fleet.'),
+  unitsPage: z.looseObject({ page: z.number().int(), pageSize: z.number().int(), total: z.number().int() }),
+  snapshot: z.looseObject({
+    computedAt: isoTime,
+    durationMs: z.number().int(),
+    pending: z.boolean().describe('The current sets or judgement settings changed since: a newer computation is queued or running.'),
+    rule: z.string(),
+  }),
 });
 export const judgement = z.looseObject({
   modelId: id,

@@ -1,4 +1,5 @@
 import type { APIRoute } from 'astro';
+import { fleetInputsChanged } from '../../../../lib/server/fleet-snapshots';
 import { isUuid, json, problems, readJson, zodProblems } from '../../../../lib/server/http';
 import { judgementSchema, modelJudgement, setModelJudgement } from '../../../../lib/server/judgement';
 
@@ -19,5 +20,7 @@ export const PUT: APIRoute = async ({ params, request, locals }) => {
   if (!parsed.success) return problems(400, 'Invalid judgement settings.', zodProblems(parsed.error));
   const s = await setModelJudgement(params.id, parsed.data, locals.user!.id);
   if (!s) return problems(404, 'No such arm model.');
+  // Whether the tool point is judged changes the fleet statistics: computed again in the background.
+  await fleetInputsChanged(params.id);
   return json(s);
 };

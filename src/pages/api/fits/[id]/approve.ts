@@ -1,4 +1,5 @@
 import type { APIRoute } from 'astro';
+import { fleetInputsChangedByFit } from '../../../../lib/server/fleet-snapshots';
 import { isUuid, json, problems, readJson, zodProblems } from '../../../../lib/server/http';
 import { approveFit, decisionSchema } from '../../../../lib/server/reviews';
 
@@ -11,5 +12,7 @@ export const POST: APIRoute = async ({ params, request, locals }) => {
   if (!parsed.success) return problems(400, 'Invalid request.', zodProblems(parsed.error));
   const result = await approveFit(params.id, locals.user!, parsed.data.comment, undefined, { confirmOlderSession: parsed.data.confirmOlderSession });
   if (!result.ok) return problems(result.status, result.error);
+  // The unit's model's fleet statistics are computed again in the background.
+  await fleetInputsChangedByFit(params.id);
   return json(result);
 };
