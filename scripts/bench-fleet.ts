@@ -22,10 +22,8 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { startMailFake, startS3Fake } from './lib/fakes.mjs';
-import { findFreePorts } from './lib/ports.mjs';
-import { ensurePgBin, pgCluster, prepareClusterDir } from './lib/postgres.mjs';
-import { localBin, onShutdown, run, shutdown, spawnLogged, StartError, waitForPort } from './lib/proc.mjs';
+import { startBenchStack } from './lib/bench-stack';
+import { onShutdown, shutdown, spawnLogged, StartError, waitForPort } from './lib/proc.mjs';
 import { seedFleet } from './fleet-fixture';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
@@ -43,10 +41,6 @@ const EXPORT_UNITS = 1000;
 /** The first computation is waited for at most this long per size (the bench stays bounded). */
 const SNAPSHOT_LIMIT_MS = 15 * 60_000;
 const say = (line: string) => console.log(`[bench-fleet] ${line}`);
-const tool = (name: string, args: string[]): [string, string[]] => {
-  const bin = localBin(root, name);
-  return bin ? [bin, args] : ['npx', ['--no-install', name, ...args]];
-};
 const percentile = (sorted: number[], p: number) => (sorted.length ? sorted[Math.min(sorted.length - 1, Math.max(0, Math.ceil((p / 100) * sorted.length) - 1))]! : NaN);
 
 async function load(o: { base: string; tokens: string[]; path: () => string; duration: number }) {
@@ -96,59 +90,7 @@ function nodePid(pid: number): number {
 
 async function main() {
   const started = performance.now();
-  const runDir = fs.mkdtempSync('/tmp/offsetry-bench-fleet-');
-  fs.chmodSync(runDir, 0o755);
-  const logDir = path.join(runDir, 'logs');
-  fs.mkdirSync(logDir);
-  fs.symlinkSync(path.join(root, 'node_modules'), path.join(runDir, 'node_modules'), 'dir');
-  onShutdown(() => (flag('--keep') ? say(`kept ${runDir}`) : fs.rmSync(runDir, { recursive: true, force: true })));
-  const [pgPort, s3Port, smtpPort, mailApiPort, appPort] = await findFreePorts(5);
-  const cluster = pgCluster({
-    bin: await ensurePgBin({ log: say }),
-    dir: await prepareClusterDir(path.join(runDir, 'pg')),
-    port: pgPort,
-    // Throw-away data: durability off (PostgreSQL docs, "Non-Durable Settings"); reads are what we measure.
-    settings: { fsync: 'off', synchronous_commit: 'off', full_page_writes: 'off' },
-  });
-  await cluster.init();
-  await cluster.start();
-  onShutdown(() => cluster.stop('immediate'));
-  const databaseUrl = await cluster.ensureDatabase({ user: 'offsetry_bench', password: crypto.randomBytes(12).toString('base64url'), database: 'offsetry_bench' });
-  await Promise.all([
-    startS3Fake({ root, port: s3Port, dir: path.join(runDir, 's3'), bucket: 'offsetry-bench', logFile: path.join(logDir, 's3-fake.log') }),
-    startMailFake({ root, smtpPort, apiPort: mailApiPort, dir: path.join(runDir, 'mail'), logFile: path.join(logDir, 'mail-fake.log') }),
-  ]);
-  const base = `http://127.0.0.1:${appPort}`;
-  const env: NodeJS.ProcessEnv = {
-    ...process.env,
-    NODE_ENV: 'production',
-    OFFSETRY_MODE: 'demo',
-    HOST: '127.0.0.1',
-    PORT: String(appPort),
-    PUBLIC_BASE_URL: base,
-    AUTH_SECRET: crypto.randomBytes(32).toString('base64url'),
-    DATABASE_URL: databaseUrl,
-    S3_ENDPOINT: `http://127.0.0.1:${s3Port}`,
-    S3_REGION: 'us-east-1',
-    S3_BUCKET: 'offsetry-bench',
-    S3_ACCESS_KEY_ID: 'S3RVER',
-    S3_SECRET_ACCESS_KEY: 'S3RVER',
-    S3_FORCE_PATH_STYLE: 'true',
-    SMTP_HOST: '127.0.0.1',
-    SMTP_PORT: String(smtpPort),
-    SMTP_SECURE: 'false',
-    MAIL_FROM: 'Offsetry <no-reply@offsetry.local>',
-  };
-  delete env.OFFSETRY_OUT_DIR;
-  const [tsx, tsxArgs] = tool('tsx', ['scripts/migrate.ts']);
-  if ((await run(tsx, tsxArgs, { cwd: root, env, logFile: path.join(logDir, 'migrate.log'), allowFail: true })).code !== 0) throw new StartError('migrate failed', path.join(logDir, 'migrate.log'));
-  let entry = path.join(root, 'dist', 'server', 'entry.mjs');
-  if (!flag('--no-build')) {
-    const outDir = path.join(runDir, 'dist');
-    const [astro, astroArgs] = tool('astro', ['build']);
-    if ((await run(astro, astroArgs, { cwd: root, env: { ...env, OFFSETRY_OUT_DIR: outDir }, logFile: path.join(logDir, 'build.log'), allowFail: true })).code !== 0) throw new StartError('astro build failed', path.join(logDir, 'build.log'));
-    entry = path.join(outDir, 'server', 'entry.mjs');
-  }
+  const { logDir, databaseUrl, appPort, base, env, entry } = await startBenchStack({ root, name: 'fleet', say, keep: flag('--keep'), build: !flag('--no-build') });
 
   const { default: postgres } = await import('postgres');
   const sql = postgres(databaseUrl, { max: 2, onnotice: () => {} });
