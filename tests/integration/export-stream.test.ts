@@ -1,8 +1,9 @@
 /**
  * The batch export streams: exporting 1 000 units must not hold the zip (or its files) in memory. The export
  * runs in this process against the real database, its stream is written to a file while the heap and
- * buffers outside it are sampled after garbage collection; the growth from 200 to 1 000 units must stay
- * under a per-unit bound (the zip's central directory records, not the files) and an absolute bound. The zip is read
+ * buffers outside it are sampled after garbage collection at every block read; the growth from 200 to
+ * 1 000 units must stay under a per-unit bound (the zip's central directory records, not the files) and an
+ * absolute bound. The zip is read
  * back with Info-ZIP's unzip. Certificates are left out here (drawing 1 200 of them takes minutes on a small
  * machine; the batch test in exports.test.ts covers them, and the benchmark measures a full export).
  */
@@ -45,11 +46,11 @@ async function exportToFile(serials: string[], file: string, actor: { id: string
   if (!result.ok) throw new Error(`export refused: ${JSON.stringify(result)}`);
   const out = fs.createWriteStream(file);
   const reader = result.stream.getReader();
-  let chunks = 0;
   for (;;) {
     const { done, value } = await reader.read();
     if (done) break;
-    if (++chunks % 200 === 0) peak = Math.max(peak, used());
+    // Every block (about 64 KiB each, so a few dozen collections for a 5 MB zip).
+    peak = Math.max(peak, used());
     if (!out.write(value)) await new Promise<void>((r) => out.once('drain', () => r()));
   }
   await new Promise<void>((r, j) => out.end((err?: Error | null) => (err ? j(err) : r())));
@@ -66,20 +67,22 @@ describe('batch export streaming', () => {
     actor = { id: await userId(db, DEMO.service), name: 'Service Manager', email: DEMO.service };
   }, 120_000);
 
-  it('keeps memory flat from 200 to 1 000 units and writes a zip unzip reads', async () => {
+  it('keeps memory bounded per unit (not the files) from 200 to 1 000 units and writes a zip unzip reads', async () => {
     // A first small export loads the code paths, so the measured runs do not count module loading.
     await exportToFile(fleet.serials.slice(0, 20), path.join(dir, 'warm.zip'), actor);
     const small = await exportToFile(fleet.serials.slice(0, 200), path.join(dir, 'small.zip'), actor);
     const large = await exportToFile(fleet.serials, path.join(dir, 'large.zip'), actor);
     console.log(`batch export: 200 units ${(small.bytes / MB).toFixed(1)} MB, memory +${(small.growth / MB).toFixed(1)} MB; 1 000 units ${(large.bytes / MB).toFixed(1)} MB, memory +${(large.growth / MB).toFixed(1)} MB`);
-    // The large zip is ~5× the small one. What the export keeps is not the files but, per file, the record
-    // the zip's central directory needs at the end (archiver keeps each entry's record and writes the whole
-    // directory in one burst when it finishes): measured here about 20 KiB per unit of four files, so the
-    // growth is bounded per unit, whatever the files weigh, and far below holding the zip with its inputs.
+    // The large zip is ~5× the small one. The files are not kept; what grows with the units is what the
+    // zip's format and the export's file contract need at the end: each entry's central-directory record
+    // (archiver: about 0.5 KiB an entry measured alone, four entries a unit) and the top-level manifest.json
+    // and SHA256SUMS, which list every unit and are written last. Measured here about 7 KiB a unit in all
+    // (it was 20 KiB, while the stream's queue held archiver's small chunks as views into larger buffers):
+    // bounded per unit, not flat — the bound below says so.
     expect(large.bytes).toBeGreaterThan(4 * small.bytes);
     const perUnit = (large.growth - small.growth) / 800;
-    expect(perUnit).toBeLessThan(32 * 1024);
-    expect(large.growth).toBeLessThan(40 * MB);
+    expect(perUnit).toBeLessThan(10 * 1024);
+    expect(large.growth).toBeLessThan(16 * MB);
 
     // Read back with an outside reader: one folder per unit with its four files, plus manifest.json and SHA256SUMS.
     const listing = execFileSync('unzip', ['-Z1', path.join(dir, 'large.zip')], { encoding: 'utf8', maxBuffer: 64 * MB }).trim().split('\n');
