@@ -77,6 +77,9 @@ function ExportLog({ initial, refresh }: { initial: LogPage; refresh: number }) 
   );
 }
 
+/** Rows of the unit table at most (the filter searches every unit). */
+const ROWS_SHOWN = 200;
+
 /** Pick units with a current set; download one unit's files or a batch zip. Quality staff see the log only. */
 export default function ExportsPanel({ units, initialLog, canExport }: { units: ExportableUnit[]; initialLog: LogPage; canExport: boolean }) {
   const [filter, setFilter] = useState('');
@@ -93,6 +96,8 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
     const f = filter.trim().toLowerCase();
     return f ? units.filter((u) => `${u.serial} ${u.modelName} ${u.site}`.toLowerCase().includes(f)) : units;
   }, [filter, units]);
+  // At fleet size the list is thousands of units: the table shows the first ROWS_SHOWN that match the filter.
+  const visible = shown.slice(0, ROWS_SHOWN);
   const toggle = (s: string) => setPicked(picked.includes(s) ? picked.filter((x) => x !== s) : [...picked, s]);
 
   async function batch() {
@@ -139,7 +144,7 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
               <thead><tr><th>Pick</th><th>Unit</th><th>Arm model</th><th>Site</th><th className="num">Version</th><th>Approved (UTC)</th><th>One unit's files</th></tr></thead>
               <tbody>
                 {shown.length === 0 && <tr><td colSpan={7} className="text-ink-soft">No unit matches.</td></tr>}
-                {shown.map((u) => (
+                {visible.map((u) => (
                   <tr key={u.serial} data-export-unit={u.serial}>
                     <td><input type="checkbox" className="h-6 w-6" aria-label={`Pick ${u.serial}`} checked={picked.includes(u.serial)} disabled={!hydrated} onChange={() => toggle(u.serial)} /></td>
                     <td className="font-semibold">{u.serial}{u.needsAttention && <span className="badge ml-2 text-attention">▲ drift alert open</span>}</td>
@@ -159,6 +164,11 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
               </tbody>
             </table>
           </div>
+          {shown.length > visible.length && (
+            <p className="text-ink-soft" data-export-more>
+              Showing the first {visible.length} of {shown.length} units{filter.trim() ? ' that match' : ''}; type in the filter to narrow the list.
+            </p>
+          )}
           <div className="flex flex-wrap items-center gap-3">
             <button type="button" className="btn" disabled={!picked.length || busy} onClick={batch}>
               {busy ? 'Preparing…' : `Download batch (zip) of ${picked.length} unit${picked.length === 1 ? '' : 's'}`}
