@@ -3,7 +3,7 @@
  * request thread stays free: each entry takes and returns plain, structured-cloneable data.
  */
 import { checkGeometry } from '../engine/fit';
-import { planPoses, poseSetQuality } from '../engine/planner';
+import { planPoses } from '../engine/planner';
 import type { ArmGeometry } from '../engine/types';
 import { jointRanges, workspaceDifference } from '../engine/workspace';
 import { computeFleet } from './fleet-compute';
@@ -24,7 +24,6 @@ function compareWorkspace(a: ArmGeometry, b: ArmGeometry, nominal: ArmGeometry, 
 
 export const ENGINE_TASKS = {
   planPoses,
-  poseSetQuality,
   checkGeometry,
   positionErrors,
   compareWorkspace,

@@ -1,13 +1,13 @@
 /**
  * Engine checks of a stored session: the nominal model against the measured points (registration,
- * residuals, the plausibility rules that need no fit) and how well the poses determine the parameters.
+ * residuals, the plausibility rules that need no fit) and how well the poses determine the parameters (kept
+ * with the session page's digest).
  */
 import { createHash } from 'node:crypto';
-import { and, asc, eq } from 'drizzle-orm';
-import { armModelRevisions, sessionDigests, sessionPoses as poseRows, sessions } from '../../db/schema';
+import { and, eq } from 'drizzle-orm';
+import { armModelRevisions, sessionDigests, sessions } from '../../db/schema';
 import { ENGINE_VERSION } from '../engine/fit';
 import { sessionVerdicts, type Verdicts } from '../engine/plausibility';
-import type { PoseSetQuality } from '../engine/planner';
 import { EngineInputError, type ArmGeometry } from '../engine/types';
 import { db as sharedDb, type Db } from './db';
 import { runEngineTask } from './engine-runner';
@@ -17,13 +17,14 @@ import { log } from './log';
 import type { SessionDigest } from './session-digest-task';
 import { allSessionPoses } from './sessions';
 
-async function sessionGeometry(id: string, database: Db): Promise<ArmGeometry | undefined> {
+/** What a session's checks take besides its poses: the unit (for its judgement settings) and the revision's geometry. */
+async function sessionInputs(id: string, database: Db): Promise<{ unitId: string; geometry: ArmGeometry } | undefined> {
   const [row] = await database
-    .select({ geometry: armModelRevisions.geometry })
+    .select({ unitId: sessions.unitId, geometry: armModelRevisions.geometry })
     .from(sessions)
     .innerJoin(armModelRevisions, eq(armModelRevisions.id, sessions.modelRevisionId))
     .where(eq(sessions.id, id));
-  return row?.geometry;
+  return row;
 }
 
 export interface SessionCheck {
@@ -41,35 +42,19 @@ export interface SessionCheck {
  * error: for the API. The session page reads the kept digest instead (sessionPageDigest below).
  */
 export async function sessionCheck(id: string, database: Db = sharedDb()): Promise<SessionCheck | undefined> {
-  const geometry = await sessionGeometry(id, database);
-  if (!geometry) return undefined;
+  const inputs = await sessionInputs(id, database);
+  if (!inputs) return undefined;
+  const { geometry } = inputs;
   const poses = await allSessionPoses(id, database);
   try {
     // Registration and residuals over every pose: on an engine thread, not the request thread.
     const report = await runEngineTask('checkGeometry', geometry, poses);
-    const [unit] = await database.select({ unitId: sessions.unitId }).from(sessions).where(eq(sessions.id, id));
-    const verdicts = sessionVerdicts(geometry, poses, unit ? await unitJudgement(unit.unitId, database) : undefined, report.stats.rms);
+    const verdicts = sessionVerdicts(geometry, poses, await unitJudgement(inputs.unitId, database), report.stats.rms);
     return { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })), verdicts };
   } catch (e) {
     if (!(e instanceof EngineInputError)) throw e;
     return { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], problem: e.message };
   }
-}
-
-export interface SessionQuality extends PoseSetQuality {
-  poseCount: number;
-  /** True when the engine warned: too few or poorly spread poses. */
-  poor: boolean;
-}
-
-/** How well the measured configurations determine the parameters (engine poseSetQuality). */
-export async function sessionQuality(id: string, database: Db = sharedDb()): Promise<SessionQuality | undefined> {
-  const geometry = await sessionGeometry(id, database);
-  if (!geometry) return undefined;
-  const rows = await database.select({ q: poseRows.q }).from(poseRows).where(eq(poseRows.sessionId, id)).orderBy(asc(poseRows.idx));
-  const q = rows.map((r) => r.q);
-  const quality = await runEngineTask('poseSetQuality', geometry, q);
-  return { ...quality, poseCount: q.length, poor: quality.warnings.length > 0 };
 }
 
 /** Poses the session page's charts and 3-D view draw at most. */
@@ -95,11 +80,7 @@ export async function sessionPageDigest(id: string, database: Db = sharedDb()): 
 const inFlight = new Map<string, Promise<(SessionDigest & { geometry: ArmGeometry }) | undefined>>();
 
 async function readOrCompute(id: string, database: Db): Promise<(SessionDigest & { geometry: ArmGeometry }) | undefined> {
-  const [row] = await database
-    .select({ unitId: sessions.unitId, geometry: armModelRevisions.geometry })
-    .from(sessions)
-    .innerJoin(armModelRevisions, eq(armModelRevisions.id, sessions.modelRevisionId))
-    .where(eq(sessions.id, id));
+  const row = await sessionInputs(id, database);
   if (!row) return undefined;
   const settings = await unitJudgement(row.unitId, database);
   const key = createHash('sha256').update(JSON.stringify({ settings, engine: ENGINE_VERSION, limit: SESSION_SAMPLE_LIMIT })).digest('hex');
