@@ -7,6 +7,7 @@ export default defineConfig({
   resolve: { alias: { '~': fileURLToPath(new URL('./src', import.meta.url)) } },
   test: {
     include: ['tests/**/*.test.ts'],
+    setupFiles: ['tests/support/http-pool.ts'],
     testTimeout: 60_000,
     hookTimeout: 120_000,
     pool: 'forks',

@@ -321,6 +321,43 @@ describe('path traversal', () => {
     expect(n!.n).toBe(0);
   });
 
+  it('a form refused as malformed leaves its kept-alive connection usable for the next request', async () => {
+    // The NUL in the part header makes busboy fail mid-body. The server must read the rest and drop it, not
+    // cancel the body: cancelling destroys the socket just after the 400 goes out, and a client reusing it
+    // sends its next request into a reset.
+    const unit = await newUnit();
+    // A file part large enough that most of it is still on its way when the parser fails.
+    const form = new FormData();
+    form.append('unit', unit.serial);
+    form.append('file', new Blob([goodFile, '\n'.repeat(4 * 1024 * 1024)], { type: 'text/csv' }), 'a\u0000.csv');
+    const raw = new Response(form);
+    const body = Buffer.from(await raw.arrayBuffer());
+    const agent = new http.Agent({ keepAlive: true, maxSockets: 1 });
+    const url = new URL(BASE_URL);
+    const send = (method: string, path: string, headers: Record<string, string>, payload?: Buffer) =>
+      new Promise<{ status: number; reused: boolean; connection?: string }>((resolve, reject) => {
+        const req = http.request({ agent, host: url.hostname, port: url.port, path, method, headers }, (res) => {
+          res.resume();
+          res.on('end', () => resolve({ status: res.statusCode ?? 0, reused: req.reusedSocket, connection: res.headers.connection }));
+        });
+        req.on('error', reject);
+        req.end(payload);
+      });
+    try {
+      const auth = { authorization: `Bearer ${tokens.technician}` };
+      const refused = await send('POST', '/api/sessions', { ...auth, 'content-type': raw.headers.get('content-type')!, 'content-length': String(body.length) }, body);
+      expect(refused.status).toBe(400);
+      expect(refused.connection).not.toBe('close');
+      // Long enough for a destroyed socket to reach the client's pool.
+      await new Promise((r) => setTimeout(r, 300));
+      const next = await send('GET', `/api/units/${unit.serial}`, auth);
+      expect(next.status).toBe(200);
+      expect(next.reused).toBe(true);
+    } finally {
+      agent.destroy();
+    }
+  });
+
   it('an odd but harmless file name is neutralised: the object key stays under the unit’s prefix', async () => {
     const unit = await newUnit();
     const res = await cookie.technician.json('/api/sessions', { method: 'POST', body: uploadForm(unit.serial, ' .~$séance ✓ %2e%2e;rm -rf.csv') });

@@ -112,12 +112,11 @@ export async function* readMultipart(body: AsyncIterable<Uint8Array>, boundary: 
   // Feed the body in, waiting whenever busboy (or a file stream the consumer has not read yet) is full.
   const pump = (async () => {
     for await (const chunk of body) {
-      // After the closing boundary the rest (an epilogue, the end of the stream) is read and dropped:
-      // leaving the loop early would cancel the request body, and with it the connection the answer
-      // still has to go out on.
-      if (failed) return;
-      if (finished) continue;
-      if (stopped) return;
+      // After the closing boundary, a malformed part or the consumer stopping, the rest is read and
+      // dropped (the route's body limit bounds it): leaving the loop early would cancel the request body,
+      // and Node then destroys the socket, just after the answer went out on it, so a client that keeps the
+      // connection alive sends its next request into a reset.
+      if (failed || finished || stopped) continue;
       if (!parser.write(chunk)) await new Promise<void>((resolve) => {
         const go = () => {
           parser.off('drain', go);
