@@ -5,6 +5,12 @@
  * certificate), a top-level manifest and a SHA256SUMS file that `sha256sum -c` verifies.
  * Every export is written to export_log (who, kind, format, serial + version + set id of each item).
  */
+import { createHash } from 'node:crypto';
+import { createReadStream } from 'node:fs';
+import { mkdtemp, open, rm, type FileHandle } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { Readable } from 'node:stream';
 import { and, asc, count, desc, eq, inArray, sql } from 'drizzle-orm';
 import archiver, { type Archiver } from 'archiver';
 import { z } from 'zod';
@@ -59,8 +65,12 @@ const READ_BATCH = 100;
  *
  * The zip is written while it is sent (archiver): sets are read READ_BATCH units at a time, each file is
  * handed to the zip and the next unit waits until the zip has taken the previous one and the client has
- * read all but HIGH_WATER bytes of the output (archiver itself does not wait for the reader). What stays in memory is the manifest's list of files and digests,
- * not the files. The export is logged when every unit's files are written, before the zip's last entries.
+ * read all but HIGH_WATER bytes of the output (archiver itself does not wait for the reader). The top-level
+ * manifest.json and SHA256SUMS list every unit: each unit's part of them goes to a temporary file as the unit
+ * is written (ManifestSpill) and both are streamed from there at the end, so neither the files nor those lists
+ * stay in memory. What does is the zip's central directory (archiver keeps each entry's record until the end,
+ * as the zip format puts the directory last) and the export log's list of units.
+ * The export is logged when every unit's files are written, before the zip's last entries.
  */
 export async function exportBatch(serials: string[], actor: ExportActor, database: Db = sharedDb(), options: { certificates?: boolean } = {}): Promise<BatchResult> {
   const wanted = [...new Set(serials)];
@@ -146,10 +156,98 @@ function unread(archive: Archiver): number {
   return inner + archive.writableLength + archive.readableLength;
 }
 
+/**
+ * The top-level manifest's unit entries and the SHA256SUMS lines, appended to two temporary files as the
+ * units are written and read back as streams for the zip's last two entries. The manifest comes out exactly
+ * as `JSON.stringify(manifest, null, 2)` would write it whole (tests/integration/export-stream.test.ts
+ * compares them); its digest is computed while it is read, for the last SHA256SUMS line.
+ */
+class ManifestSpill {
+  private constructor(
+    private readonly dir: string,
+    private readonly entries: FileHandle,
+    private readonly sums: FileHandle,
+  ) {}
+  private count = 0;
+
+  static async create() {
+    const dir = await mkdtemp(join(tmpdir(), 'offsetry-export-'));
+    try {
+      return new ManifestSpill(dir, await open(join(dir, 'units.json'), 'w'), await open(join(dir, 'SHA256SUMS'), 'w'));
+    } catch (e) {
+      await rm(dir, { recursive: true, force: true });
+      throw e;
+    }
+  }
+
+  /** One unit: its manifest entry, indented as it stands inside the manifest's "units" list, and its digest lines. */
+  async add(entry: ManifestEntry, sums: string[]) {
+    const text = JSON.stringify(entry, null, 2).replace(/\n/g, '\n    ');
+    await this.entries.write(this.count++ ? `,\n    ${text}` : text);
+    await this.sums.write(sums.map((line) => `${line}\n`).join(''));
+  }
+
+  /**
+   * manifest.json as a stream: `document` gives the manifest with its list of units (a placeholder here, the
+   * spilled entries in the output); `digest` resolves once the stream has been read to its end.
+   */
+  async manifest(document: (units: unknown[]) => Record<string, unknown>): Promise<{ stream: Readable; digest: Promise<string> }> {
+    await this.entries.close();
+    const marker = '\u0000units\u0000';
+    const [before, after] = (JSON.stringify(document([marker]), null, 2) + '\n').split(JSON.stringify(marker)) as [string, string];
+    const path = join(this.dir, 'units.json');
+    const hash = createHash('sha256');
+    let settle!: (digest: string) => void;
+    const digest = new Promise<string>((resolve) => (settle = resolve));
+    async function* parts() {
+      yield Buffer.from(before);
+      yield* createReadStream(path) as AsyncIterable<Buffer>;
+      yield Buffer.from(after);
+    }
+    const stream = Readable.from(
+      (async function* () {
+        for await (const chunk of parts()) {
+          hash.update(chunk);
+          yield chunk;
+        }
+        settle(hash.digest('hex'));
+      })(),
+      { objectMode: false },
+    );
+    return { stream, digest };
+  }
+
+  /** SHA256SUMS as a stream: every unit's lines, then the manifest's (read only after the manifest). */
+  async sha256sums(manifestDigest: Promise<string>): Promise<Readable> {
+    await this.sums.close();
+    const path = join(this.dir, 'SHA256SUMS');
+    return Readable.from(
+      (async function* () {
+        yield* createReadStream(path) as AsyncIterable<Buffer>;
+        yield Buffer.from(`${await manifestDigest}  manifest.json\n`);
+      })(),
+      { objectMode: false },
+    );
+  }
+
+  async dispose() {
+    await Promise.allSettled([this.entries.close(), this.sums.close()]);
+    await rm(this.dir, { recursive: true, force: true });
+  }
+}
+
 async function writeBatch(archive: Archiver, unitIds: string[], actor: ExportActor, exportedAt: string, database: Db, withCertificates: boolean) {
+  const spill = await ManifestSpill.create();
+  try {
+    await writeBatchInto(archive, spill, unitIds, actor, exportedAt, database, withCertificates);
+  } finally {
+    await spill.dispose();
+  }
+}
+
+async function writeBatchInto(archive: Archiver, spill: ManifestSpill, unitIds: string[], actor: ExportActor, exportedAt: string, database: Db, withCertificates: boolean) {
   const date = new Date(exportedAt);
-  const sums: string[] = [];
-  const entries: ManifestEntry[] = [];
+  let sums: string[] = [];
   const logged: { serial: string; version: number; setId: string }[] = [];
   let closed: Error | undefined;
   archive.on('error', (err) => (closed = err));
@@ -200,22 +298,24 @@ async function writeBatch(archive: Archiver, unitIds: string[], actor: ExportAct
       if (certificate) listed.push(certificate);
       const manifestBytes = new TextEncoder().encode(JSON.stringify(unitManifest(s, files, exportedAt, certificate), null, 2) + '\n');
       listed.push(add(`${folder}/manifest.json`, manifestBytes));
-      entries.push({ serial: s.currentSerial, version: s.version, parameterSetId: s.setId, folder: `${folder}/`, files: listed });
+      await spill.add({ serial: s.currentSerial, version: s.version, parameterSetId: s.setId, folder: `${folder}/`, files: listed }, sums);
+      sums = [];
       logged.push({ serial: s.serial, version: s.version, setId: s.setId });
       await drained();
     }
   }
-  const manifest = {
+  const manifest = await spill.manifest((units) => ({
     format: 'offsetry-export-batch/1',
     exportedAt,
     exportedBy: { name: actor.name, email: actor.email },
-    units: entries,
+    units,
     safety: SAFETY_CAUTION,
-  };
-  add('manifest.json', new TextEncoder().encode(JSON.stringify(manifest, null, 2) + '\n'));
+  }));
+  archive.append(manifest.stream, { name: 'manifest.json', date });
   await logExport(database, actor, 'batch', 'zip', logged);
-  archive.append(sums.join('\n') + '\n', { name: 'SHA256SUMS', date });
-  await archive.finalize();
+  archive.append(await spill.sha256sums(manifest.digest), { name: 'SHA256SUMS', date });
+  // Until the zip has read both streams (or stops): the spill files are removed after this.
+  await Promise.race([archive.finalize(), new Promise<void>((_, reject) => archive.once('close', () => reject(closed ?? new Error('the zip was closed'))))]);
 }
 
 export const logQuerySchema = z.strictObject({
