@@ -96,6 +96,13 @@ describe('fleet and export in the browser', () => {
     expect(zip.file(`${serials[4]}/robot.urdf`)).not.toBeNull();
     // The log on the page shows the batch.
     await page.locator('[data-export-log] tr', { hasText: `${serials[0]} v2, ${serials[4]} v2` }).first().waitFor();
+    // "Pick all that match" picks every unit the server's search matched, not only the page's rows.
+    await page.getByRole('button', { name: 'Clear selection' }).click();
+    const pager = page.locator('[data-export-pager]');
+    const total = Number(/· (\d+) units? matching/.exec((await pager.textContent()) ?? '')?.[1]);
+    expect(total).toBeGreaterThanOrEqual(2);
+    await page.getByRole('button', { name: `Pick all ${total} that match` }).click();
+    await page.getByRole('button', { name: `Download batch (zip) of ${total} units` }).waitFor();
     await context.close();
   });
 });

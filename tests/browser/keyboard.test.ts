@@ -91,8 +91,12 @@ describe('keyboard only', () => {
     // React attaches the drop zone's key handler when it hydrates (the island's ssr mark goes earlier).
     await page.locator('[data-upload-form][data-hydrated="true"]').waitFor({ timeout: 60_000 });
     const dropZone = page.getByRole('button', { name: /Session file/ });
+    // Listen for the file chooser before tabbing: Playwright turns on the browser's chooser interception when
+    // the first listener is added, a message that must arrive before the key does (added just before the
+    // press, a loaded machine let the dialog open un-intercepted and the event never came).
+    const chosen = page.waitForEvent('filechooser', { timeout: 20_000 });
     await tabTo(page, dropZone);
-    const [chooser] = await Promise.all([page.waitForEvent('filechooser', { timeout: 10_000 }), page.keyboard.press('Enter')]);
+    const [chooser] = await Promise.all([chosen, page.keyboard.press('Enter')]);
     await chooser.setFiles({ name: 'keyboard-visit.csv', mimeType: 'text/csv', buffer: sessionFile });
     await expect(page.locator('[data-chosen-file]').textContent()).resolves.toContain('keyboard-visit.csv');
     await tabTo(page, page.getByLabel('Laser tracker / instrument id'));
@@ -187,6 +191,8 @@ describe('keyboard only', () => {
     expect(await service.locator('main').textContent()).toContain(SAFETY_CAUTION);
     await tabTo(service, service.getByLabel(/^Filter/));
     await service.keyboard.type(serial);
+    // The search runs on the server: wait for its answer before tabbing to the unit's box.
+    await service.locator(`[data-export-pager]`, { hasText: `matching “${serial}”` }).waitFor();
     await tabTo(service, service.getByRole('checkbox', { name: `Pick ${serial}` }));
     await service.keyboard.press('Space');
     await tabTo(service, service.getByRole('button', { name: /Download batch \(zip\) of 1 unit/ }));

@@ -12,11 +12,11 @@ import JSZip from 'jszip';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parseGeometry } from '../../src/lib/engine/geometry';
 import { forwardPoint } from '../../src/lib/engine/kinematics';
-import { armModels } from '../../src/db/schema';
+import { armModels, units } from '../../src/db/schema';
 import { createDb } from '../../src/lib/server/db';
 import { chainPointMm, parseUrdf } from '../../src/lib/server/urdf-reader';
 import { approveSet, makeModel, makeUnit, moved, testArm } from '../support/approved-sets';
-import { DEMO, signedIn, type Client } from '../support/http';
+import { DEMO, signedIn, uniq, type Client } from '../support/http';
 
 const db = createDb(process.env.DATABASE_URL!, { max: 2 });
 afterAll(() => db.$client.end());
@@ -192,6 +192,37 @@ describe('exports', () => {
     ]);
     expect((await service.json('/api/exports', { method: 'POST', json: { serials: [] } })).status).toBe(400);
     expect((await quality.json('/api/exports', { method: 'POST', json: { serials: [a.serial] } })).status).toBe(403);
+  });
+
+  it('the picker pages units with an approved set from the server, searches serial and site there, and lists every serial a search matches', async () => {
+    const m = await makeModel(db, nominal);
+    const tag = uniq('PK');
+    const site = `Picker hall ${tag}`;
+    const made = [];
+    for (let i = 1; i <= 5; i++) {
+      const [u] = await db.insert(units).values({ serial: `${tag}-0${i}`, modelRevisionId: m.revisionId, site }).returning({ id: units.id, serial: units.serial });
+      // The fifth has no approved set and is not offered.
+      if (i < 5) await approveSet(db, { unitId: u!.id, revisionId: m.revisionId, geometry: moved(nominal, { 'J1.a': i / 10 }) });
+      made.push(u!.serial);
+    }
+    const first = await service.json(`/api/exports/units?q=${tag}&pageSize=3`);
+    expect(first.status).toBe(200);
+    expect(first.body).toMatchObject({ q: tag, page: 1, pageSize: 3, total: 4 });
+    expect(first.body.items.map((u: { serial: string }) => u.serial)).toEqual(made.slice(0, 3));
+    expect(first.body.items[0]).toMatchObject({ site, version: 1, needsAttention: false });
+    const second = await service.json(`/api/exports/units?q=${tag}&pageSize=3&page=2`);
+    expect(second.body.items.map((u: { serial: string }) => u.serial)).toEqual([made[3]]);
+    // The site matches as well as the serial; a search with LIKE's wildcards finds them literally.
+    expect((await service.json(`/api/exports/units?q=${encodeURIComponent(site)}`)).body.total).toBe(4);
+    expect((await service.json(`/api/exports/units?q=${encodeURIComponent(tag + '%')}`)).body.total).toBe(0);
+    const all = await service.json(`/api/exports/units/serials?q=${tag}`);
+    expect(all.status).toBe(200);
+    expect(all.body).toEqual({ q: tag, limit: 10_000, more: false, serials: made.slice(0, 4) });
+    const bad = await service.json('/api/exports/units?pageSize=500');
+    expect(bad.status).toBe(400);
+    expect(bad.body.errors.map((e: { field: string }) => e.field)).toEqual(['pageSize']);
+    expect((await quality.json(`/api/exports/units?q=${tag}`)).status).toBe(403);
+    expect((await quality.json(`/api/exports/units/serials?q=${tag}`)).status).toBe(403);
   });
 
   it('logs every export with who, kind, format and items; quality reads the log', async () => {

@@ -1,89 +1,24 @@
-import { useEffect, useMemo, useState } from 'react';
+import { useEffect, useMemo, useRef, useState } from 'react';
 import { api } from '../../lib/shared/api-client';
+import { EXPORT_PICKER_PAGE, type ExportableSerials, type ExportableUnitsPage } from '../../lib/shared/export-view';
 import { useFocusWhen } from '../../lib/shared/focus';
+import ExportLog, { type LogPage } from './ExportLog';
 
-export interface ExportableUnit {
-  serial: string;
-  site: string;
-  needsAttention: boolean;
-  modelName: string;
-  setId: string;
-  version: number;
-  approvedAt: string;
-}
+/** Wait this long after the last key before searching. */
+const SEARCH_DELAY_MS = 250;
 
-export interface LogEntry {
-  id: string;
-  at: string;
-  kind: 'single' | 'batch' | 'compensation';
-  format: string;
-  items: { serial: string; version: number; parameterSetId: string }[];
-  /** All items of the entry (items lists the first ones). */
-  itemCount?: number;
-  userName: string;
-  userEmail: string;
-}
-
-export interface LogPage {
-  page: number;
-  pageSize: number;
-  total: number;
-  entries: LogEntry[];
-}
-
-function ExportLog({ initial, refresh }: { initial: LogPage; refresh: number }) {
-  const [log, setLog] = useState(initial);
-  const [error, setError] = useState<string | null>(null);
-  async function load(page: number) {
-    const r = await api<LogPage>(`/api/exports?page=${page}&pageSize=${log.pageSize}`);
-    if (r.error) setError(r.error.error);
-    else setLog(r.data);
-  }
-  useEffect(() => {
-    if (refresh > 0) void load(1);
-    // eslint-disable-next-line react-hooks/exhaustive-deps
-  }, [refresh]);
-  const pages = Math.max(1, Math.ceil(log.total / log.pageSize));
-  return (
-    <section className="flex flex-col gap-2" aria-label="Export log">
-      <div className="flex flex-wrap items-center gap-3">
-        <h2>Export log</h2>
-        <button type="button" className="btn btn-quiet" onClick={() => load(log.page)}>Refresh</button>
-      </div>
-      {error && <p className="notice notice-error">✕ {error}</p>}
-      <div className="overflow-x-auto">
-        <table className="data-table" data-export-log>
-          <thead><tr><th>When (UTC)</th><th>Who</th><th>Kind</th><th>Format</th><th>Units and versions</th></tr></thead>
-          <tbody>
-            {log.entries.length === 0 && <tr><td colSpan={5} className="text-ink-soft">Nothing exported yet.</td></tr>}
-            {log.entries.map((e) => (
-              <tr key={e.id}>
-                <td className="whitespace-nowrap">{e.at.slice(0, 19).replace('T', ' ')}</td>
-                <td>{e.userName}<br /><span className="text-xs text-ink-soft">{e.userEmail}</span></td>
-                <td>{e.kind === 'batch' ? 'batch (zip)' : e.kind === 'compensation' ? 'compensated program' : 'single file'}</td>
-                <td>{e.format}</td>
-                <td>{e.items.map((i) => `${i.serial} v${i.version}`).join(', ')}{(e.itemCount ?? 0) > e.items.length ? ` … and ${e.itemCount! - e.items.length} more (${e.itemCount} units)` : ''}</td>
-              </tr>
-            ))}
-          </tbody>
-        </table>
-      </div>
-      <div className="flex items-center gap-3">
-        <button type="button" className="btn btn-quiet" disabled={log.page <= 1} onClick={() => load(log.page - 1)}>Newer</button>
-        <span className="text-sm">Page {log.page} of {pages} · {log.total} exports</span>
-        <button type="button" className="btn btn-quiet" disabled={log.page >= pages} onClick={() => load(log.page + 1)}>Older</button>
-      </div>
-    </section>
-  );
-}
-
-/** Rows of the unit table at most (the filter searches every unit). */
-const ROWS_SHOWN = 200;
-
-/** Pick units with a current set; download one unit's files or a batch zip. Quality staff see the log only. */
-export default function ExportsPanel({ units, initialLog, canExport }: { units: ExportableUnit[]; initialLog: LogPage; canExport: boolean }) {
+/**
+ * Pick units with a current set; download one unit's files or a batch zip. Quality staff see the log only.
+ * The units come a page at a time from the server (the search runs there too), so the page stays small at
+ * fleet size; the picked serials are kept here across pages and searches.
+ */
+export default function ExportsPanel({ initialUnits, initialLog, canExport }: { initialUnits?: ExportableUnitsPage; initialLog: LogPage; canExport: boolean }) {
   const [filter, setFilter] = useState('');
+  const [list, setList] = useState<ExportableUnitsPage | undefined>(initialUnits);
+  const [listError, setListError] = useState<string | null>(null);
+  const [loading, setLoading] = useState(false);
   const [picked, setPicked] = useState<string[]>([]);
+  const pickedSet = useMemo(() => new Set(picked), [picked]);
   const [status, setStatus] = useState<{ kind: 'ok' | 'error'; text: string } | null>(null);
   const [busy, setBusy] = useState(false);
   const [logKey, setLogKey] = useState(0);
@@ -92,13 +27,43 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
   // Until the island hydrates a tick would be lost (the server-rendered box has no handler): stay disabled.
   const [hydrated, setHydrated] = useState(false);
   useEffect(() => setHydrated(true), []);
-  const shown = useMemo(() => {
-    const f = filter.trim().toLowerCase();
-    return f ? units.filter((u) => `${u.serial} ${u.modelName} ${u.site}`.toLowerCase().includes(f)) : units;
-  }, [filter, units]);
-  // At fleet size the list is thousands of units: the table shows the first ROWS_SHOWN that match the filter.
-  const visible = shown.slice(0, ROWS_SHOWN);
-  const toggle = (s: string) => setPicked(picked.includes(s) ? picked.filter((x) => x !== s) : [...picked, s]);
+  // Only the latest request's answer is shown (an earlier search may answer after a later one).
+  const asked = useRef(0);
+  async function load(q: string, page: number) {
+    const ticket = ++asked.current;
+    setLoading(true);
+    const r = await api<ExportableUnitsPage>(`/api/exports/units?${new URLSearchParams({ q, page: String(page), pageSize: String(EXPORT_PICKER_PAGE) })}`);
+    if (ticket !== asked.current) return;
+    setLoading(false);
+    if (r.error) setListError(r.error.error);
+    else {
+      setListError(null);
+      setList(r.data);
+    }
+  }
+  const typed = useRef(false);
+  useEffect(() => {
+    if (!typed.current) return;
+    const t = setTimeout(() => void load(filter.trim(), 1), SEARCH_DELAY_MS);
+    return () => clearTimeout(t);
+    // eslint-disable-next-line react-hooks/exhaustive-deps
+  }, [filter]);
+  const toggle = (s: string) => setPicked(pickedSet.has(s) ? picked.filter((x) => x !== s) : [...picked, s]);
+  async function pickAllMatching() {
+    const r = await api<ExportableSerials>(`/api/exports/units/serials?${new URLSearchParams({ q: list?.q ?? '' })}`);
+    if (r.error) {
+      setListError(r.error.error);
+      return;
+    }
+    const added = r.data.serials.filter((s) => !pickedSet.has(s));
+    const all = [...picked, ...added].slice(0, r.data.limit);
+    setPicked(all);
+    setStatus({
+      kind: 'ok',
+      text: `✓ ${added.length} unit${added.length === 1 ? '' : 's'} added; ${all.length} picked.${r.data.more || all.length < picked.length + added.length ? ` A batch holds at most ${r.data.limit} units.` : ''}`,
+    });
+  }
+  const pages = list ? Math.max(1, Math.ceil(list.total / list.pageSize)) : 1;
 
   async function batch() {
     setBusy(true);
@@ -136,17 +101,18 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
         <section className="card flex flex-col gap-3" aria-label="Choose units">
           <h2>Units with an approved parameter set</h2>
           <label className="field max-w-md">
-            <span>Filter (serial number, arm model, site)</span>
-            <input className="input" name="filter" disabled={!hydrated} value={filter} onChange={(e) => setFilter(e.target.value)} />
+            <span>Filter (serial number, arm model, site, cell)</span>
+            <input className="input" name="filter" disabled={!hydrated} value={filter} onChange={(e) => { typed.current = true; setFilter(e.target.value); }} />
           </label>
-          <div className="overflow-x-auto">
-            <table className="data-table">
+          {listError && <p className="notice notice-error" role="alert">✕ {listError}</p>}
+          <div className="overflow-x-auto" aria-busy={loading}>
+            <table className="data-table" data-export-units>
               <thead><tr><th>Pick</th><th>Unit</th><th>Arm model</th><th>Site</th><th className="num">Version</th><th>Approved (UTC)</th><th>One unit's files</th></tr></thead>
               <tbody>
-                {shown.length === 0 && <tr><td colSpan={7} className="text-ink-soft">No unit matches.</td></tr>}
-                {visible.map((u) => (
+                {list && list.items.length === 0 && <tr><td colSpan={7} className="text-ink-soft">{list.q ? 'No unit matches.' : 'No unit has an approved parameter set yet.'}</td></tr>}
+                {list?.items.map((u) => (
                   <tr key={u.serial} data-export-unit={u.serial}>
-                    <td><input type="checkbox" className="h-6 w-6" aria-label={`Pick ${u.serial}`} checked={picked.includes(u.serial)} disabled={!hydrated} onChange={() => toggle(u.serial)} /></td>
+                    <td><input type="checkbox" className="h-6 w-6" aria-label={`Pick ${u.serial}`} checked={pickedSet.has(u.serial)} disabled={!hydrated} onChange={() => toggle(u.serial)} /></td>
                     <td className="font-semibold">{u.serial}{u.needsAttention && <span className="badge ml-2 text-attention">▲ drift alert open</span>}</td>
                     <td>{u.modelName}</td>
                     <td>{u.site}</td>
@@ -164,10 +130,19 @@ export default function ExportsPanel({ units, initialLog, canExport }: { units: 
               </tbody>
             </table>
           </div>
-          {shown.length > visible.length && (
-            <p className="text-ink-soft" data-export-more>
-              Showing the first {visible.length} of {shown.length} units{filter.trim() ? ' that match' : ''}; type in the filter to narrow the list.
-            </p>
+          {list && (
+            <div className="flex flex-wrap items-center gap-3" data-export-pager>
+              <button type="button" className="btn btn-quiet" disabled={!hydrated || list.page <= 1} onClick={() => load(list.q, list.page - 1)}>Previous</button>
+              <span className="text-sm">
+                Page {list.page} of {pages} · {list.total} unit{list.total === 1 ? '' : 's'}{list.q ? ` matching “${list.q}”` : ' with an approved set'}
+              </span>
+              <button type="button" className="btn btn-quiet" disabled={!hydrated || list.page >= pages} onClick={() => load(list.q, list.page + 1)}>Next</button>
+              {list.total > 0 && (
+                <button type="button" className="btn btn-quiet" disabled={!hydrated} onClick={pickAllMatching}>
+                  Pick all {list.total}{list.q ? ' that match' : ''}
+                </button>
+              )}
+            </div>
           )}
           <div className="flex flex-wrap items-center gap-3">
             <button type="button" className="btn" disabled={!picked.length || busy} onClick={batch}>

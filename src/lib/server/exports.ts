@@ -15,7 +15,9 @@ import { and, asc, count, desc, eq, inArray, sql } from 'drizzle-orm';
 import archiver, { type Archiver } from 'archiver';
 import { z } from 'zod';
 import { armModelRevisions, armModels, exportLog, parameterSets, units, users } from '../../db/schema';
+import { EXPORT_PICKER_PAGE, type ExportableSerials, type ExportableUnitsPage } from '../shared/export-view';
 import { SAFETY_CAUTION } from '../shared/safety';
+import { unitSearchCondition } from './units';
 import { renderCertificateFor } from './certificate';
 import { db as sharedDb, type Db } from './db';
 import { buildFiles, CERTIFICATE_FILE, loadSets, logExport, MEDIA_TYPES, unitManifest, type ExportActor, type ExportFormat, type SetRow } from './parameter-set-files';
@@ -348,23 +350,56 @@ export async function exportLogPage(page = 1, pageSize = 25, database: Db = shar
   return { page, pageSize, total: counted?.total ?? 0, entries: rows.map((r) => ({ ...r, at: new Date(r.at).toISOString() })) };
 }
 
-/** Units with a current set, for the export picker. */
-export async function exportableUnits(database: Db = sharedDb()) {
+export const exportableQuerySchema = z.strictObject({
+  q: z.string().trim().max(100, 'q is at most 100 characters').default(''),
+  page: z.coerce.number({ error: 'page must be a whole number from 1' }).int('page must be a whole number from 1').min(1, 'page must be a whole number from 1').default(1),
+  pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1, 'pageSize must be 1 to 200').max(200, 'pageSize must be 1 to 200').default(EXPORT_PICKER_PAGE),
+});
+export type ExportableQuery = z.infer<typeof exportableQuerySchema>;
+
+export const exportableSerialsQuerySchema = exportableQuerySchema.pick({ q: true });
+
+/** Units with a current set whose serial, site, cell or arm model contains `q` (all when empty). */
+async function exportableWhere(q: string, database: Db) {
+  return and(eq(parameterSets.state, 'current'), q ? await unitSearchCondition(q, database) : undefined);
+}
+
+/** A page of the units with a current set, by serial number, for the export picker (the page and the API). */
+export async function exportableUnitsPage(query: ExportableQuery, database: Db = sharedDb()): Promise<ExportableUnitsPage> {
+  const where = await exportableWhere(query.q, database);
+  const [rows, [counted]] = await Promise.all([
+    database
+      .select({
+        serial: units.serial,
+        site: units.site,
+        needsAttention: units.needsAttention,
+        modelName: armModels.name,
+        setId: parameterSets.id,
+        version: parameterSets.version,
+        approvedAt: parameterSets.approvedAt,
+      })
+      .from(parameterSets)
+      .innerJoin(units, eq(units.id, parameterSets.unitId))
+      .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
+      .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
+      .where(where)
+      .orderBy(asc(units.serial))
+      .limit(query.pageSize)
+      .offset((query.page - 1) * query.pageSize),
+    database.select({ total: count() }).from(parameterSets).innerJoin(units, eq(units.id, parameterSets.unitId)).where(where),
+  ]);
+  return { q: query.q, page: query.page, pageSize: query.pageSize, total: counted?.total ?? 0, items: rows.map((r) => ({ ...r, approvedAt: new Date(r.approvedAt).toISOString() })) };
+}
+
+/** The serial numbers of every unit a search matches, up to a batch's limit, for "pick all that match". */
+export async function exportableSerials(q: string, database: Db = sharedDb()): Promise<ExportableSerials> {
+  const where = await exportableWhere(q, database);
   const rows = await database
-    .select({
-      serial: units.serial,
-      site: units.site,
-      needsAttention: units.needsAttention,
-      modelName: armModels.name,
-      setId: parameterSets.id,
-      version: parameterSets.version,
-      approvedAt: parameterSets.approvedAt,
-    })
+    .select({ serial: units.serial })
     .from(parameterSets)
     .innerJoin(units, eq(units.id, parameterSets.unitId))
-    .innerJoin(armModelRevisions, eq(armModelRevisions.id, units.modelRevisionId))
-    .innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId))
-    .where(eq(parameterSets.state, 'current'))
-    .orderBy(asc(units.serial));
-  return rows.map((r) => ({ ...r, approvedAt: new Date(r.approvedAt).toISOString() }));
+    .where(where)
+    .orderBy(asc(units.serial))
+    .limit(BATCH_LIMIT + 1);
+  return { q, limit: BATCH_LIMIT, more: rows.length > BATCH_LIMIT, serials: rows.slice(0, BATCH_LIMIT).map((r) => r.serial) };
 }

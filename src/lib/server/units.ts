@@ -80,6 +80,21 @@ export type UnitListQuery = z.infer<typeof unitListQuerySchema>;
 /** `%` and `_` are literal in a search box. */
 const likeEscape = (s: string) => s.replace(/[\\%_]/g, (c) => '\\' + c);
 
+const revisionsWhere = async (cond: SQL, database: Db) =>
+  (await database.select({ id: armModelRevisions.id }).from(armModelRevisions).innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId)).where(cond)).map((r) => r.id);
+
+/**
+ * A search box's text as a condition on the units table alone: serial, site or cell contains it (trigram
+ * indexes), or the unit's arm model's name does (the few matching models resolved to their revisions first).
+ */
+export async function unitSearchCondition(q: string, database: Db = sharedDb()): Promise<SQL> {
+  const pattern = `%${likeEscape(q)}%`;
+  const byModelName = await revisionsWhere(ilike(armModels.name, pattern), database);
+  const any = [ilike(units.serial, pattern), ilike(units.site, pattern), ilike(units.cell, pattern)];
+  if (byModelName.length) any.push(inArray(units.modelRevisionId, byModelName));
+  return or(...any)!;
+}
+
 /**
  * One page of units. Every condition is on the units table itself, so each can use an index: the search box
  * matches serial, site and cell through trigram indexes (pg_trgm) and the model's name by resolving the few
@@ -89,18 +104,10 @@ const likeEscape = (s: string) => s.replace(/[\\%_]/g, (c) => '\\' + c);
 /** The list's two queries (the page, the count), built but not run: listUnits runs them, tests EXPLAIN them. */
 export async function unitListQueries(query: UnitListQuery, database: Db = sharedDb()) {
   const where: SQL[] = [];
-  const revisionsWhere = async (cond: SQL) =>
-    (await database.select({ id: armModelRevisions.id }).from(armModelRevisions).innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId)).where(cond)).map((r) => r.id);
-  if (query.q) {
-    const pattern = `%${likeEscape(query.q)}%`;
-    const byModelName = await revisionsWhere(ilike(armModels.name, pattern));
-    const any = [ilike(units.serial, pattern), ilike(units.site, pattern), ilike(units.cell, pattern)];
-    if (byModelName.length) any.push(inArray(units.modelRevisionId, byModelName));
-    where.push(or(...any)!);
-  }
+  if (query.q) where.push(await unitSearchCondition(query.q, database));
   if (query.site) where.push(ilike(units.site, likeEscape(query.site)));
   if (query.model) {
-    const revisions = await revisionsWhere(eq(armModels.id, query.model));
+    const revisions = await revisionsWhere(eq(armModels.id, query.model), database);
     where.push(revisions.length ? inArray(units.modelRevisionId, revisions) : sql`false`);
   }
   const cond = where.length ? and(...where) : undefined;

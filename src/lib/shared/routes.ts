@@ -83,6 +83,9 @@ export const API_ROUTES: readonly RouteRule[] = [
   { pattern: '/api/parameter-sets/[id]/certificate', methods: { GET: CERTIFICATE_READERS } },
   { pattern: '/api/parameter-sets/[id]/accuracy-map', methods: { GET: CERTIFICATE_READERS } },
   { pattern: '/api/exports', methods: { GET: EXPORT_LOG_READERS, POST: EXPORTERS } },
+  // The export picker: units with an approved set, a page at a time, and every serial a search matches.
+  { pattern: '/api/exports/units', methods: { GET: EXPORTERS } },
+  { pattern: '/api/exports/units/serials', methods: { GET: EXPORTERS } },
   // Compensated programs: engineers and service managers make and download them; quality reads them.
   { pattern: '/api/units/[serial]/compensations', methods: { GET: COMPENSATION_READERS, POST: COMPENSATORS } },
   { pattern: '/api/compensations', methods: { GET: COMPENSATION_READERS } },

@@ -24,7 +24,7 @@ import { armGeometrySchema } from '../../engine/geometry';
 import { armModelMetaSchema, armModelUpdateMetaSchema } from '../../shared/arm-model-form';
 import { frameSchema as compensationFrameSchema } from '../compensations';
 import { acknowledgeSchema, tolerancesSchema } from '../drift';
-import { batchSchema, logQuerySchema } from '../exports';
+import { batchSchema, exportableQuerySchema, exportableSerialsQuerySchema, logQuerySchema } from '../exports';
 import { fitSettingsSchema } from '../fit-settings';
 import { fitListQuerySchema, refitSchema } from '../fits';
 import { fitPosePageSchema } from '../fit-poses';
@@ -256,5 +256,11 @@ export const API_DOCS: Record<string, RouteDoc> = {
   '/api/exports': {
     GET: { tag: 'Parameter sets', summary: 'The export log', query: logQuerySchema, ok: { schema: R.exportLog } },
     POST: { tag: 'Parameter sets', summary: 'A zip of each listed unit\'s current set with manifests (logged)', body: { schema: batchSchema }, ok: { contentType: 'application/zip' } },
+  },
+  '/api/exports/units': {
+    GET: { tag: 'Parameter sets', summary: 'Units with an approved set, a page at a time by serial number (search: serial, site, cell, arm model)', query: exportableQuerySchema, ok: { schema: R.exportableUnits } },
+  },
+  '/api/exports/units/serials': {
+    GET: { tag: 'Parameter sets', summary: 'The serial numbers of every unit with an approved set that a search matches, up to the batch limit', query: exportableSerialsQuerySchema, ok: { schema: R.exportableSerials } },
   },
 };

@@ -235,6 +235,12 @@ export const drift = z.looseObject({
 const alertRow = z.looseObject({ id, unitId: id, serial: z.string(), modelId: id, modelName: z.string(), parameterSetId: id, version: z.number().int(), createdAt: z.string(), acknowledgedAt: z.string().nullable() }).meta({ id: 'DriftAlert' });
 export const alerts = z.looseObject({ alerts: z.array(alertRow) });
 export const acknowledged = z.looseObject({ ok: z.literal(true), alert: alertRow, unitNeedsAttention: z.boolean() });
+export const exportableUnits = z.looseObject({
+  q: z.string(),
+  items: z.array(z.looseObject({ serial: z.string(), site: z.string(), needsAttention: z.boolean(), modelName: z.string(), setId: id, version: z.number().int(), approvedAt: isoTime })),
+  ...page,
+});
+export const exportableSerials = z.looseObject({ q: z.string(), limit: z.number().int(), more: z.boolean(), serials: z.array(z.string()) });
 export const exportLog = z.looseObject({ entries: z.array(z.looseObject({ id: z.union([id, z.number()]), at: isoTime, kind: z.string(), userName: z.string() })), ...page });
 
 const accuracyPlane = z.looseObject({
