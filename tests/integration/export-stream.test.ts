@@ -116,6 +116,19 @@ describe('batch export streaming', () => {
     expect(manifest.units[777].files.map((f: { path: string }) => f.path)).toContain(`${serial}/manifest.json`);
   }, 300_000);
 
+  it('the exports page sends one page of units at fleet size, not every exportable unit', async () => {
+    const service = await signedIn(DEMO.service);
+    const res = await service.fetch('/exports');
+    expect(res.status).toBe(200);
+    const html = await res.text();
+    // This fleet alone has 1 000 exportable units (the shared test database more); the page holds 50 rows
+    // and their data. Before the picker paged on the server it carried every unit, ~190 bytes each, twice
+    // (the rows and the island's props).
+    expect((html.match(/data-export-unit=/g) ?? []).length).toBe(50);
+    expect(html.length).toBeLessThan(200 * 1024);
+    console.log(`exports page: ${(html.length / 1024).toFixed(0)} kB`);
+  });
+
   it('stops cleanly when the client stops reading: the export settles and its temporary files are removed', async () => {
     // The spill directories of this test's exports: the ones whose unit list names this fleet's serials.
     const prefix = fleet.serials[0]!.split('-')[0]!;
