@@ -101,7 +101,7 @@ describe('fleet and export in the browser', () => {
     const pager = page.locator('[data-export-pager]');
     const total = Number(/· (\d+) units? matching/.exec((await pager.textContent()) ?? '')?.[1]);
     expect(total).toBeGreaterThanOrEqual(2);
-    await page.getByRole('button', { name: `Pick all ${total} that match` }).click();
+    await page.getByRole('button', { name: `Pick all ${total} units that match` }).click();
     await page.getByRole('button', { name: `Download batch (zip) of ${total} units` }).waitFor();
     await context.close();
   });

@@ -52,7 +52,7 @@ describe('demo scenario', () => {
     expect((listed.Contents ?? []).map((o) => o.Key)).toContain(s0.fileKey);
 
     // The nominal model is off by tenths of a millimetre per parameter: errors well above the 0.01–0.03 mm noise.
-    const check = await sessionCheck(s0.id, db);
+    const check = await sessionCheck(s0.id, undefined, db);
     expect(check!.stats.rms).toBeGreaterThan(0.1);
 
     const second = await seedScenario(db);
@@ -65,7 +65,7 @@ describe('demo scenario', () => {
     const rmsByVisit = async (serial: string) => {
       const [u] = await db.select().from(units).where(eq(units.serial, serial));
       const list = (await db.select().from(sessions).where(eq(sessions.unitId, u!.id))).sort((a, b) => a.measuredOn.localeCompare(b.measuredOn));
-      return Promise.all(list.map(async (s) => (await sessionCheck(s.id, db))!.stats.rms));
+      return Promise.all(list.map(async (s) => (await sessionCheck(s.id, undefined, db))!.stats.rms));
     };
     const drifting = await rmsByVisit('LCS-R6-0104');
     const steady = await rmsByVisit('LCS-R6-0102');

@@ -113,6 +113,17 @@ describe('a 100 000-pose session', () => {
     const sessionPage = await engineer.json(`/api/sessions/${sessionId}/poses?page=100&pageSize=1000`);
     expect(sessionPage.body.poses).toHaveLength(1000);
     expect(sessionPage.body.poses.at(-1).label).toBe(label(N - 1));
+    // The session check answers its statistics over every pose and one page of the poses' errors.
+    const check = await engineer.fetch(`/api/sessions/${sessionId}/check?order=largest&pageSize=3`);
+    const checkText = await check.text();
+    console.log(`scale: GET /api/sessions/{id}/check ${Buffer.byteLength(checkText)} bytes at ${N} poses`);
+    expect(Buffer.byteLength(checkText)).toBeLessThan(200_000);
+    const checked = JSON.parse(checkText);
+    expect(checked.check.stats.n).toBe(N);
+    expect(checked.check.posePage).toEqual({ page: 1, pageSize: 3, total: N, order: 'largest' });
+    expect(checked.check.poses.map((p: { label: string }) => p.label).sort()).toEqual(bumped.map(label).sort());
+    const defaultPage = await engineer.fetch(`/api/sessions/${sessionId}/check`);
+    expect(Buffer.byteLength(await defaultPage.text())).toBeLessThan(200_000);
   });
 
   it('streams every pose as CSV, read back with csv-parse', async () => {

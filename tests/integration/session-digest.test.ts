@@ -47,16 +47,25 @@ describe('the session digest', () => {
 
   it('agrees with the full check and keeps the largest nominal errors in its sample', async () => {
     const body = (await kept())!.body as SessionDigest;
-    const full = (await engineer.json<any>(`/api/sessions/${sessionId}/check`)).body;
+    const full = (await engineer.json<any>(`/api/sessions/${sessionId}/check?pageSize=1000`)).body;
+    // Every pose's error, read a page of 1 000 at a time (the API's largest page).
+    expect(full.check.posePage).toEqual({ page: 1, pageSize: 1000, total: N, order: 'file' });
+    const allPoses: { line: number; error: number }[] = [...full.check.poses];
+    for (let page = 2; allPoses.length < N; page++) allPoses.push(...(await engineer.json<any>(`/api/sessions/${sessionId}/check?pageSize=1000&page=${page}`)).body.check.poses);
+    expect(allPoses).toHaveLength(N);
+    expect(new Set(allPoses.map((p) => p.line)).size).toBe(N);
     expect(body.check.stats).toEqual(full.check.stats);
     expect(body.check.registered).toBe(full.check.registered);
     expect(body.check.verdicts!.level).toBe(full.check.verdicts.level);
     expect(body.quality.identifiable).toBe(full.quality.identifiable);
     expect(body.sample.length).toBeLessThanOrEqual(SESSION_SAMPLE_LIMIT);
     expect(body.sample.length).toBeGreaterThan(SESSION_SAMPLE_LIMIT / 2);
-    const byLine = new Map(full.check.poses.map((p: { line: number; error: number }) => [p.line, p.error]));
+    const byLine = new Map(allPoses.map((p) => [p.line, p.error]));
     for (const p of body.sample) expect(p.error).toBeCloseTo(byLine.get(p.line) as number, 9);
-    const largest = [...full.check.poses].sort((a: { error: number }, b: { error: number }) => b.error - a.error).slice(0, 50);
+    const largest = [...allPoses].sort((a, b) => b.error - a.error || a.line - b.line).slice(0, 50);
+    // order=largest serves the same 50 first.
+    const worst = (await engineer.json<any>(`/api/sessions/${sessionId}/check?order=largest&pageSize=50`)).body.check.poses;
+    expect(worst.map((p: { line: number }) => p.line)).toEqual(largest.map((p) => p.line));
     const inSample = new Set(body.sample.map((p) => p.line));
     for (const p of largest) expect(inSample.has(p.line), `line ${p.line}`).toBe(true);
     // File order is kept.

@@ -291,7 +291,11 @@ describe('good uploads', () => {
 
     const check = await tech.json<any>(`/api/sessions/${res.body.id}/check`);
     expect(check.status).toBe(200);
-    expect(check.body.check.poses).toHaveLength(expectedRows);
+    expect(check.body.check.poses).toHaveLength(Math.min(expectedRows, 500));
+    expect(check.body.check.posePage).toEqual({ page: 1, pageSize: 500, total: expectedRows, order: 'file' });
+    const refused = await tech.json<any>(`/api/sessions/${res.body.id}/check?pageSize=5000&order=worst`);
+    expect(refused.status).toBe(400);
+    expect(refused.body.errors.map((e: { field: string }) => e.field).sort()).toEqual(['order', 'pageSize']);
     expect(check.body.check.registered).toBe(true);
     // The file was generated from a "true" geometry a few tenths of a mm off the nominal: the nominal
     // error is clearly above tracker noise but below a few mm.

@@ -139,7 +139,7 @@ export default function ExportsPanel({ initialUnits, initialLog, canExport }: { 
               <button type="button" className="btn btn-quiet" disabled={!hydrated || list.page >= pages} onClick={() => load(list.q, list.page + 1)}>Next</button>
               {list.total > 0 && (
                 <button type="button" className="btn btn-quiet" disabled={!hydrated} onClick={pickAllMatching}>
-                  Pick all {list.total}{list.q ? ' that match' : ''}
+                  Pick all {list.total} unit{list.total === 1 ? '' : 's'}{list.q ? ' that match' : ''}
                 </button>
               )}
             </div>

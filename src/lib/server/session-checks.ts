@@ -15,7 +15,7 @@ import { unitJudgement } from './judgement';
 import { jsonSafe } from './json-safe';
 import { log } from './log';
 import type { SessionDigest } from './session-digest-task';
-import { allSessionPoses } from './sessions';
+import { allSessionPoses, type CheckOrder, type SessionCheckQuery } from './sessions';
 
 /** What a session's checks take besides its poses: the unit (for its judgement settings) and the revision's geometry. */
 async function sessionInputs(id: string, database: Db): Promise<{ unitId: string; geometry: ArmGeometry } | undefined> {
@@ -31,17 +31,20 @@ export interface SessionCheck {
   /** Nominal-model error per pose (mm), after registering the tracker frame to the base when needed. */
   stats: { n: number; rms: number; mean: number; max: number; p95: number };
   registered: boolean;
+  /** One page of the poses' errors, in the order `posePage.order` asks for. */
   poses: { label: string; line: number; error: number }[];
+  posePage: { page: number; pageSize: number; total: number; order: CheckOrder };
   problem?: string;
   /** The plausibility rules that need no fit (src/lib/engine/plausibility.ts), the same the fit applies. */
   verdicts?: Verdicts;
 }
 
 /**
- * The nominal model of the unit's revision against the measured points (engine checkGeometry), every pose's
- * error: for the API. The session page reads the kept digest instead (sessionPageDigest below).
+ * The nominal model of the unit's revision against the measured points (engine checkGeometry): the statistics
+ * and verdicts over every pose, and one page of the poses' errors (the answer stays small at any session
+ * size). For the API; the session page reads the kept digest instead (sessionPageDigest below).
  */
-export async function sessionCheck(id: string, database: Db = sharedDb()): Promise<SessionCheck | undefined> {
+export async function sessionCheck(id: string, query: SessionCheckQuery = { page: 1, pageSize: 500, order: 'file' }, database: Db = sharedDb()): Promise<SessionCheck | undefined> {
   const inputs = await sessionInputs(id, database);
   if (!inputs) return undefined;
   const { geometry } = inputs;
@@ -50,10 +53,19 @@ export async function sessionCheck(id: string, database: Db = sharedDb()): Promi
     // Registration and residuals over every pose: on an engine thread, not the request thread.
     const report = await runEngineTask('checkGeometry', geometry, poses);
     const verdicts = sessionVerdicts(geometry, poses, await unitJudgement(inputs.unitId, database), report.stats.rms);
-    return { stats: report.stats, registered: report.registered, poses: report.poses.map((p) => ({ label: p.label, line: p.line, error: p.error })), verdicts };
+    // Largest first with the file line breaking ties, so pages never overlap.
+    const ordered = query.order === 'largest' ? [...report.poses].sort((a, b) => b.error - a.error || a.line - b.line) : report.poses;
+    const start = (query.page - 1) * query.pageSize;
+    return {
+      stats: report.stats,
+      registered: report.registered,
+      poses: ordered.slice(start, start + query.pageSize).map((p) => ({ label: p.label, line: p.line, error: p.error })),
+      posePage: { page: query.page, pageSize: query.pageSize, total: report.poses.length, order: query.order },
+      verdicts,
+    };
   } catch (e) {
     if (!(e instanceof EngineInputError)) throw e;
-    return { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], problem: e.message };
+    return { stats: { n: 0, rms: 0, mean: 0, max: 0, p95: 0 }, registered: false, poses: [], posePage: { page: query.page, pageSize: query.pageSize, total: 0, order: query.order }, problem: e.message };
   }
 }
 

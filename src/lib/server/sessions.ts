@@ -172,6 +172,17 @@ export async function sessionFileStream(id: string, database: Db = sharedDb()): 
   return { body: obj.body, fileName: s.fileName, bytes: s.bytes, sha256: s.sha256 };
 }
 
+export const CHECK_ORDERS = ['file', 'largest'] as const;
+export type CheckOrder = (typeof CHECK_ORDERS)[number];
+
+/** Query of GET /api/sessions/{id}/check: a page of the per-pose errors, in file order or largest first. */
+export const sessionCheckQuerySchema = z.strictObject({
+  page: z.coerce.number({ error: 'page must be a whole number from 1' }).int('page must be a whole number from 1').min(1, 'page must be a whole number from 1').default(1),
+  pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1, 'pageSize must be 1 to 1000').max(1000, 'pageSize must be 1 to 1000').default(500),
+  order: z.enum(CHECK_ORDERS, { error: `order must be one of ${CHECK_ORDERS.join(', ')}` }).default('file'),
+});
+export type SessionCheckQuery = z.infer<typeof sessionCheckQuerySchema>;
+
 export const posePageSchema = z.strictObject({
   page: z.coerce.number({ error: 'page must be a whole number' }).int('page must be a whole number').min(1, 'page starts at 1').default(1),
   pageSize: z.coerce.number({ error: 'pageSize must be a whole number' }).int('pageSize must be a whole number').min(1).max(1000, 'pageSize is at most 1000').default(50),

@@ -33,7 +33,7 @@ import { fleetQuerySchema } from '../fleet-snapshots';
 import { judgementSchema } from '../judgement';
 import { decisionSchema, rejectSchema, submitSchema } from '../reviews';
 import { sessionMetaSchema } from '../session-form';
-import { posePageSchema, sessionListQuerySchema } from '../sessions';
+import { posePageSchema, sessionCheckQuerySchema, sessionListQuerySchema } from '../sessions';
 import { posePlanSchema, unitListQuerySchema, unitRegisterSchema } from '../units';
 import { inviteSchema, tokenCreateSchema, userPatchSchema } from '../users';
 import { webhookCreateSchema, webhookDeliveryQuerySchema } from '../webhooks';
@@ -181,7 +181,7 @@ export const API_DOCS: Record<string, RouteDoc> = {
   '/api/sessions/[id]': { GET: { tag: 'Sessions', summary: 'One session\'s metadata', ok: { schema: R.session } } },
   '/api/sessions/[id]/file': { GET: { tag: 'Sessions', summary: 'The original file, byte for byte', ok: { contentType: 'text/csv' } } },
   '/api/sessions/[id]/poses': { GET: { tag: 'Sessions', summary: 'Parsed poses in file order, paginated', query: posePageSchema, ok: { schema: R.poses } } },
-  '/api/sessions/[id]/check': { GET: { tag: 'Sessions', summary: 'Nominal-model error per pose and pose-set quality', ok: { schema: R.sessionCheck } } },
+  '/api/sessions/[id]/check': { GET: { tag: 'Sessions', summary: 'Nominal-model error over the poses (statistics and verdicts over all, the poses a page at a time, in file order or largest first) and pose-set quality', query: sessionCheckQuerySchema, ok: { schema: R.sessionCheck } } },
   '/api/sessions/[id]/fits': {
     GET: { tag: 'Fits and reviews', summary: 'Fits of one session, newest first', ok: { schema: R.fitList } },
     POST: { tag: 'Fits and reviews', summary: 'Start a fit (202 at once; the job queue runs it)', body: { schema: fitSettingsSchema }, ok: { status: 202, schema: R.fitQueued }, refusals: { 409: 'The session cannot be fitted now.' } },

@@ -120,7 +120,7 @@ export const poses = z.looseObject({
   ...page,
 });
 export const sessionCheck = z.looseObject({
-  check: z.looseObject({ stats: z.looseObject({ n: z.number().int(), rms: z.number(), mean: z.number(), max: z.number(), p95: z.number() }), registered: z.boolean(), poses: z.array(z.looseObject({ label: z.string(), line: z.number().int(), error: z.number() })) }),
+  check: z.looseObject({ stats: z.looseObject({ n: z.number().int(), rms: z.number(), mean: z.number(), max: z.number(), p95: z.number() }), registered: z.boolean(), poses: z.array(z.looseObject({ label: z.string(), line: z.number().int(), error: z.number() })), posePage: z.looseObject({ page: z.number().int(), pageSize: z.number().int(), total: z.number().int(), order: z.enum(['file', 'largest']) }) }),
   quality: z.looseObject({ poseCount: z.number().int(), poor: z.boolean() }),
 });
 
