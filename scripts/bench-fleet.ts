@@ -10,7 +10,7 @@
  *     computation), with the job's own computing time;
  *   - 20 clients (autocannon), D seconds per endpoint: fleet statistics (a random page of 25 units), drift of
  *     a random unit, the unit list filtered by model with a search text and by site, the export log (a random
- *     page);
+ *     page), the export picker (a page of the fleet's units, one serial);
  *   - at 1 000 units and more: POST /api/exports of 1 000 units, time to the last byte and the app's resident
  *     memory above its level before the export (sampled every 50 ms from /proc).
  * Prints p50 / p95 beside the target (p95 < 200 ms). Never fails on a target.
@@ -142,6 +142,9 @@ async function main() {
       { name: 'units: site filter, page', path: () => `/api/units?site=${encodeURIComponent(`Plant ${'ABCDEFGHIJKL'[Math.floor(Math.random() * 12)]} hall ${1 + Math.floor(Math.random() * 7)}`)}&page=${1 + Math.floor(Math.random() * 3)}` },
       { name: 'units: model, page', path: () => `/api/units?model=${f.modelId}&page=${1 + Math.floor(Math.random() * Math.min(20, Math.ceil(f.n / 25)))}` },
       { name: 'export log (page of 25)', path: () => `/api/exports?page=${1 + Math.floor(Math.random() * Math.min(logPages, 40))}` },
+      // The export picker searches every unit with a current set; `F<n>-R6-` matches this fleet's units only.
+      { name: 'export picker: fleet, page of 50', path: () => `/api/exports/units?q=F${f.n}-R6-&page=${1 + Math.floor(Math.random() * Math.min(20, Math.ceil(f.n / 50)))}` },
+      { name: 'export picker: one serial', path: () => `/api/exports/units?q=${pick(f.serials)}` },
     ];
     for (const e of endpoints) {
       for (let i = 0; i < 5; i++) {
