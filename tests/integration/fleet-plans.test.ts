@@ -7,9 +7,10 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createDb } from '../../src/lib/server/db';
 import { unitSetsQuery } from '../../src/lib/server/drift';
-import { exportLogQuery } from '../../src/lib/server/exports';
+import { exportableUnitsPage, exportLogQuery } from '../../src/lib/server/exports';
 import { computeFleetSnapshot, snapshotUnitsQuery } from '../../src/lib/server/fleet-snapshots';
-import { unitListQueries, unitListQuerySchema } from '../../src/lib/server/units';
+import { unitListQueries, unitListQuerySchema, unitSearchCondition } from '../../src/lib/server/units';
+import { units } from '../../src/db/schema';
 import { seedFleet, type FleetFixture } from '../../scripts/fleet-fixture';
 import { DEMO, signedIn, uniq } from '../support/http';
 import { approveSet, makeModel, testArm } from '../support/approved-sets';
@@ -76,8 +77,8 @@ describe('fleet-scale query plans', () => {
     await db.$client`vacuum analyze units`;
     const cases = [
       { name: 'model filter, page 3', query: { model: fleet.modelId, page: '3' }, uses: [] },
-      { name: 'selective search', query: { q: 'varnak' }, uses: ['units_serial_trgm', 'units_site_trgm', 'units_cell_trgm'] },
-      { name: 'model filter and selective search', query: { model: fleet.modelId, q: 'varnak' }, uses: ['units_serial_trgm'] },
+      { name: 'selective search', query: { q: 'varnak' }, uses: ['units_search_trgm'] },
+      { name: 'model filter and selective search', query: { model: fleet.modelId, q: 'varnak' }, uses: ['units_search_trgm'] },
     ];
     for (const c of cases) {
       const q = await unitListQueries(unitListQuerySchema.parse(c.query), db);
@@ -85,6 +86,23 @@ describe('fleet-scale query plans', () => {
     }
     const found = await (await signedIn(DEMO.engineer)).json('/api/units?q=varnak');
     expect(found.body.items.map((u: { serial: string }) => u.serial)).toEqual([distinctive]);
+  });
+
+  it('export picker: a search matching thousands is counted up to 1 000 and paged; one matching few uses the trigram index', async () => {
+    const prefix = fleet.serials[0]!.split('-')[0]!;
+    const many = await exportableUnitsPage({ q: `${prefix}-`, page: 2, pageSize: 50 }, db);
+    // The fleet has 2 000 units with a current set: more than the count goes.
+    expect(many.total).toBe(1000);
+    expect(many.totalIsLowerBound).toBe(true);
+    expect(many.items.map((u) => u.serial)).toEqual(fleet.serials.slice(50, 100));
+    const one = await exportableUnitsPage({ q: fleet.serials[1234]!, page: 1, pageSize: 50 }, db);
+    expect(one).toMatchObject({ total: 1, totalIsLowerBound: false });
+    expect(one.items.map((u) => u.serial)).toEqual([fleet.serials[1234]]);
+    // Upper case in the search box finds the stored lower-case text, and LIKE's wildcards are literal.
+    expect((await exportableUnitsPage({ q: fleet.serials[1234]!.toLowerCase(), page: 1, pageSize: 50 }, db)).total).toBe(1);
+    expect((await exportableUnitsPage({ q: `${prefix}_`, page: 1, pageSize: 50 }, db)).total).toBe(0);
+    const condition = await unitSearchCondition(fleet.serials[1234]!, db);
+    expectIndexed(await explain(db.select({ id: units.id }).from(units).where(condition)), 'one serial searched', ['units_search_trgm']);
   });
 
   it("drift: a unit's sets through the (unit, version) index", async () => {

@@ -64,6 +64,8 @@ export default function ExportsPanel({ initialUnits, initialLog, canExport }: { 
     });
   }
   const pages = list ? Math.max(1, Math.ceil(list.total / list.pageSize)) : 1;
+  // Past 1 000 matches the count stops ("more than"): there is a next page while this one is full.
+  const hasNext = !!list && (list.totalIsLowerBound ? list.items.length === list.pageSize : list.page < pages);
 
   async function batch() {
     setBusy(true);
@@ -134,12 +136,12 @@ export default function ExportsPanel({ initialUnits, initialLog, canExport }: { 
             <div className="flex flex-wrap items-center gap-3" data-export-pager>
               <button type="button" className="btn btn-quiet" disabled={!hydrated || list.page <= 1} onClick={() => load(list.q, list.page - 1)}>Previous</button>
               <span className="text-sm">
-                Page {list.page} of {pages} · {list.total} unit{list.total === 1 ? '' : 's'}{list.q ? ` matching “${list.q}”` : ' with an approved set'}
+                Page {list.page} of {pages}{list.totalIsLowerBound ? '+' : ''} · {list.totalIsLowerBound ? 'more than ' : ''}{list.total} unit{list.total === 1 ? '' : 's'}{list.q ? ` matching “${list.q}”` : ' with an approved set'}
               </span>
-              <button type="button" className="btn btn-quiet" disabled={!hydrated || list.page >= pages} onClick={() => load(list.q, list.page + 1)}>Next</button>
+              <button type="button" className="btn btn-quiet" disabled={!hydrated || !hasNext} onClick={() => load(list.q, list.page + 1)}>Next</button>
               {list.total > 0 && (
                 <button type="button" className="btn btn-quiet" disabled={!hydrated} onClick={pickAllMatching}>
-                  Pick all {list.total} unit{list.total === 1 ? '' : 's'}{list.q ? ' that match' : ''}
+                  {list.totalIsLowerBound ? 'Pick all units' : `Pick all ${list.total} unit${list.total === 1 ? '' : 's'}`}{list.q ? ' that match' : ''}
                 </button>
               )}
             </div>

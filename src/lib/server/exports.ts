@@ -386,10 +386,25 @@ export async function exportableUnitsPage(query: ExportableQuery, database: Db =
       .orderBy(asc(units.serial))
       .limit(query.pageSize)
       .offset((query.page - 1) * query.pageSize),
-    database.select({ total: count() }).from(parameterSets).innerJoin(units, eq(units.id, parameterSets.unitId)).where(where),
+    // Counted up to one past PICKER_COUNT_LIMIT: past that the answer says "more than" (a search that matches
+    // most of a large fleet would otherwise join every match for the count).
+    database
+      .select({ total: count() })
+      .from(database.select({ one: sql`1` }).from(parameterSets).innerJoin(units, eq(units.id, parameterSets.unitId)).where(where).limit(PICKER_COUNT_LIMIT + 1).as('matches')),
   ]);
-  return { q: query.q, page: query.page, pageSize: query.pageSize, total: counted?.total ?? 0, items: rows.map((r) => ({ ...r, approvedAt: new Date(r.approvedAt).toISOString() })) };
+  const matched = counted?.total ?? 0;
+  return {
+    q: query.q,
+    page: query.page,
+    pageSize: query.pageSize,
+    total: Math.min(matched, PICKER_COUNT_LIMIT),
+    totalIsLowerBound: matched > PICKER_COUNT_LIMIT,
+    items: rows.map((r) => ({ ...r, approvedAt: new Date(r.approvedAt).toISOString() })),
+  };
 }
+
+/** The picker counts matches exactly up to this many. */
+export const PICKER_COUNT_LIMIT = 1000;
 
 /** The serial numbers of every unit a search matches, up to a batch's limit, for "pick all that match". */
 export async function exportableSerials(q: string, database: Db = sharedDb()): Promise<ExportableSerials> {

@@ -3,7 +3,7 @@
  * sorted / filtered / paginated list, the unit record with counts, its history and the pose plan for the
  * next visit.
  */
-import { and, asc, count, desc, eq, ilike, inArray, or, sql, type SQL } from 'drizzle-orm';
+import { and, asc, count, desc, eq, ilike, inArray, like, or, sql, type SQL } from 'drizzle-orm';
 import { cleanText, isCalendarDate } from '../shared/input';
 import { z } from 'zod';
 import { armModelRevisions, armModels, auditLog, fits, parameterSets, sessions, units, users } from '../../db/schema';
@@ -84,20 +84,21 @@ const revisionsWhere = async (cond: SQL, database: Db) =>
   (await database.select({ id: armModelRevisions.id }).from(armModelRevisions).innerJoin(armModels, eq(armModels.id, armModelRevisions.modelId)).where(cond)).map((r) => r.id);
 
 /**
- * A search box's text as a condition on the units table alone: serial, site or cell contains it (trigram
- * indexes), or the unit's arm model's name does (the few matching models resolved to their revisions first).
+ * A search box's text as a condition on the units table alone: serial, site or cell contains it, any case
+ * (the stored lower-case `search_text`, trigram index), or the unit's arm model's name does (the few
+ * matching models resolved to their revisions first).
  */
 export async function unitSearchCondition(q: string, database: Db = sharedDb()): Promise<SQL> {
   const pattern = `%${likeEscape(q)}%`;
   const byModelName = await revisionsWhere(ilike(armModels.name, pattern), database);
-  const any = [ilike(units.serial, pattern), ilike(units.site, pattern), ilike(units.cell, pattern)];
+  const any = [like(units.searchText, sql`lower(${pattern})`)];
   if (byModelName.length) any.push(inArray(units.modelRevisionId, byModelName));
   return or(...any)!;
 }
 
 /**
  * One page of units. Every condition is on the units table itself, so each can use an index: the search box
- * matches serial, site and cell through trigram indexes (pg_trgm) and the model's name by resolving the few
+ * matches serial, site and cell through one trigram index (pg_trgm) and the model's name by resolving the few
  * matching arm models to their revisions first; the model filter is the same revision list. The total is a
  * count over units alone (no joins), not a window over the whole filtered list.
  */

@@ -13,7 +13,10 @@ export interface ExportableUnitsPage {
   q: string;
   page: number;
   pageSize: number;
+  /** Units that match, counted exactly up to 1 000 … */
   total: number;
+  /** … and true when more match than that (then `total` is 1 000). */
+  totalIsLowerBound: boolean;
   items: ExportableUnit[];
 }
 

@@ -238,6 +238,7 @@ export const acknowledged = z.looseObject({ ok: z.literal(true), alert: alertRow
 export const exportableUnits = z.looseObject({
   q: z.string(),
   items: z.array(z.looseObject({ serial: z.string(), site: z.string(), needsAttention: z.boolean(), modelName: z.string(), setId: id, version: z.number().int(), approvedAt: isoTime })),
+  totalIsLowerBound: z.boolean(),
   ...page,
 });
 export const exportableSerials = z.looseObject({ q: z.string(), limit: z.number().int(), more: z.boolean(), serials: z.array(z.string()) });
