@@ -2,8 +2,8 @@
  * The batch export streams: exporting 1 000 units must not hold the zip (or its files) in memory. The export
  * runs in this process against the real database, its stream is written to a file while the heap and
  * buffers outside it are sampled after garbage collection at every block read; the growth from 200 to
- * 1 000 units must stay under a per-unit bound (the zip's central directory records, not the files nor the
- * manifest's lists) and an absolute bound. The zip is read
+ * 1 000 units, per unit, may exceed what archiver alone keeps for the same number of entries (measured the same
+ * way) only by the batch's list of units: nothing per file, and not the manifest's lists. The zip is read
  * back with Info-ZIP's unzip. Certificates are left out here (drawing 1 200 of them takes minutes on a small
  * machine; the batch test in exports.test.ts covers them, and the benchmark measures a full export).
  */
@@ -13,6 +13,7 @@ import os from 'node:os';
 import path from 'node:path';
 import v8 from 'node:v8';
 import vm from 'node:vm';
+import archiver from 'archiver';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createDb } from '../../src/lib/server/db';
 import { exportBatch } from '../../src/lib/server/exports';
@@ -58,6 +59,38 @@ async function exportToFile(serials: string[], file: string, actor: { id: string
   return { growth: peak - start, bytes: fs.statSync(file).size };
 }
 
+/**
+ * The same measurement for archiver alone: `entries` small files (about the size of a unit's files) zipped one
+ * after another, the output counted and dropped as it comes, sampled at every 64 KiB of it. What grows here is
+ * the library's own: its record of each entry, kept for the central directory that the zip format writes at
+ * the end, and that directory written at once.
+ */
+async function archiverAlone(entries: number) {
+  const start = used();
+  let peak = start;
+  const archive = archiver('zip', { zlib: { level: 6 } });
+  let bytes = 0;
+  let sampledAt = 0;
+  archive.on('data', (c: Buffer) => {
+    bytes += c.length;
+    if (bytes - sampledAt >= 64 * 1024) {
+      sampledAt = bytes;
+      peak = Math.max(peak, used());
+    }
+  });
+  const ended = new Promise((r) => archive.once('end', r));
+  const content = Buffer.from(JSON.stringify({ joints: Array.from({ length: 40 }, (_, i) => ({ a: i * 1.234567, d: i * 0.98765 })) }));
+  for (let i = 0; i < entries; i++) {
+    const entry = new Promise((r) => archive.once('entry', r));
+    archive.append(Buffer.concat([content, Buffer.from(String(i))]), { name: `XSLIBRARY0000-R6-${String(i >> 2).padStart(5, '0')}/file-${i % 4}.json` });
+    await entry;
+  }
+  await archive.finalize();
+  await ended;
+  peak = Math.max(peak, used());
+  return peak - start;
+}
+
 describe('batch export streaming', () => {
   let fleet: FleetFixture;
   let actor: { id: string; name: string; email: string };
@@ -67,7 +100,7 @@ describe('batch export streaming', () => {
     actor = { id: await userId(db, DEMO.service), name: 'Service Manager', email: DEMO.service };
   }, 120_000);
 
-  it('keeps memory bounded per unit (not the files) from 200 to 1 000 units and writes a zip unzip reads', async () => {
+  it('keeps per unit only what archiver keeps for the zip directory plus the list of units, from 200 to 1 000 units, and writes a zip unzip reads', async () => {
     // A first export loads and compiles the code paths, so the measured runs do not count that.
     await exportToFile(fleet.serials.slice(0, 200), path.join(dir, 'warm.zip'), actor);
     const small = await exportToFile(fleet.serials.slice(0, 200), path.join(dir, 'small.zip'), actor);
@@ -75,16 +108,25 @@ describe('batch export streaming', () => {
     console.log(`batch export: 200 units ${(small.bytes / MB).toFixed(1)} MB, memory +${(small.growth / MB).toFixed(1)} MB; 1 000 units ${(large.bytes / MB).toFixed(1)} MB, memory +${(large.growth / MB).toFixed(1)} MB`);
     // The large zip is ~5× the small one; the files are not kept, and neither are the top-level manifest.json
     // and SHA256SUMS (each unit's part of them is spilled to a temporary file and streamed back at the end).
-    // What still grows with the units, from a heap snapshot diff of a 200- and a 1 000-unit export: archiver's
-    // record of each zip entry, kept for the central directory the zip format writes last (~0.4 KiB an entry,
-    // four a unit), and the batch's list of units and set ids (~0.5 KiB a unit); then the central directory
-    // itself is written at once at the end. Measured here 4.7–4.9 KiB a unit at the peak (it was 7 KiB with
-    // the lists in memory, 20 KiB while the stream's queue held archiver's small chunks as views into larger
-    // buffers).
+    // What grows with the units is archiver's own record of each zip entry, kept for the central directory the
+    // zip format writes last (measured below on archiver alone: 1.5–1.7 KiB a unit of four entries), and the
+    // batch's list of units and set ids. Measured here 2.3–2.4 KiB a unit at the peak (it was 4.9 KiB while a
+    // paused archive held the central directory as archiver writes it, about 17 tiny buffers an entry; 7 KiB
+    // with the manifest's lists in memory; 20 KiB while the stream's queue held archiver's small chunks as
+    // views into larger buffers).
     expect(large.bytes).toBeGreaterThan(4 * small.bytes);
     const perUnit = (large.growth - small.growth) / 800;
-    expect(perUnit).toBeLessThan(6.5 * 1024);
-    expect(large.growth).toBeLessThan(10 * MB);
+    // What of that is archiver's own, measured the same way with four entries a unit: the rest is ours.
+    await archiverAlone(800);
+    const libSmall = await archiverAlone(4 * 200);
+    const libLarge = await archiverAlone(4 * 1000);
+    const libPerUnit = (libLarge - libSmall) / 800;
+    console.log(`batch export: ${(perUnit / 1024).toFixed(1)} KiB a unit; archiver alone with four entries a unit ${(libPerUnit / 1024).toFixed(1)} KiB`);
+    expect(libPerUnit).toBeGreaterThan(0);
+    // Ours beyond the library's: the list of units (serial, ids) and nothing per file.
+    expect(perUnit - libPerUnit).toBeLessThan(1.5 * 1024);
+    expect(perUnit).toBeLessThan(4 * 1024);
+    expect(large.growth).toBeLessThan(8 * MB);
 
     // Read back with an outside reader: one folder per unit with its four files, plus manifest.json and SHA256SUMS.
     const listing = execFileSync('unzip', ['-Z1', path.join(dir, 'large.zip')], { encoding: 'utf8', maxBuffer: 64 * MB }).trim().split('\n');
