@@ -20,6 +20,5 @@ export const POST: APIRoute = async ({ locals, request }) => {
   const result = await createSession(request, { id: locals.user!.id, name: locals.user!.name });
   // The session page's checks are computed now, off the request, so its first view is quick.
   if (result.ok) warmSessionDigest(result.body.id);
-  // A file over the limit is answered before the rest of it is read: the connection cannot carry another request.
-  return json(result.body, result.status, result.ok ? { location: result.body.url } : result.status === 413 ? { connection: 'close' } : {});
+  return json(result.body, result.status, result.ok ? { location: result.body.url } : {});
 };
